@@ -1,0 +1,3 @@
+from sicheck.cli import main
+
+main()

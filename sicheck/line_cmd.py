@@ -1,0 +1,141 @@
+"""`sicheck line`: one cross-section from the command line."""
+
+from __future__ import annotations
+
+import json
+import sys
+
+from sicheck.errors import InputError
+from sicheck.physics.cross_section import CrossSection, Stratum
+from sicheck.physics.line_result import LineResult, per_length
+from sicheck.units import UnitError, parse_quantity
+
+
+def _len(value: str | None, option: str, units: str) -> float | None:
+    if value is None:
+        return None
+    try:
+        v = parse_quantity(value, "length", units)
+    except UnitError as e:
+        raise InputError(f"{option}: {e}") from None
+    if not v > 0:
+        raise InputError(f"{option} must be positive (got {value})")
+    return v
+
+
+def _er(value: float | None, option: str) -> float | None:
+    if value is not None and not 1.0 <= value <= 100.0:
+        raise InputError(f"{option} must be from 1 to 100 (got {value:g})")
+    return value
+
+
+def build_cross_section(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask,
+                        mask_er, units) -> CrossSection:
+    from sicheck.units import LENGTH
+    if units not in LENGTH:
+        raise InputError(f"--units must be a length unit such as mm, um, mil or in (got '{units}')")
+    w = _len(width, "--width", units)
+    try:
+        t = parse_quantity(thickness, "length", units)
+    except UnitError as e:
+        raise InputError(f"--thickness: {e}") from None
+    if t < 0:
+        raise InputError("--thickness must not be negative")
+    h = _len(height, "--height", units)
+    b = _len(below, "--below", units)
+    a = _len(above, "--above", units)
+    s = _len(gap, "--gap", units)
+    m = _len(mask, "--mask", units)
+    e_dflt = _er(er, "--er")
+    e_b = _er(er_below, "--er-below") or e_dflt
+    e_a = _er(er_above, "--er-above") or e_dflt
+    if e_b is None or e_a is None:
+        raise InputError("give --er (or both --er-below and --er-above)")
+    if kind == "microstrip":
+        if h is not None and b is not None:
+            raise InputError("give --height or --below, not both")
+        hh = h if h is not None else b
+        if hh is None:
+            raise InputError("microstrip needs --height (trace bottom to plane)")
+        if a is not None:
+            raise InputError("--above is for stripline; a microstrip's cover is --mask")
+        cover: tuple[Stratum, ...] = ()
+        if m is not None:
+            if mask_er is None:
+                raise InputError("--mask needs --mask-er")
+            cover = (Stratum(m, float(_er(mask_er, "--mask-er")), conformal=True),)
+        return CrossSection("microstrip", w, t, (Stratum(hh, e_b),), cover, gap=s)
+    if m is not None:
+        raise InputError("--mask applies to microstrip only")
+    if h is not None:
+        if b is not None or a is not None:
+            raise InputError("give --height, or --below and --above, not both")
+        if h <= t:
+            raise InputError("--height (plane spacing) must exceed --thickness")
+        b = a = (h - t) / 2.0
+    if b is None or a is None:
+        raise InputError("stripline needs --height (plane spacing) or both --below and --above")
+    return CrossSection("stripline", w, t, (Stratum(b, e_b),), (Stratum(a, e_a),), gap=s)
+
+
+def line_dict(xs: CrossSection, r: LineResult, length: float | None, units: str) -> dict:
+    l, c, d = per_length(r.signal_z, r.signal_eps)
+    out = {
+        "kind": xs.kind, "units_in": units, "width_mm": xs.width * 1e3, "thickness_mm": xs.thickness * 1e3,
+        "z0_ohm": r.z0, "eps_eff": r.eps_eff if not xs.coupled else r.eps_eff,
+        "delay_ps_per_mm": d * 1e9, "l_nh_per_mm": l * 1e6, "c_pf_per_mm": c * 1e9,
+        "model": r.model, "solver": "field" if r.model.startswith("field") else "formula",
+        "warnings": list(r.warnings),
+    }
+    if xs.coupled:
+        out.update(gap_mm=xs.gap * 1e3, zdiff_ohm=r.zdiff, zodd_ohm=r.z_odd, zeven_ohm=r.z_even,
+                   zcommon_ohm=r.zcommon, eps_eff_odd=r.eps_odd, eps_eff_even=r.eps_even)
+        out["eps_eff"] = r.eps_odd
+    if r.uncertainty_pct is not None:
+        out["uncertainty_pct"] = r.uncertainty_pct
+    if r.solve_s is not None:
+        out["solve_s"] = r.solve_s
+    if length is not None:
+        out["length_mm"] = length * 1e3
+        out["delay_ps"] = d * length * 1e12
+    return out
+
+
+def solve_one(xs: CrossSection, solver: str) -> LineResult:
+    if solver == "formula":
+        from sicheck.physics.formula import solve_formula
+        return solve_formula([xs])[0]
+    raise InputError(f"--solver must be 'formula' (got '{solver}')")
+
+
+def run_line(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er, length,
+             solver, units, as_json) -> None:
+    xs = build_cross_section(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask,
+                             mask_er, units)
+    ln = _len(length, "--length", units)
+    r = solve_one(xs, solver)
+    d = line_dict(xs, r, ln, units)
+    if as_json:
+        sys.stdout.write(json.dumps(d) + "\n")
+        for w in r.warnings:
+            print(f"warning: {w}", file=sys.stderr)
+        return
+    from rich.console import Console
+    con = Console(highlight=False)
+    con.print(f"[bold]{kind}[/bold] (bare numbers in {units}; results in mm, ps, ohm)  model: {r.model}")
+    rows = [("Z0", f"{r.z0:.2f} ohm")]
+    if xs.coupled:
+        rows += [("Zdiff", f"{r.zdiff:.2f} ohm"), ("Zodd", f"{r.z_odd:.2f} ohm"), ("Zeven", f"{r.z_even:.2f} ohm"),
+                 ("Zcommon", f"{r.zcommon:.2f} ohm"), ("eps_eff odd/even", f"{r.eps_odd:.4f} / {r.eps_even:.4f}")]
+    else:
+        rows += [("eps_eff", f"{r.eps_eff:.4f}")]
+    rows += [("delay", f"{d['delay_ps_per_mm']:.4f} ps/mm"), ("L", f"{d['l_nh_per_mm']:.4f} nH/mm"),
+             ("C", f"{d['c_pf_per_mm']:.5f} pF/mm")]
+    if "uncertainty_pct" in d:
+        rows.append(("uncertainty", f"{d['uncertainty_pct']:.3f} %"))
+    if "delay_ps" in d:
+        rows.append((f"delay over {d['length_mm']:g} mm", f"{d['delay_ps']:.1f} ps"))
+    for k, v in rows:
+        con.print(f"  {k:<18} {v}")
+    for w in r.warnings:
+        con.print(f"  [yellow]warning:[/] {w}")

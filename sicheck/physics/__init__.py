@@ -1,0 +1,1 @@
+"""Functional core: pure, vectorised physics. Nothing here reads files or prints."""

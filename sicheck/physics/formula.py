@@ -1,0 +1,91 @@
+"""Closed-form solver: picks the published model for each cross-section.
+
+Vectorised: all microstrips go through Hammerstad-Jensen in one call, all pairs
+through Kirschning-Jansen or Cohn, and so on.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from sicheck.physics import coupled_microstrip, microstrip, stripline
+from sicheck.physics.cover import covered_eps_eff
+from sicheck.physics.cross_section import CrossSection, series_er
+from sicheck.physics.line_result import LineResult
+
+
+def _arrays(xs: list[CrossSection]):
+    w = np.array([x.width if x.top_width is None else 0.5 * (x.width + x.top_width) for x in xs])
+    t = np.array([x.thickness for x in xs])
+    s = np.array([x.gap if x.gap is not None else np.nan for x in xs])
+    hb = np.array([x.h_below for x in xs])
+    ha = np.array([x.h_above for x in xs])
+    eb = np.array([series_er(x.below) for x in xs])
+    ea = np.array([series_er(x.above) if x.above else 1.0 for x in xs])
+    return w, t, s, hb, ha, eb, ea
+
+
+def _microstrip(xs: list[CrossSection]) -> list[LineResult]:
+    w, t, s, h, c, er, er_c = _arrays(xs)
+    z_bare, e_bare = microstrip.hammerstad_jensen(w, h, t, er)
+    covered = c > 0
+    e_single = np.where(covered, covered_eps_eff(e_bare, er, er_c, c, w, h), e_bare)
+    z_single = z_bare * np.sqrt(e_bare / e_single)
+    out = [LineResult(z0=float(z_single[i]), eps_eff=float(e_single[i]),
+                      model="hammerstad-jensen" + ("+cover" if covered[i] else "")) for i in range(len(xs))]
+    pair = ~np.isnan(s)
+    if pair.any():
+        idx = np.nonzero(pair)[0]
+        ze, zo, ee, eo = coupled_microstrip.kirschning_jansen(w[idx], h[idx], t[idx], s[idx], er[idx])
+        # The cover raises each mode's permittivity like the single line's; scale by it.
+        k = (e_single / e_bare)[idx]
+        ee_c, eo_c = ee * k, eo * k
+        for j, i in enumerate(idx):
+            r = out[i]
+            r.z_even = float(ze[j] * np.sqrt(ee[j] / ee_c[j]))
+            r.z_odd = float(zo[j] * np.sqrt(eo[j] / eo_c[j]))
+            r.eps_even, r.eps_odd = float(ee_c[j]), float(eo_c[j])
+            r.model = "kirschning-jansen" + ("+cover" if covered[i] else "")
+    for i, x in enumerate(xs):
+        r = out[i]
+        r.warnings += microstrip.validity_warnings(w[i], h[i], t[i], er[i])
+        if x.coupled:
+            r.warnings += coupled_microstrip.validity_warnings(w[i], h[i], s[i], er[i])
+        if len(x.below) > 1 and len({st.er for st in x.below}) > 1:
+            r.warnings.append("stratified substrate: closed form uses one equivalent er (series average)")
+        if len(x.above) > 1 or (x.above and not x.above[0].conformal):
+            r.warnings.append("embedded/multi-layer cover: closed-form cover correction is approximate")
+    return out
+
+
+def _stripline(xs: list[CrossSection]) -> list[LineResult]:
+    w, t, s, hb, ha, eb, ea = _arrays(xs)
+    z0, e0 = stripline.stripline(w, t, hb, ha, eb, ea)
+    out = [LineResult(z0=float(z0[i]), eps_eff=float(e0[i]), model="cohn-wheeler") for i in range(len(xs))]
+    pair = ~np.isnan(s)
+    if pair.any():
+        idx = np.nonzero(pair)[0]
+        ze, zo, ee, eo = stripline.coupled_stripline(w[idx], t[idx], s[idx], hb[idx], ha[idx], eb[idx], ea[idx])
+        for j, i in enumerate(idx):
+            r = out[i]
+            r.z_even, r.z_odd = float(ze[j]), float(zo[j])
+            r.eps_even, r.eps_odd = float(ee[j]), float(eo[j])
+            r.model = "cohn-coupled"
+    for i, x in enumerate(xs):
+        r = out[i]
+        r.warnings += stripline.validity_warnings(w[i], t[i], hb[i], ha[i], s[i] if x.coupled else None)
+        if x.stratified:
+            r.warnings.append("stratified dielectric: closed form averages the two sides' capacitance "
+                              "(approximate); use the field solver")
+    return out
+
+
+def solve_formula(xs: list[CrossSection]) -> list[LineResult]:
+    """Closed-form results for each cross-section, in the given order."""
+    results: list[LineResult | None] = [None] * len(xs)
+    for kind, fn in (("microstrip", _microstrip), ("stripline", _stripline)):
+        idx = [i for i, x in enumerate(xs) if x.kind == kind]
+        if idx:
+            for i, r in zip(idx, fn([xs[i] for i in idx])):
+                results[i] = r
+    return results  # type: ignore[return-value]

@@ -1,0 +1,1 @@
+"""Imperative shell: writing the review out (JSON, workbook, terminal)."""

@@ -1,0 +1,279 @@
+"""The review workbook a reviewer signs off (openpyxl, write-only for speed).
+
+Every text cell that starts with '=', '+', '-' or '@' is written as text with a
+quote prefix, never as a formula.
+"""
+
+from __future__ import annotations
+
+import math
+from datetime import date
+from pathlib import Path
+
+import numpy as np
+from openpyxl import Workbook
+from openpyxl.cell import WriteOnlyCell
+from openpyxl.cell.cell import Cell
+from openpyxl.styles import Alignment, Font, PatternFill
+from openpyxl.utils import get_column_letter
+from openpyxl.worksheet.datavalidation import DataValidation
+
+from sicheck import __version__
+from sicheck.reports.atomic import atomic_path
+from sicheck.review import Review
+
+FORMULA_START = ("=", "+", "-", "@")
+SEVERITY_FILL = {
+    "error": PatternFill("solid", fgColor="F4C7C3"),
+    "warning": PatternFill("solid", fgColor="FCE8B2"),
+    "info": PatternFill("solid", fgColor="D9E7F5"),
+}
+HEADER_FILL = PatternFill("solid", fgColor="1F3B57")
+HEADER_FONT = Font(bold=True, color="FFFFFF")
+TITLE_FONT = Font(bold=True, size=14)
+BOLD = Font(bold=True)
+DISPOSITIONS = ("accept", "fix", "waive")
+
+
+def safe_text(ws, value: str):
+    """A text cell that no spreadsheet program will evaluate."""
+    c = WriteOnlyCell(ws, value=value)
+    c.data_type = "s"
+    c.quotePrefix = True
+    return c
+
+
+def _value(ws, v):
+    if v is None:
+        return None
+    if isinstance(v, (float, np.floating)):
+        return None if not math.isfinite(float(v)) else float(v)
+    if isinstance(v, (np.integer,)):
+        return int(v)
+    if isinstance(v, str):
+        return safe_text(ws, v) if v.startswith(FORMULA_START) else v
+    return v
+
+
+class _Sheet:
+    """A write-only sheet with a header row, frozen panes, filter and fitted widths."""
+
+    def __init__(self, wb: Workbook, title: str, columns: list[tuple[str, str | None, int]], header_row: int = 1):
+        self.ws = wb.create_sheet(title)
+        self.columns = columns
+        self.n = len(columns)
+        self.formats = [fmt for _, fmt, _ in columns]
+        for j, (name, _, width) in enumerate(columns):
+            self.ws.column_dimensions[get_column_letter(j + 1)].width = max(width, len(name) + 2)
+        self.ws.freeze_panes = f"A{header_row + 1}"
+        self.header_row = header_row
+        self.rows = header_row
+
+    def pre(self, values: list):
+        self.ws.append([_value(self.ws, v) for v in values])
+
+    def header(self):
+        cells = []
+        for name, _, _ in self.columns:
+            c = WriteOnlyCell(self.ws, value=name)
+            c.font, c.fill = HEADER_FONT, HEADER_FILL
+            c.alignment = Alignment(wrap_text=True, vertical="top")
+            cells.append(c)
+        self.ws.append(cells)
+
+    def row(self, values: list, fill: PatternFill | None = None, fill_cols: tuple[int, ...] = ()):
+        out = []
+        for j, v in enumerate(values):
+            fmt = self.formats[j]
+            v = _value(self.ws, v)
+            if (fmt and isinstance(v, (int, float))) or (fill is not None and j in fill_cols):
+                c = v if isinstance(v, Cell) else WriteOnlyCell(self.ws, value=v)
+                if fmt and isinstance(v, (int, float)):
+                    c.number_format = fmt
+                if fill is not None and j in fill_cols:
+                    c.fill = fill
+                v = c
+            out.append(v)
+        self.ws.append(out)
+        self.rows += 1
+
+    def finish(self):
+        last = get_column_letter(self.n)
+        self.ws.auto_filter.ref = f"A{self.header_row}:{last}{max(self.rows, self.header_row + 1)}"
+
+
+def _summary(wb: Workbook, rv: Review, out_name: str):
+    ws = wb.create_sheet("Summary")
+    ws.column_dimensions["A"].width = 34
+    ws.column_dimensions["B"].width = 70
+    title = WriteOnlyCell(ws, value="Signal-integrity review")
+    title.font = TITLE_FONT
+    ws.append([title])
+    counts = rv.counts
+    nets = rv.nets
+    rows = [
+        ("Board stackup", rv.stackup.name),
+        ("Stackup file", rv.stackup.source),
+        ("Trace list", rv.traces_source),
+        ("Rule sets", "; ".join(rv.rules.sources)),
+        ("Impedance solver", rv.solver),
+        ("sicheck version", __version__),
+        ("Generated", date.today().isoformat()),
+        ("", ""),
+        ("Nets", int(len(nets))),
+        ("Segments", int(len(rv.segments))),
+        ("Unique cross-sections solved", len(rv.cross_sections)),
+        ("Errors", counts["error"]),
+        ("Warnings", counts["warning"]),
+        ("Info", counts["info"]),
+        ("", ""),
+        ("Lumped nets (no termination needed)", int((nets["termination"] == "not-needed").sum())),
+        ("Termination recommended", int((nets["termination"] == "recommended").sum())),
+        ("Termination required", int((nets["termination"] == "required").sum())),
+        ("", ""),
+        ("Criteria", f"lumped when TD <= {rv.rules.lumped_max_td_over_tr:.3g} x Tr; termination required when "
+                     f"TD >= {rv.rules.required_min_td_over_tr:.3g} x Tr; in between recommended"),
+        ("Caution", "Engineering estimates: confirm impedance against the fabricator's impedance report and "
+                    "test coupons. No high-voltage creepage/clearance or product-safety checks."),
+        ("", ""),
+    ]
+    for k, v in rows:
+        kc = WriteOnlyCell(ws, value=k)
+        kc.font = BOLD
+        vc = _value(ws, v)
+        if isinstance(vc, str) and len(vc) > 60:
+            vc = WriteOnlyCell(ws, value=vc)
+            vc.alignment = Alignment(wrap_text=True)
+        ws.append([kc, vc])
+    head = WriteOnlyCell(ws, value="Sign-off")
+    head.font = TITLE_FONT
+    ws.append([head])
+    for k in ("Reviewed by", "Date", "Decision (approve / rework)", "Notes"):
+        kc = WriteOnlyCell(ws, value=k)
+        kc.font = BOLD
+        ws.append([kc, None])
+
+
+def _findings(wb: Workbook, rv: Review):
+    cols = [("ID", None, 7), ("Severity", None, 10), ("Rule", None, 18), ("Net", None, 22), ("Layer", None, 12),
+            ("Finding", None, 90), ("Trace row", "0", 9), ("Disposition", None, 13), ("Reviewer", None, 14),
+            ("Comment", None, 40)]
+    sh = _Sheet(wb, "Findings", cols)
+    n = max(len(rv.findings), 1)
+    dv = DataValidation(type="list", formula1='"' + ",".join(DISPOSITIONS) + '"', allow_blank=True,
+                        showErrorMessage=True, errorTitle="Disposition",
+                        error="Choose accept, fix or waive")
+    dv.add(f"H2:H{n + 1}")
+    sh.ws.data_validations.append(dv)
+    sh.header()
+    for i, f in enumerate(rv.findings):
+        sh.row([f"F{i + 1:04d}", f.severity, f.rule, f.net, f.layer, f.message, f.row, None, None, None],
+               fill=SEVERITY_FILL[f.severity], fill_cols=(1,))
+    sh.finish()
+
+
+def _nets(wb: Workbook, rv: Review):
+    cols = [("Net", None, 22), ("Class", None, 12), ("Pair", None, 14), ("Layers", None, 16), ("Segments", "0", 9),
+            ("Length [mm]", "0.00", 11), ("Delay [ps]", "0.0", 10), ("Rise time [ps]", "0", 11),
+            ("TD/Tr", "0.000", 8), ("Electrical", None, 16), ("Termination", None, 13),
+            ("Series R [ohm]", "0", 12), ("Z at driver end [ohm]", "0.0", 12),
+            ("Lumped limit [mm]", "0.0", 12), ("Critical length [mm]", "0.0", 13),
+            ("Knee freq [GHz]", "0.000", 11), ("Wavelength at knee [mm]", "0.0", 13), ("Advice", None, 80)]
+    sh = _Sheet(wb, "Nets", cols)
+    sh.header()
+    fills = {"required": SEVERITY_FILL["warning"], "recommended": SEVERITY_FILL["info"]}
+    for r in rv.nets.itertuples(index=False):
+        sh.row([r.net, r.net_class, r.pair, r.layers, int(r.segments), r.length * 1e3, r.delay * 1e12,
+                r.rise_time * 1e12, r.td_over_tr, r.electrical, r.termination,
+                None if r.series_ohm is None else float(r.series_ohm), r.z_driver_end,
+                r.lumped_limit_length * 1e3, r.critical_length * 1e3, r.knee_hz * 1e-9,
+                r.wavelength_at_knee * 1e3, r.advice],
+               fill=fills.get(r.termination), fill_cols=(10,))
+    sh.finish()
+
+
+def _segments(wb: Workbook, rv: Review):
+    seg = rv.segments
+    cols = [("Trace row", "0", 9), ("Net", None, 22), ("Pair", None, 14), ("Layer", None, 10), ("Kind", None, 11),
+            ("Length [mm]", "0.000", 11), ("Width [mm]", "0.000", 10), ("Gap [mm]", "0.000", 9),
+            ("Z0 [ohm]", "0.0", 9), ("Zdiff [ohm]", "0.0", 10), ("Zodd [ohm]", "0.0", 10), ("Zeven [ohm]", "0.0", 10),
+            ("eps_eff", "0.000", 8), ("Delay [ps/mm]", "0.000", 11), ("Delay [ps]", "0.0", 10),
+            ("L [nH/mm]", "0.0000", 10), ("C [pF/mm]", "0.0000", 10), ("Model", None, 20),
+            ("Uncertainty [%]", "0.00", 11), ("Closed-form Z [ohm]", "0.0", 12)]
+    sh = _Sheet(wb, "Segments", cols)
+    sh.header()
+    arr = {c: seg[c].to_numpy() for c in seg.columns}
+    zf = np.where(arr["pair"] != "", arr["formula_zdiff"], arr["formula_z"])
+    for i in range(len(seg)):
+        sh.row([int(arr["row"][i]), arr["net"][i], arr["pair"][i], arr["layer"][i], arr["kind"][i],
+                arr["length"][i] * 1e3, arr["width"][i] * 1e3, arr["gap"][i] * 1e3, arr["z0"][i], arr["zdiff"][i],
+                arr["zodd"][i], arr["zeven"][i], arr["eps_eff"][i], arr["delay_per_m"][i] * 1e9,
+                arr["delay"][i] * 1e12, arr["l_per_m"][i] * 1e6, arr["c_per_m"][i] * 1e9, arr["model"][i],
+                arr["uncertainty_pct"][i], zf[i]])
+    sh.finish()
+
+
+def _stackup(wb: Workbook, rv: Review):
+    cols = [("#", "0", 4), ("Type", None, 11), ("Name", None, 14), ("Kind", None, 9), ("Thickness [mm]", "0.0000", 13),
+            ("er", "0.00", 7), ("Loss tangent", "0.0000", 11), ("Line type", None, 11), ("References", None, 18),
+            ("Below trace [mm]", "0.0000", 13), ("Above trace [mm]", "0.0000", 13)]
+    sh = _Sheet(wb, "Stackup", cols)
+    sh.header()
+    for l in rv.stackup.layers:
+        kind = refs = below = above = None
+        if l.type == "signal":
+            g = rv.stackup.geometry(l.name)
+            kind, refs = g.kind, ", ".join(g.references)
+            below = sum(s.thickness for s in g.below) * 1e3
+            above = sum(s.thickness for s in g.above) * 1e3
+        sh.row([l.index + 1, l.type, l.name, l.kind, l.thickness * 1e3, l.er, l.loss_tangent if l.er else None,
+                kind, refs, below, above])
+    sh.finish()
+
+
+def _rules(wb: Workbook, rv: Review):
+    from sicheck.rules import CHECKS
+    r = rv.rules
+    cols = [("Item", None, 26), ("Value", None, 18), ("Match / meaning", None, 70)]
+    sh = _Sheet(wb, "Rules", cols)
+    sh.header()
+    for k, v, m in (("lumped_max_td_over_tr", r.lumped_max_td_over_tr, "lumped when TD/Tr at or below"),
+                    ("required_min_td_over_tr", r.required_min_td_over_tr, "termination required when TD/Tr at or above"),
+                    ("tolerance_pct", r.tolerance_pct, "default impedance tolerance, +/- %"),
+                    ("z_step_pct", r.z_step_pct, "largest impedance step along a net before a finding, %"),
+                    ("formula_field_pct", r.formula_field_pct, "closed form vs field solver difference that is reported, %")):
+        sh.row([k, v, m])
+    for c in CHECKS:
+        sh.row([f"check {c.id}", r.severity[c.id], c.what])
+    for c in r.classes:
+        vals = []
+        if c.z0 is not None:
+            vals.append(f"Z0 {c.z0:g} ohm")
+        if c.zdiff is not None:
+            vals.append(f"Zdiff {c.zdiff:g} ohm")
+        vals.append(f"+/-{r.tolerance_for(c):g} %")
+        if c.rise_time is not None:
+            vals.append(f"Tr {c.rise_time * 1e12:g} ps")
+        if c.width is not None:
+            vals.append(f"w {c.width * 1e3:g} mm")
+        if c.gap is not None:
+            vals.append(f"gap {c.gap * 1e3:g} mm")
+        if c.driver_ohm is not None:
+            vals.append(f"Rdrv {c.driver_ohm:g} ohm")
+        sh.row([f"class {c.name}", ", ".join(vals), " ".join(c.match) or "(by net_class column)"])
+    sh.finish()
+
+
+def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
+    """Write the review workbook atomically to ``target``."""
+    wb = Workbook(write_only=True)
+    _summary(wb, rv, str(target))
+    _findings(wb, rv)
+    _nets(wb, rv)
+    _segments(wb, rv)
+    _stackup(wb, rv)
+    _rules(wb, rv)
+    for fn in extra_sheets or ():
+        fn(wb, rv)
+    with atomic_path(target) as tmp:
+        wb.save(tmp)

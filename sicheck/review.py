@@ -1,0 +1,348 @@
+"""The review: trace list + stackup + rules -> segments, nets and findings.
+
+Pure orchestration over tables; no printing, no files. Each unique cross-section
+(layer, width, gap) is solved once and mapped back to its segments.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from sicheck.errors import InputError
+from sicheck.findings import SEVERITY_ORDER, Finding
+from sicheck.physics import electrical, termination
+from sicheck.physics.constants import C0
+from sicheck.physics.cross_section import CrossSection
+from sicheck.physics.formula import solve_formula
+from sicheck.physics.line_result import LineResult, per_length
+from sicheck.rules import Rules
+from sicheck.stackup import Stackup
+from sicheck.traces import TraceList
+
+Solver = Callable[[list[CrossSection]], list[LineResult]]
+
+
+@dataclass
+class Review:
+    segments: pd.DataFrame
+    nets: pd.DataFrame
+    findings: list[Finding]
+    stackup: Stackup
+    rules: Rules
+    traces_source: str
+    solver: str
+    cross_sections: list[tuple[str, CrossSection, LineResult]] = field(default_factory=list)
+
+    @property
+    def counts(self) -> dict[str, int]:
+        c = {"error": 0, "warning": 0, "info": 0}
+        for f in self.findings:
+            c[f.severity] += 1
+        return c
+
+    @property
+    def exit_code(self) -> int:
+        return 1 if self.counts["error"] else 0
+
+
+def _resolve_classes(df: pd.DataFrame, rules: Rules, src: str) -> pd.DataFrame:
+    names = []
+    cache: dict[tuple[str, str], str] = {}
+    for net, explicit, row in zip(df["net"], df["net_class"], df["row"]):
+        key = (net, explicit)
+        if key not in cache:
+            cls = rules.class_for(net, explicit or None)
+            if explicit and cls is None:
+                known = ", ".join(c.name for c in rules.classes) or "none"
+                raise InputError(f"net class '{explicit}' is not in the rules (classes: {known})",
+                                 file=src, row=int(row), column="net_class")
+            cache[key] = cls.name if cls else ""
+        names.append(cache[key])
+    df = df.copy()
+    df["net_class"] = names
+    return df
+
+
+def _class_value(df: pd.DataFrame, rules: Rules, column: str, attr: str) -> np.ndarray:
+    vals = df[column].to_numpy(float).copy()
+    missing = np.isnan(vals)
+    if missing.any():
+        by_class = {c.name: getattr(c, attr) for c in rules.classes}
+        fill = df["net_class"].map(lambda n: by_class.get(n)).to_numpy(object)
+        fill = np.array([np.nan if v is None else v for v in fill], dtype=float)
+        vals[missing] = fill[missing]
+    return vals
+
+
+def _check_pairs(df: pd.DataFrame, src: str) -> None:
+    nets = set(df["net"])
+    for net, partner, row in zip(df["net"], df["pair"], df["row"]):
+        if partner and partner == net:
+            raise InputError(f"net '{net}' is paired with itself", file=src, row=int(row), column="pair")
+    # A partner that lists its own rows must name this net back.
+    back = df[df["pair"] != ""].groupby("net")["pair"].first().to_dict()
+    for net, partner in back.items():
+        if partner in nets and partner in back and back[partner] != net:
+            row = int(df.loc[df["net"] == net, "row"].iloc[0])
+            raise InputError(f"net '{net}' pairs with '{partner}', but '{partner}' pairs with '{back[partner]}'",
+                             file=src, row=row, column="pair")
+
+
+def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solver = solve_formula,
+                 solver_name: str = "formula") -> Review:
+    src = traces.source
+    df = traces.frame.copy()
+    # layers
+    layer_names = {l.name.lower(): l.name for l in stackup.signal_layers}
+    canon_layer = df["layer"].str.lower().map(layer_names)
+    unknown = canon_layer.isna().to_numpy()
+    if unknown.any():
+        i = int(np.argmax(unknown))
+        raise InputError(f"layer '{df['layer'].iloc[i]}' is not a signal layer of the stackup "
+                         f"({', '.join(layer_names.values())})", file=src, row=int(df["row"].iloc[i]), column="layer")
+    df["layer"] = canon_layer.to_numpy()
+    df = _resolve_classes(df, rules, src)
+    df["width"] = _class_value(df, rules, "width", "width")
+    df["rise_time"] = _class_value(df, rules, "rise_time", "rise_time")
+    df["gap"] = _class_value(df.assign(gap=np.where(df["pair"] != "", df["gap"], np.nan)), rules, "gap", "gap")
+    df.loc[df["pair"] == "", "gap"] = np.nan
+    df["driver_ohm"] = _class_value(df, rules, "driver_ohm", "driver_ohm")
+    df["load_pf"] = _class_value(df, rules, "load_pf", "load_pf")
+    for col, what in (("width", "a width (column 'width' or the net class's width)"),):
+        miss = np.isnan(df[col].to_numpy(float))
+        if miss.any():
+            i = int(np.argmax(miss))
+            raise InputError(f"net '{df['net'].iloc[i]}' has no width: give {what}", file=src,
+                             row=int(df["row"].iloc[i]), column=col)
+    pair_rows = (df["pair"] != "").to_numpy()
+    miss_gap = pair_rows & np.isnan(df["gap"].to_numpy(float))
+    if miss_gap.any():
+        i = int(np.argmax(miss_gap))
+        raise InputError(f"pair segment of '{df['net'].iloc[i]}' has no gap: give a 'gap' column or a class gap",
+                         file=src, row=int(df["row"].iloc[i]), column="gap")
+    _check_pairs(df, src)
+    # rise time: fastest edge given on any of the net's rows (conservative)
+    net_tr = df.groupby("net", sort=False)["rise_time"].min()
+    missing_tr = net_tr[net_tr.isna()]
+    if len(missing_tr):
+        net = missing_tr.index[0]
+        row = int(df.loc[df["net"] == net, "row"].iloc[0])
+        raise InputError(f"net '{net}' has no rise time: give a 'rise_time' column (e.g. 350ps) or a net class "
+                         "with rise_time in the rules", file=src, row=row, column="rise_time")
+
+    # ---- unique cross-sections, solved once each
+    gap_key = df["gap"].fillna(-1.0)
+    keys = pd.MultiIndex.from_arrays([df["layer"], df["width"], gap_key])
+    codes, uniques = pd.factorize(keys)
+    xs = [stackup.cross_section(layer, float(w), None if g < 0 else float(g)) for layer, w, g in uniques]
+    results = solver(xs)
+    seg = _segment_table(df, codes, xs, results)
+
+    # ---- partners listed only through their pair: mirror their segments for the net table
+    listed = set(df["net"])
+    mirror = seg[(seg["pair"] != "") & ~seg["pair"].isin(listed)].copy()
+    if len(mirror):
+        mirror["net"], mirror["pair"] = mirror["pair"].to_numpy(), mirror["net"].to_numpy()
+        mirror["mirrored"] = True
+    all_seg = pd.concat([seg, mirror], ignore_index=True) if len(mirror) else seg
+    nets = _net_table(all_seg, rules)
+    findings = _findings(seg, nets, rules, xs, results, codes)
+    findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
+    cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
+    return Review(segments=seg, nets=nets, findings=findings, stackup=stackup, rules=rules,
+                  traces_source=src, solver=solver_name, cross_sections=cs)
+
+
+def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataFrame:
+    def col(fn):
+        return np.array([fn(r) for r in results], dtype=float)[codes]
+
+    z0 = col(lambda r: r.z0)
+    zs = col(lambda r: r.signal_z)
+    es = col(lambda r: r.signal_eps)
+    l_pm, c_pm, d_pm = per_length(zs, es)
+    seg = pd.DataFrame({
+        "row": df["row"].to_numpy(),
+        "net": df["net"].to_numpy(),
+        "pair": df["pair"].to_numpy(),
+        "layer": df["layer"].to_numpy(),
+        "net_class": df["net_class"].to_numpy(),
+        "kind": np.array([x.kind for x in xs], dtype=object)[codes],
+        "length": df["length"].to_numpy(float),
+        "width": df["width"].to_numpy(float),
+        "gap": df["gap"].to_numpy(float),
+        "z0": z0,
+        "zdiff": col(lambda r: np.nan if r.zdiff is None else r.zdiff),
+        "zodd": col(lambda r: np.nan if r.z_odd is None else r.z_odd),
+        "zeven": col(lambda r: np.nan if r.z_even is None else r.z_even),
+        "eps_eff": es,
+        "delay_per_m": d_pm,
+        "l_per_m": l_pm,
+        "c_per_m": c_pm,
+        "model": np.array([r.model for r in results], dtype=object)[codes],
+        "uncertainty_pct": col(lambda r: np.nan if r.uncertainty_pct is None else r.uncertainty_pct),
+        "formula_z": col(lambda r: np.nan if r.formula_z0 is None else r.formula_z0),
+        "formula_zdiff": col(lambda r: np.nan if r.formula_zdiff is None else r.formula_zdiff),
+        "rise_time": df["rise_time"].to_numpy(float),
+        "driver_ohm": df["driver_ohm"].to_numpy(float),
+        "load_pf": df["load_pf"].to_numpy(float),
+        "xs": codes,
+        "mirrored": False,
+    })
+    seg["delay"] = seg["length"] * seg["delay_per_m"]
+    return seg
+
+
+def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
+    g = seg.groupby("net", sort=False)
+    first = g.first()
+    nets = pd.DataFrame({
+        "net": first.index.to_numpy(),
+        "net_class": first["net_class"].to_numpy(),
+        "pair": first["pair"].to_numpy(),
+        "segments": g.size().to_numpy(),
+        "layers": g["layer"].agg(lambda s: " > ".join(dict.fromkeys(s))).to_numpy(),
+        "length": g["length"].sum().to_numpy(),
+        "delay": g["delay"].sum().to_numpy(),
+        "rise_time": g["rise_time"].min().to_numpy(),
+        "driver_ohm": first["driver_ohm"].to_numpy(),
+        "load_pf": first["load_pf"].to_numpy(),
+        "z_driver_end": np.where(first["pair"] != "", first["zdiff"], first["z0"]),
+        "zodd_driver_end": first["zodd"].to_numpy(),
+        "mirrored": first["mirrored"].to_numpy(bool),
+    })
+    ratio = nets["delay"] / nets["rise_time"]
+    el, term = electrical.classify(nets["delay"], nets["rise_time"], rules.lumped_max_td_over_tr,
+                                   rules.required_min_td_over_tr)
+    nets["td_over_tr"] = ratio
+    nets["electrical"] = el
+    nets["termination"] = term
+    velocity = nets["length"] / nets["delay"]
+    nets["knee_hz"] = electrical.knee_frequency(nets["rise_time"])
+    nets["wavelength_at_knee"] = velocity / nets["knee_hz"]
+    nets["lumped_limit_length"] = rules.lumped_max_td_over_tr * nets["rise_time"] * velocity
+    nets["critical_length"] = rules.required_min_td_over_tr * nets["rise_time"] * velocity
+    series, advice, short = [], [], []
+    for r in nets.itertuples(index=False):
+        needs = r.termination != electrical.NOT_NEEDED
+        drv = None if np.isnan(r.driver_ohm) else float(r.driver_ohm)
+        if r.pair:
+            series.append(None)
+            if needs:
+                opts = termination.advise(float(r.zodd_driver_end), float(r.delay), drv,
+                                          zdiff=float(r.z_driver_end))
+                advice.append(opts[0].text)
+                short.append(f"{opts[0].end_ohm:g} ohm differential")
+            else:
+                advice.append("")
+                short.append("")
+            continue
+        rs = termination.series_value(float(r.z_driver_end), drv) if (needs and drv is not None) else None
+        series.append(rs)
+        if needs:
+            opts = termination.advise(float(r.z_driver_end), float(r.delay), drv)
+            advice.append("; or ".join(o.text for o in opts[:2]) if drv is None else opts[0].text +
+                          "; alternatives: " + "; ".join(o.text for o in opts[1:]))
+            short.append(f"{rs:g} ohm series" if rs is not None else
+                         ("series Z0-Rdrv, or " if drv is None else "") + f"{opts[1].end_ohm:g} ohm at far end")
+        else:
+            advice.append("")
+            short.append("")
+    nets["series_ohm"] = series
+    nets["advice"] = advice
+    nets["proposal"] = short
+    return nets
+
+
+def _fmt_ps(seconds: float) -> str:
+    return f"{seconds * 1e12:.0f} ps"
+
+
+def _findings(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs, results, codes) -> list[Finding]:
+    sev = rules.severity
+    out: list[Finding] = []
+
+    def add(rule, net, layer, msg, row=None, severity=None):
+        s = severity or sev[rule]
+        if sev[rule] != "off":
+            out.append(Finding(rule, s, net, layer, msg, row))
+
+    classes = {c.name: c for c in rules.classes}
+    seen_pairs: set = set()
+    cls_names = seg["net_class"].to_numpy()
+    for i in range(len(seg)):
+        cls = classes.get(cls_names[i])
+        if cls is None:
+            continue
+        tol = rules.tolerance_for(cls)
+        net, layer, row = seg["net"].iat[i], seg["layer"].iat[i], int(seg["row"].iat[i])
+        if seg["pair"].iat[i]:
+            key = (frozenset((net, seg["pair"].iat[i])), layer, seg["width"].iat[i], seg["gap"].iat[i])
+            if cls.zdiff is not None and key not in seen_pairs:
+                seen_pairs.add(key)
+                z = seg["zdiff"].iat[i]
+                err = (z - cls.zdiff) / cls.zdiff * 100.0
+                if abs(err) > tol:
+                    add("zdiff-target", f"{net}/{seg['pair'].iat[i]}", layer,
+                        f"Zdiff {z:.1f} ohm on {layer} (w {seg['width'].iat[i] * 1e3:.3f} mm, gap "
+                        f"{seg['gap'].iat[i] * 1e3:.3f} mm) misses the {cls.name} target {cls.zdiff:g} ohm "
+                        f"+/-{tol:g} % by {err:+.1f} %", row)
+        elif cls.z0 is not None:
+            z = seg["z0"].iat[i]
+            err = (z - cls.z0) / cls.z0 * 100.0
+            if abs(err) > tol:
+                add("z0-target", net, layer,
+                    f"Z0 {z:.1f} ohm on {layer} (w {seg['width'].iat[i] * 1e3:.3f} mm) misses the {cls.name} "
+                    f"target {cls.z0:g} ohm +/-{tol:g} % by {err:+.1f} %", row)
+
+    # impedance steps along a net (layer changes)
+    zsig = np.where(seg["pair"] != "", seg["zdiff"], seg["z0"])
+    tmp = pd.DataFrame({"net": seg["net"], "z": zsig, "layer": seg["layer"]})
+    for net, grp in tmp.groupby("net", sort=False):
+        if len(grp) < 2:
+            continue
+        zmin, zmax = grp["z"].min(), grp["z"].max()
+        step = (zmax - zmin) / zmin * 100.0
+        if step > rules.z_step_pct:
+            lo_l = grp["layer"].iloc[int(np.argmin(grp["z"].to_numpy()))]
+            hi_l = grp["layer"].iloc[int(np.argmax(grp["z"].to_numpy()))]
+            add("z-step", net, f"{lo_l}/{hi_l}",
+                f"impedance changes {step:.0f} % along the net ({zmin:.1f} ohm on {lo_l} to {zmax:.1f} ohm on "
+                f"{hi_l}): each step reflects part of the edge")
+
+    done_pairs: set = set()
+    for r in nets.sort_values("delay", ascending=False).itertuples(index=False):
+        cls = classes.get(r.net_class)
+        if r.termination == electrical.NOT_NEEDED:
+            continue
+        if r.pair:       # a pair is one finding, on its longer leg
+            key = frozenset((r.net, r.pair))
+            if key in done_pairs:
+                continue
+            done_pairs.add(key)
+        msg = (f"one-way delay {_fmt_ps(r.delay)} is {r.td_over_tr:.2f} x the {_fmt_ps(r.rise_time)} rise time "
+               f"(critical length {r.critical_length * 1e3:.1f} mm on its layers, net is {r.length * 1e3:.1f} mm): "
+               f"treat as a transmission line; termination {r.termination}")
+        label = f"{r.net}/{r.pair}" if r.pair else r.net
+        add("electrical-length", label, r.layers, msg,
+            severity=None if r.termination == electrical.REQUIRED else "info")
+        if r.advice:
+            add("termination", label, r.layers, r.advice)
+        if cls is None or (cls.z0 is None and cls.zdiff is None):
+            add("no-target", label, r.layers, f"transmission-line net with no impedance target in its class "
+                                              f"('{r.net_class or 'none'}'): set z0 or zdiff for it")
+
+    for i, (x, res) in enumerate(zip(xs, results)):
+        if not res.warnings:
+            continue
+        rows = seg.index[seg["xs"] == i]
+        nets_here = seg.loc[rows, "net"].unique()
+        label = ", ".join(nets_here[:3]) + (f" and {len(nets_here) - 3} more" if len(nets_here) > 3 else "")
+        layer = seg.loc[rows[0], "layer"]
+        for w in res.warnings:
+            add("model-accuracy", label, layer, f"{res.model}: {w}")
+    return out
