@@ -26,8 +26,11 @@ def knee_frequency(rise_time):
 def classify(delay, rise_time, lumped_max=1.0 / 6.0, required_min=0.5):
     """Vectorised classification. Returns (electrical[], termination[]) string arrays."""
     ratio = np.asarray(delay, dtype=float) / np.asarray(rise_time, dtype=float)
-    electrical = np.where(ratio <= lumped_max, LUMPED, LINE)
-    termination = np.where(ratio <= lumped_max, NOT_NEEDED, np.where(ratio >= required_min, REQUIRED, RECOMMENDED))
+    # a ratio within rounding of a threshold counts as on it
+    lumped = ratio <= lumped_max * (1.0 + 1e-9)
+    required = ratio >= required_min * (1.0 - 1e-9)
+    electrical = np.where(lumped, LUMPED, LINE)
+    termination = np.where(lumped, NOT_NEEDED, np.where(required, REQUIRED, RECOMMENDED))
     return electrical, termination
 
 

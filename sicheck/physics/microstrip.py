@@ -16,6 +16,7 @@ from sicheck.physics.constants import ETA0, PI
 VALID_U = (0.01, 100.0)       # w/h
 VALID_ER = (1.0, 128.0)
 VALID_T_OVER_H = (0.0, 0.2)   # thickness correction is a small-t correction
+THIN = 1e-9                   # t/h below this is zero thickness (avoids overflow in the correction)
 
 
 def hammerstad_jensen_z0_air(u):
@@ -45,8 +46,8 @@ def hammerstad_jensen(w, h, t, er):
     w, h, t, er = (np.asarray(x, dtype=float) for x in (w, h, t, er))
     u = w / h
     th = t / h
-    with np.errstate(divide="ignore", invalid="ignore"):
-        du1 = np.where(th > 0, th / PI * np.log1p(4.0 * np.e / (th / np.tanh(np.sqrt(6.517 * u)) ** 2)), 0.0)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        du1 = np.where(th > THIN, th / PI * np.log1p(4.0 * np.e / (th / np.tanh(np.sqrt(6.517 * u)) ** 2)), 0.0)
     dur = 0.5 * (1.0 + 1.0 / np.cosh(np.sqrt(np.maximum(er - 1.0, 0.0)))) * du1
     u1 = u + du1
     ur = u + dur

@@ -25,28 +25,31 @@ reported so that callers can flag strong offsets.
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import ellipk
+from scipy.special import ellipkm1
 
 from sicheck.physics.constants import C0, PI
 
 ETA_30PI = 30.0 * PI
 COHN_THICK_MIN_W_OVER_B = 0.35
 WHEELER_MAX_W_OVER_B = 10.0
+THIN = 1e-9                # t/b below this is zero thickness (avoids overflow)
 OFFSET_RATIO_LIMIT = 2.0   # beyond this the averaging approximation loses accuracy (see tests)
 
 
-def _k_ratio(k):
-    """K(k)/K(k') with k' = sqrt(1-k^2), using scipy's parameter m = k^2."""
-    k = np.asarray(k, dtype=float)
-    m = k * k
-    return ellipk(m) / ellipk(1.0 - m)
+def _k_ratio(m, m1):
+    """K(k)/K(k') from m = k^2 and m1 = k'^2 = 1 - m, both given accurately.
+
+    scipy's ellipkm1(p) = K(1 - p), so K(m) = ellipkm1(m1) keeps full precision when
+    m is within rounding of 1 (very wide or very narrow strips).
+    """
+    return ellipkm1(np.asarray(m1, dtype=float)) / ellipkm1(np.asarray(m, dtype=float))
 
 
 def cohn_stripline_z0_air(w, b):
     """Exact zero-thickness centred stripline in air (Cohn 1954)."""
     x = PI * np.asarray(w, dtype=float) / (2.0 * np.asarray(b, dtype=float))
-    k = 1.0 / np.cosh(x)
-    return ETA_30PI * _k_ratio(k)
+    sech2 = 1.0 / np.cosh(x) ** 2
+    return ETA_30PI * _k_ratio(sech2, np.tanh(x) ** 2)
 
 
 def wheeler_stripline_z0_air(w, b, t):
@@ -56,7 +59,7 @@ def wheeler_stripline_z0_air(w, b, t):
     m = 2.0 / (1.0 + 2.0 / 3.0 * x / (1.0 - x))
     with np.errstate(divide="ignore", invalid="ignore"):
         dw = np.where(
-            x > 0,
+            x > THIN,
             x / (PI * (1.0 - x)) * (1.0 - 0.5 * np.log((x / (2.0 - x)) ** 2
                                                        + (0.0796 * x / (w / b + 1.1 * x)) ** m)),
             0.0,
@@ -75,7 +78,7 @@ def _cohn_thick_cf(t_over_b):
     """Cohn's fringing term C_f(t/b) for thick strips (C_f(0) = 2 ln 2)."""
     x = np.asarray(t_over_b, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
-        tail = np.where(x > 0, x * np.log(x * (2.0 - x) / (1.0 - x) ** 2), 0.0)
+        tail = np.where(x > THIN, x * np.log(x * (2.0 - x) / (1.0 - x) ** 2), 0.0)
     return 2.0 * np.log((2.0 - x) / (1.0 - x)) - tail
 
 
@@ -93,12 +96,14 @@ def cohn_coupled_stripline_air(w, b, t, s):
     Returns (z_even_air, z_odd_air).
     """
     w, b, t, s = (np.asarray(v, dtype=float) for v in (w, b, t, s))
-    a1 = np.tanh(PI * w / (2.0 * b))
-    a2 = np.tanh(PI * (w + s) / (2.0 * b))
-    ke = a1 * a2
-    ko = a1 / a2
-    ze0 = ETA_30PI / _k_ratio(ke)
-    zo0 = ETA_30PI / _k_ratio(ko)
+    x1 = PI * w / (2.0 * b)
+    x2 = PI * (w + s) / (2.0 * b)
+    t1, t2 = np.tanh(x1) ** 2, np.tanh(x2) ** 2
+    s1, s2 = 1.0 / np.cosh(x1) ** 2, 1.0 / np.cosh(x2) ** 2
+    ke2, ke2c = t1 * t2, s1 + t1 * s2                 # k_e^2 and 1 - k_e^2
+    ko2, ko2c = t1 / t2, (s1 - s2) / t2               # k_o^2 and 1 - k_o^2
+    ze0 = ETA_30PI / _k_ratio(ke2, ke2c)
+    zo0 = ETA_30PI / _k_ratio(ko2, ko2c)
     ze = ze0 * _cohn_thick_mode_air(w, b, t, s, False) / _cohn_thick_mode_air(w, b, 0.0 * t, s, False)
     zo = zo0 * _cohn_thick_mode_air(w, b, t, s, True) / _cohn_thick_mode_air(w, b, 0.0 * t, s, True)
     return ze, zo
