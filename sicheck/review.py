@@ -272,49 +272,50 @@ def _findings(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs, results, 
             out.append(Finding(rule, s, net, layer, msg, row))
 
     classes = {c.name: c for c in rules.classes}
-    seen_pairs: set = set()
     cls_names = seg["net_class"].to_numpy()
-    for i in range(len(seg)):
-        cls = classes.get(cls_names[i])
-        if cls is None:
-            continue
-        tol = rules.tolerance_for(cls)
+    z0_t = np.array([getattr(classes.get(n), "z0", None) or np.nan for n in cls_names], dtype=float)
+    zd_t = np.array([getattr(classes.get(n), "zdiff", None) or np.nan for n in cls_names], dtype=float)
+    tol = np.array([rules.tolerance_for(classes.get(n)) for n in cls_names], dtype=float)
+    is_pair = (seg["pair"] != "").to_numpy()
+    with np.errstate(invalid="ignore"):
+        err_se = (seg["z0"].to_numpy() - z0_t) / z0_t * 100.0
+        err_df = (seg["zdiff"].to_numpy() - zd_t) / zd_t * 100.0
+    miss_se = ~is_pair & (np.abs(err_se) > tol)
+    miss_df = is_pair & (np.abs(err_df) > tol)
+    seen_pairs: set = set()
+    for i in np.nonzero(miss_se | miss_df)[0]:
         net, layer, row = seg["net"].iat[i], seg["layer"].iat[i], int(seg["row"].iat[i])
-        if seg["pair"].iat[i]:
-            key = (frozenset((net, seg["pair"].iat[i])), layer, seg["width"].iat[i], seg["gap"].iat[i])
-            if cls.zdiff is not None and key not in seen_pairs:
-                seen_pairs.add(key)
-                z = seg["zdiff"].iat[i]
-                err = (z - cls.zdiff) / cls.zdiff * 100.0
-                if abs(err) > tol:
-                    add("zdiff-target", f"{net}/{seg['pair'].iat[i]}", layer,
-                        f"Zdiff {z:.1f} ohm on {layer} (w {seg['width'].iat[i] * 1e3:.3f} mm, gap "
-                        f"{seg['gap'].iat[i] * 1e3:.3f} mm) misses the {cls.name} target {cls.zdiff:g} ohm "
-                        f"+/-{tol:g} % by {err:+.1f} %", row)
-        elif cls.z0 is not None:
-            z = seg["z0"].iat[i]
-            err = (z - cls.z0) / cls.z0 * 100.0
-            if abs(err) > tol:
-                add("z0-target", net, layer,
-                    f"Z0 {z:.1f} ohm on {layer} (w {seg['width'].iat[i] * 1e3:.3f} mm) misses the {cls.name} "
-                    f"target {cls.z0:g} ohm +/-{tol:g} % by {err:+.1f} %", row)
+        cname = cls_names[i]
+        if miss_df[i]:
+            partner = seg["pair"].iat[i]
+            key = (frozenset((net, partner)), layer, seg["width"].iat[i], seg["gap"].iat[i])
+            if key in seen_pairs:          # the pair listed on both nets: report it once
+                continue
+            seen_pairs.add(key)
+            add("zdiff-target", f"{net}/{partner}", layer,
+                f"Zdiff {seg['zdiff'].iat[i]:.1f} ohm on {layer} (w {seg['width'].iat[i] * 1e3:.3f} mm, gap "
+                f"{seg['gap'].iat[i] * 1e3:.3f} mm) misses the {cname} target {zd_t[i]:g} ohm "
+                f"+/-{tol[i]:g} % by {err_df[i]:+.1f} %", row)
+        else:
+            add("z0-target", net, layer,
+                f"Z0 {seg['z0'].iat[i]:.1f} ohm on {layer} (w {seg['width'].iat[i] * 1e3:.3f} mm) misses the "
+                f"{cname} target {z0_t[i]:g} ohm +/-{tol[i]:g} % by {err_se[i]:+.1f} %", row)
 
     # impedance steps along a net (layer changes)
-    zsig = np.where(seg["pair"] != "", seg["zdiff"], seg["z0"])
+    zsig = np.where(is_pair, seg["zdiff"], seg["z0"])
     tmp = pd.DataFrame({"net": seg["net"], "z": zsig, "layer": seg["layer"]})
-    for net, grp in tmp.groupby("net", sort=False):
-        if len(grp) < 2:
-            continue
-        zmin, zmax = grp["z"].min(), grp["z"].max()
-        step = (zmax - zmin) / zmin * 100.0
-        if step > rules.z_step_pct:
-            lo_l = grp["layer"].iloc[int(np.argmin(grp["z"].to_numpy()))]
-            hi_l = grp["layer"].iloc[int(np.argmax(grp["z"].to_numpy()))]
-            add("z-step", net, f"{lo_l}/{hi_l}",
-                f"impedance changes {step:.0f} % along the net ({zmin:.1f} ohm on {lo_l} to {zmax:.1f} ohm on "
-                f"{hi_l}): each step reflects part of the edge")
+    g = tmp.groupby("net", sort=False)["z"]
+    stats = pd.DataFrame({"lo": g.min(), "hi": g.max(), "lo_at": g.idxmin(), "hi_at": g.idxmax()})
+    stats = stats[(stats["hi"] - stats["lo"]) / stats["lo"] * 100.0 > rules.z_step_pct]
+    for net, r in stats.iterrows():
+        lo_l, hi_l = tmp["layer"].iat[int(r.lo_at)], tmp["layer"].iat[int(r.hi_at)]
+        step = (r.hi - r.lo) / r.lo * 100.0
+        add("z-step", net, f"{lo_l}/{hi_l}",
+            f"impedance changes {step:.0f} % along the net ({r.lo:.1f} ohm on {lo_l} to {r.hi:.1f} ohm on "
+            f"{hi_l}): each step reflects part of the edge")
 
     done_pairs: set = set()
+    untargeted: dict[str, list[str]] = {}
     for r in nets.sort_values("delay", ascending=False).itertuples(index=False):
         cls = classes.get(r.net_class)
         if r.termination == electrical.NOT_NEEDED:
@@ -324,17 +325,20 @@ def _findings(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs, results, 
             if key in done_pairs:
                 continue
             done_pairs.add(key)
+        label = f"{r.net}/{r.pair}" if r.pair else r.net
         msg = (f"one-way delay {_fmt_ps(r.delay)} is {r.td_over_tr:.2f} x the {_fmt_ps(r.rise_time)} rise time "
                f"(critical length {r.critical_length * 1e3:.1f} mm on its layers, net is {r.length * 1e3:.1f} mm): "
-               f"treat as a transmission line; termination {r.termination}")
-        label = f"{r.net}/{r.pair}" if r.pair else r.net
+               f"transmission line, termination {r.termination}")
+        if r.advice:
+            msg += f". Proposal: {r.advice}"
         add("electrical-length", label, r.layers, msg,
             severity=None if r.termination == electrical.REQUIRED else "info")
-        if r.advice:
-            add("termination", label, r.layers, r.advice)
         if cls is None or (cls.z0 is None and cls.zdiff is None):
-            add("no-target", label, r.layers, f"transmission-line net with no impedance target in its class "
-                                              f"('{r.net_class or 'none'}'): set z0 or zdiff for it")
+            untargeted.setdefault(r.net_class or "none", []).append(label)
+    for cname, labels in untargeted.items():
+        shown = ", ".join(labels[:5]) + (f" and {len(labels) - 5} more" if len(labels) > 5 else "")
+        add("no-target", shown, "", f"{len(labels)} transmission-line net(s) in class '{cname}' have no "
+                                    f"impedance target: set z0 or zdiff for the class")
 
     for i, (x, res) in enumerate(zip(xs, results)):
         if not res.warnings:

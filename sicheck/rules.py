@@ -37,10 +37,10 @@ CHECKS = (
     Check("z0-target", "error", "single-ended Z0 of each segment within the net class's target +/- tolerance"),
     Check("zdiff-target", "error", "differential Zdiff of each pair segment within the class target +/- tolerance"),
     Check("electrical-length", "warning", "one-way delay against rise time: a net that must be treated and "
-                                          "terminated as a transmission line (info when only recommended)"),
-    Check("termination", "info", "proposed termination part and value for each net that needs one"),
+                                          "terminated as a transmission line, with the proposed part and value "
+                                          "(info when termination is only recommended)"),
     Check("z-step", "warning", "impedance step between a net's segments (layer change) larger than z_step_pct"),
-    Check("no-target", "info", "transmission-line net whose class sets no impedance target"),
+    Check("no-target", "info", "transmission-line nets whose class sets no impedance target (one per class)"),
     Check("model-accuracy", "warning", "closed-form model used outside its stated accuracy range"),
 )
 CHECK_IDS = {c.id for c in CHECKS}

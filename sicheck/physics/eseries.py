@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
+from functools import lru_cache
 
 # IEC 60063 E-series mantissas (E24 includes the historical 2.7, 3.0, 3.3, ... set).
 E6 = (1.0, 1.5, 2.2, 3.3, 4.7, 6.8)
@@ -14,14 +14,15 @@ E24 = (1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0,
 SERIES = {"E6": E6, "E12": E12, "E24": E24}
 
 
+@lru_cache(maxsize=65536)
 def nearest(value: float, series: str = "E24") -> float:
     """The series value nearest to ``value`` on a logarithmic scale."""
     if not value > 0 or not math.isfinite(value):
         raise ValueError(f"no preferred value for {value!r}")
     mant = SERIES[series]
     decade = math.floor(math.log10(value))
-    candidates = np.array([m * 10.0**d for d in (decade - 1, decade, decade + 1) for m in mant])
-    best = candidates[np.argmin(np.abs(np.log(candidates / value)))]
+    candidates = [m * 10.0**d for d in (decade - 1, decade, decade + 1) for m in mant]
+    best = min(candidates, key=lambda c: abs(math.log(c / value)))
     return float(round(best, 12 - decade))
 
 

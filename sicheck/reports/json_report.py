@@ -97,4 +97,4 @@ def review_dict(rv: Review) -> dict:
 
 
 def review_json(rv: Review) -> str:
-    return json.dumps(review_dict(rv), indent=1, ensure_ascii=False, allow_nan=False)
+    return json.dumps(review_dict(rv), ensure_ascii=False, allow_nan=False, separators=(",", ":"))

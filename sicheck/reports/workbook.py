@@ -23,6 +23,7 @@ from sicheck.reports.atomic import atomic_path
 from sicheck.review import Review
 
 FORMULA_START = ("=", "+", "-", "@")
+FORMULA_CHARS = "=+-@"
 SEVERITY_FILL = {
     "error": PatternFill("solid", fgColor="F4C7C3"),
     "warning": PatternFill("solid", fgColor="FCE8B2"),
@@ -82,19 +83,33 @@ class _Sheet:
         self.ws.append(cells)
 
     def row(self, values: list, fill: PatternFill | None = None, fill_cols: tuple[int, ...] = ()):
+        ws = self.ws
         out = []
         for j, v in enumerate(values):
             fmt = self.formats[j]
-            v = _value(self.ws, v)
-            if (fmt and isinstance(v, (int, float))) or (fill is not None and j in fill_cols):
-                c = v if isinstance(v, Cell) else WriteOnlyCell(self.ws, value=v)
-                if fmt and isinstance(v, (int, float)):
+            if v is None:
+                out.append(None)
+                continue
+            if isinstance(v, str):
+                c = safe_text(ws, v) if v and v[0] in FORMULA_CHARS else v
+            elif isinstance(v, (bool, np.bool_)):
+                c = bool(v)
+            else:
+                f = float(v)
+                if not math.isfinite(f):
+                    out.append(None)
+                    continue
+                if fmt:
+                    c = WriteOnlyCell(ws, value=f)
                     c.number_format = fmt
-                if fill is not None and j in fill_cols:
-                    c.fill = fill
-                v = c
-            out.append(v)
-        self.ws.append(out)
+                else:
+                    c = f
+            if fill is not None and j in fill_cols:
+                if not isinstance(c, Cell):
+                    c = WriteOnlyCell(ws, value=c)
+                c.fill = fill
+            out.append(c)
+        ws.append(out)
         self.rows += 1
 
     def finish(self):
