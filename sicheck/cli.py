@@ -41,17 +41,38 @@ def _root(version: bool = typer.Option(False, "--version", callback=_version_cal
     pass
 
 
-def _solver_fn(name: str, no_cache: bool = False, progress=None):
+SOLVERS = ("auto", "formula", "field")
+
+
+def _solver_fn(name: str, no_cache: bool = False, show_progress: bool = True):
+    """The function that solves a list of unique cross-sections for the chosen solver."""
     from sicheck.errors import InputError
     from sicheck.physics.formula import solve_formula
+    if name not in SOLVERS:
+        raise InputError(f"--solver must be one of {', '.join(SOLVERS)} (got '{name}')")
     if name == "formula":
         return solve_formula
-    raise InputError(f"--solver must be 'formula' (got '{name}')")
+
+    def field(xs_list):
+        from sicheck.field_solve import AUTO_FIELD_LIMIT, solve_field_all
+        if name == "auto" and len(xs_list) > AUTO_FIELD_LIMIT:
+            _err_console().print(f"{len(xs_list)} unique cross-sections: more than {AUTO_FIELD_LIMIT}, so 'auto' "
+                                 "uses the closed forms (use --solver field to force the field solver)")
+            return solve_formula(xs_list)
+        if not show_progress:
+            return solve_field_all(xs_list, use_cache=not no_cache)
+        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+        with Progress(TextColumn("field-solving cross-sections"), BarColumn(), MofNCompleteColumn(),
+                      TimeElapsedColumn(), console=_err_console(), transient=True) as bar:
+            task = bar.add_task("solve", total=len(xs_list))
+            return solve_field_all(xs_list, use_cache=not no_cache,
+                                   progress=lambda done, total: bar.update(task, completed=done))
+    return field
 
 
 def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path | None, json_out: Path | None,
                solver: str, units: list[str] | None, maps: list[str] | None, sheet: str | None,
-               quiet: bool = False) -> int:
+               quiet: bool = False, no_cache: bool = False) -> int:
     from rich.console import Console
 
     from sicheck.errors import InputError
@@ -80,7 +101,7 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
     aliases = dict(rs.columns)
     aliases.update(parse_map_option(maps))
     tl = read_traces(traces, parse_units_option(units), aliases, sheet)
-    rv = build_review(tl, st, rs, _solver_fn(solver), solver)
+    rv = build_review(tl, st, rs, _solver_fn(solver, no_cache, not quiet), solver)
     console = Console(highlight=False)
     if not quiet:
         print_summary(rv, console)
@@ -116,27 +137,32 @@ def review(
                                                     "Default: the shipped rules."),
     out: Optional[Path] = typer.Option(None, "--out", "-o", help="Review workbook to write (.xlsx)."),
     json_out: Optional[Path] = typer.Option(None, "--json", help="JSON results to write."),
-    solver: str = typer.Option("formula", "--solver", help="Impedance solver: formula."),
+    solver: str = typer.Option("auto", "--solver", help="auto (field solver, closed forms beside it; closed "
+                                                        "forms alone for very many cross-sections), field or "
+                                                        "formula."),
+    no_cache: bool = typer.Option(False, "--no-cache", help="Do not read or write the field-solver cache."),
     units: Optional[list[str]] = typer.Option(None, "--units", help="Unit for bare numbers, e.g. mm or ps "
                                                                      "(repeat or comma-separate)."),
     maps: Optional[list[str]] = typer.Option(None, "--map", help="Rename an export header: 'Net Name=net'."),
     sheet: Optional[str] = typer.Option(None, "--sheet", help="Worksheet of an .xlsx trace list."),
 ):
     """Review a board's trace list against its stackup; exit 1 when there are errors."""
-    raise typer.Exit(run_review(traces, stackup, rules, out, json_out, solver, units, maps, sheet))
+    raise typer.Exit(run_review(traces, stackup, rules, out, json_out, solver, units, maps, sheet,
+                                no_cache=no_cache))
 
 
 @app.command()
 def demo(
     out: Path = typer.Option(Path("sicheck-demo-review.xlsx"), "--out", "-o", help="Workbook to write."),
     json_out: Optional[Path] = typer.Option(None, "--json", help="Also write the JSON results here."),
-    solver: str = typer.Option("formula", "--solver", help="Impedance solver."),
+    solver: str = typer.Option("auto", "--solver", help="Impedance solver: auto, field or formula."),
+    no_cache: bool = typer.Option(False, "--no-cache", help="Do not use the field-solver cache."),
 ):
     """Review the bundled demo board and write its workbook in the current folder."""
     from sicheck.resources import default_rules_path, demo_dir
     d = demo_dir()
     code = run_review(d / "traces.csv", d / "stackup.toml", [default_rules_path(), d / "rules.toml"], out,
-                      json_out, solver, None, None, None)
+                      json_out, solver, None, None, None, no_cache=no_cache)
     # The demo board breaks some rules on purpose: its findings are the point, not a failure.
     raise typer.Exit(0 if code in (0, 1) else code)
 
@@ -200,14 +226,19 @@ def line(
     mask: Optional[str] = typer.Option(None, "--mask", help="Microstrip: conformal solder-mask thickness."),
     mask_er: Optional[float] = typer.Option(None, "--mask-er", help="Solder-mask er."),
     length: Optional[str] = typer.Option(None, "--length", help="Line length, for its delay."),
-    solver: str = typer.Option("formula", "--solver", help="formula"),
+    etch_factor: Optional[float] = typer.Option(None, "--etch-factor", help="Trapezoidal etch: thickness over "
+                                                                             "one side's undercut."),
+    top_width: Optional[str] = typer.Option(None, "--top-width", help="Trapezoidal etch: width of the top face."),
+    solver: str = typer.Option("formula", "--solver", help="formula (closed form) or field (2D field solver)."),
+    plot: Optional[Path] = typer.Option(None, "--plot", help="Draw the cross-section and its equipotentials "
+                                                             "(PNG)."),
     units: str = typer.Option("mm", "--units", help="Unit for bare numbers (mm, um, mil, in)."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object on standard output."),
 ):
     """Impedance, delay and L/C of one cross-section."""
     from sicheck.line_cmd import run_line
     run_line(kind.value, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er,
-             length, solver, units, as_json)
+             length, solver, units, as_json, etch_factor=etch_factor, top_width=top_width, plot=plot)
 
 
 def main(argv: list[str] | None = None) -> None:

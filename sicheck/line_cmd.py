@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import sys
+from dataclasses import replace
 
 from sicheck.errors import InputError
 from sicheck.physics.cross_section import CrossSection, Stratum
@@ -30,7 +31,29 @@ def _er(value: float | None, option: str) -> float | None:
 
 
 def build_cross_section(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask,
-                        mask_er, units) -> CrossSection:
+                        mask_er, units, etch_factor=None, top_width=None) -> CrossSection:
+    xs = _build(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er, units)
+    if etch_factor is not None and top_width is not None:
+        raise InputError("give --etch-factor or --top-width, not both")
+    if etch_factor is not None:
+        if not etch_factor > 0:
+            raise InputError("--etch-factor must be positive")
+        if xs.thickness <= 0:
+            raise InputError("--etch-factor needs a thickness above zero")
+        tw = xs.width - 2.0 * xs.thickness / etch_factor
+        if tw <= 0:
+            raise InputError("--etch-factor leaves no top face: the undercut exceeds half the width")
+        xs = replace(xs, top_width=tw)
+    if top_width is not None:
+        tw = _len(top_width, "--top-width", units)
+        if tw > xs.width:
+            raise InputError("--top-width is wider than --width (the bottom face)")
+        xs = replace(xs, top_width=tw)
+    return xs
+
+
+def _build(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask,
+           mask_er, units) -> CrossSection:
     from sicheck.units import LENGTH
     if units not in LENGTH:
         raise InputError(f"--units must be a length unit such as mm, um, mil or in (got '{units}')")
@@ -95,26 +118,53 @@ def line_dict(xs: CrossSection, r: LineResult, length: float | None, units: str)
         out["uncertainty_pct"] = r.uncertainty_pct
     if r.solve_s is not None:
         out["solve_s"] = r.solve_s
+    if r.model.startswith("field"):
+        out["formula_z0_ohm"] = r.formula_z0
+        if xs.coupled:
+            out["formula_zdiff_ohm"] = r.formula_zdiff
+        if r.c_matrix is not None:
+            out["c_matrix_pf_per_mm"] = [[v * 1e9 for v in row] for row in r.c_matrix]
+            out["l_matrix_nh_per_mm"] = [[v * 1e6 for v in row] for row in r.l_matrix]
+    if xs.top_width is not None:
+        out["top_width_mm"] = xs.top_width * 1e3
     if length is not None:
         out["length_mm"] = length * 1e3
         out["delay_ps"] = d * length * 1e12
     return out
 
 
+def solve_formula_name(xs: CrossSection) -> str:
+    from sicheck.physics.formula import solve_formula
+    return solve_formula([xs])[0].model
+
+
 def solve_one(xs: CrossSection, solver: str) -> LineResult:
+    from sicheck.physics.formula import solve_formula
     if solver == "formula":
-        from sicheck.physics.formula import solve_formula
         return solve_formula([xs])[0]
-    raise InputError(f"--solver must be 'formula' (got '{solver}')")
+    if solver == "field":
+        from sicheck.physics.field2d import solve_field
+        r = solve_field(xs)
+        f = solve_formula([xs])[0]
+        r.formula_z0, r.formula_zdiff, r.formula_warnings = f.z0, f.zdiff, f.warnings
+        return r
+    raise InputError(f"--solver must be 'formula' or 'field' (got '{solver}')")
 
 
 def run_line(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er, length,
-             solver, units, as_json) -> None:
+             solver, units, as_json, etch_factor=None, top_width=None, plot=None) -> None:
     xs = build_cross_section(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask,
-                             mask_er, units)
+                             mask_er, units, etch_factor, top_width)
+    if plot is not None:
+        from sicheck.reports.atomic import refuse_inputs
+        refuse_inputs(plot, [], "--plot")
     ln = _len(length, "--length", units)
     r = solve_one(xs, solver)
     d = line_dict(xs, r, ln, units)
+    if plot is not None:
+        from sicheck.reports.plots import plot_cross_section
+        plot_cross_section(xs, r, plot)
+        d["plot"] = str(plot)
     if as_json:
         sys.stdout.write(json.dumps(d) + "\n")
         for w in r.warnings:
@@ -135,7 +185,13 @@ def run_line(kind, width, thickness, er, height, below, above, er_below, er_abov
         rows.append(("uncertainty", f"{d['uncertainty_pct']:.3f} %"))
     if "delay_ps" in d:
         rows.append((f"delay over {d['length_mm']:g} mm", f"{d['delay_ps']:.1f} ps"))
+    if r.model.startswith("field"):
+        rows.append(("closed form", f"{(r.formula_zdiff if xs.coupled else r.formula_z0):.2f} ohm "
+                                    f"({'Zdiff' if xs.coupled else 'Z0'}, {solve_formula_name(xs)})"))
+        rows.append(("solve time", f"{r.solve_s:.2f} s"))
     for k, v in rows:
         con.print(f"  {k:<18} {v}")
+    if plot is not None:
+        con.print(f"  plot: {plot}")
     for w in r.warnings:
         con.print(f"  [yellow]warning:[/] {w}")

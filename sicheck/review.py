@@ -341,12 +341,27 @@ def _findings(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs, results, 
                                     f"impedance target: set z0 or zdiff for the class")
 
     for i, (x, res) in enumerate(zip(xs, results)):
-        if not res.warnings:
+        field_solved = res.model.startswith("field")
+        notes = list(res.warnings)
+        diff = None
+        if field_solved:
+            z_f, z_ref = (res.formula_zdiff, res.zdiff) if x.coupled else (res.formula_z0, res.z0)
+            if z_f is not None and z_ref:
+                diff = (z_f - z_ref) / z_ref * 100.0
+        if not notes and (diff is None or abs(diff) <= rules.formula_field_pct):
             continue
         rows = seg.index[seg["xs"] == i]
         nets_here = seg.loc[rows, "net"].unique()
         label = ", ".join(nets_here[:3]) + (f" and {len(nets_here) - 3} more" if len(nets_here) > 3 else "")
         layer = seg.loc[rows[0], "layer"]
-        for w in res.warnings:
+        for w in notes:
             add("model-accuracy", label, layer, f"{res.model}: {w}")
+        if diff is not None and abs(diff) > rules.formula_field_pct:
+            what = "Zdiff" if x.coupled else "Z0"
+            z_ref = res.zdiff if x.coupled else res.z0
+            z_f = res.formula_zdiff if x.coupled else res.formula_z0
+            why = "; ".join(res.formula_warnings) or "closed-form approximation"
+            add("formula-vs-field", label, layer,
+                f"{what}: field solution {z_ref:.1f} ohm (+/-{res.uncertainty_pct:.2f} %) vs closed form "
+                f"{z_f:.1f} ohm ({diff:+.1f} %); the field value is reported ({why})")
     return out

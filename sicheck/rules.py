@@ -41,7 +41,9 @@ CHECKS = (
                                           "(info when termination is only recommended)"),
     Check("z-step", "warning", "impedance step between a net's segments (layer change) larger than z_step_pct"),
     Check("no-target", "info", "transmission-line nets whose class sets no impedance target (one per class)"),
-    Check("model-accuracy", "warning", "closed-form model used outside its stated accuracy range"),
+    Check("model-accuracy", "warning", "closed-form model used outside its stated accuracy range, or a field "
+                                       "solution whose uncertainty is above its target"),
+    Check("formula-vs-field", "warning", "closed form and field solution differ by more than formula_field_pct"),
 )
 CHECK_IDS = {c.id for c in CHECKS}
 

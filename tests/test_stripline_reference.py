@@ -9,19 +9,23 @@ from sicheck.physics.line_result import per_length
 from sicheck.physics.stripline import coupled_stripline, stripline
 
 
+ETA0 = 1.25663706212e-6 * 299792458.0   # mu0 c with CODATA 2018 mu0 and exact c
+
+
 def cohn_exact(w, b, er):
-    # Cohn (1954): Z0 = 30 pi / sqrt(er) * K(k)/K(k'), k = sech(pi w / 2b). scipy takes m = k^2.
+    # Cohn (1954): Z0 = eta0/(4 sqrt(er)) * K(k)/K(k'), k = sech(pi w / 2b); Cohn writes eta0/4 as 30 pi.
+    # scipy's ellipk takes the parameter m = k^2.
     k = 1 / np.cosh(np.pi * w / (2 * b))
-    return 30 * np.pi / np.sqrt(er) * ellipk(k**2) / ellipk(1 - k**2)
+    return ETA0 / 4 / np.sqrt(er) * ellipk(k**2) / ellipk(1 - k**2)
 
 
 def cohn_coupled_exact(w, s, b, er):
     # Cohn (1955): k_e = tanh(pi w/2b) tanh(pi(w+s)/2b), k_o = tanh(pi w/2b) coth(pi(w+s)/2b),
-    # Z = 30 pi / sqrt(er) * K(k')/K(k).
+    # Z = eta0/(4 sqrt(er)) * K(k')/K(k).
     a, c = np.tanh(np.pi * w / (2 * b)), np.tanh(np.pi * (w + s) / (2 * b))
     out = []
     for k in (a * c, a / c):
-        out.append(30 * np.pi / np.sqrt(er) * ellipk(1 - k**2) / ellipk(k**2))
+        out.append(ETA0 / 4 / np.sqrt(er) * ellipk(1 - k**2) / ellipk(k**2))
     return tuple(out)
 
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from sicheck.physics import coupled_microstrip, microstrip, stripline
+from sicheck.physics import cover
 from sicheck.physics.cover import covered_eps_eff
 from sicheck.physics.cross_section import CrossSection, series_er
 from sicheck.physics.line_result import LineResult
@@ -55,6 +56,9 @@ def _microstrip(xs: list[CrossSection]) -> list[LineResult]:
             r.warnings.append("stratified substrate: closed form uses one equivalent er (series average)")
         if len(x.above) > 1 or (x.above and not x.above[0].conformal):
             r.warnings.append("embedded/multi-layer cover: closed-form cover correction is approximate")
+        elif x.above and not (cover.FIT_RANGE["w/h"][0] <= w[i] / h[i] <= cover.FIT_RANGE["w/h"][1]
+                              and cover.FIT_RANGE["c/h"][0] <= c[i] / h[i] <= cover.FIT_RANGE["c/h"][1]):
+            r.warnings.append("mask correction used outside the range it was fitted on")
     return out
 
 
@@ -87,5 +91,8 @@ def solve_formula(xs: list[CrossSection]) -> list[LineResult]:
         idx = [i for i, x in enumerate(xs) if x.kind == kind]
         if idx:
             for i, r in zip(idx, fn([xs[i] for i in idx])):
+                if xs[i].top_width is not None and xs[i].top_width != xs[i].width:
+                    r.warnings.append("trapezoidal etch: closed form uses the mean width")
+                r.formula_warnings = list(r.warnings)
                 results[i] = r
     return results  # type: ignore[return-value]

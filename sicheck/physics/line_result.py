@@ -35,6 +35,10 @@ class LineResult:
     warnings: list[str] = field(default_factory=list)
     formula_z0: float | None = None     # closed-form value beside a field value
     formula_zdiff: float | None = None
+    c_matrix: list | None = None        # pairs, field solver: 2x2 Maxwell capacitance matrix, F/m
+    l_matrix: list | None = None        # pairs, field solver: 2x2 inductance matrix, H/m
+    levels: int | None = None           # field solver: grid levels used
+    formula_warnings: list[str] = field(default_factory=list)   # the closed form's range warnings
 
     @property
     def coupled(self) -> bool:

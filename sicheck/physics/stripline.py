@@ -2,7 +2,7 @@
 
 Single strip, zero thickness, centred: exact conformal mapping,
     S. B. Cohn, "Characteristic impedance of the shielded-strip transmission line",
-    IRE Trans. MTT 2, 1954, pp. 52-57:  Z0 = (30 pi / sqrt(er)) K(k)/K(k'),
+    IRE Trans. MTT 2, 1954, pp. 52-57:  Z0 = (eta0 / (4 sqrt(er))) K(k)/K(k'),
     k = sech(pi w / 2b), k' = tanh(pi w / 2b).
 Finite thickness: Wheeler's formula,
     H. A. Wheeler, "Transmission-line properties of a strip line between parallel
@@ -27,9 +27,10 @@ from __future__ import annotations
 import numpy as np
 from scipy.special import ellipkm1
 
-from sicheck.physics.constants import C0, PI
+from sicheck.physics.constants import C0, ETA0, PI
 
-ETA_30PI = 30.0 * PI
+# Cohn writes 30 pi for eta0/4 (eta0 ~ 120 pi); the exact factor is eta0/4, 0.07 % smaller.
+ETA_30PI = ETA0 / 4.0
 COHN_THICK_MIN_W_OVER_B = 0.35
 WHEELER_MAX_W_OVER_B = 10.0
 THIN = 1e-9                # t/b below this is zero thickness (avoids overflow)

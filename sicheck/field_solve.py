@@ -1,0 +1,114 @@
+"""Field-solving a board's cross-sections: disk cache, both cores, progress.
+
+The physics is in sicheck.physics.field2d; this module only decides what to solve,
+where results are kept and how work is spread. The cache lives in
+$SICHECK_CACHE_DIR, else $XDG_CACHE_HOME/sicheck, else ~/.cache/sicheck, one JSON file
+per cross-section keyed by a hash of its exact geometry and the solver settings.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+import os
+from concurrent.futures import ProcessPoolExecutor
+from pathlib import Path
+from typing import Callable
+
+from sicheck.physics import field2d
+from sicheck.physics.cross_section import CrossSection
+from sicheck.physics.formula import solve_formula
+from sicheck.physics.line_result import LineResult
+
+SOLVER_VERSION = "field2d-1"
+AUTO_FIELD_LIMIT = 400      # 'auto' field-solves boards with up to this many unique cross-sections
+_FIELDS = ("z0", "eps_eff", "model", "z_even", "z_odd", "eps_even", "eps_odd", "uncertainty_pct", "solve_s",
+           "warnings", "c_matrix", "l_matrix", "levels")
+
+
+def cache_dir() -> Path:
+    if os.environ.get("SICHECK_CACHE_DIR"):
+        return Path(os.environ["SICHECK_CACHE_DIR"])
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "sicheck"
+
+
+def cache_key(xs: CrossSection, target_pct: float) -> str:
+    payload = json.dumps({"xs": dataclasses.asdict(xs), "v": SOLVER_VERSION, "target": target_pct},
+                         sort_keys=True)
+    return hashlib.sha256(payload.encode()).hexdigest()[:32]
+
+
+def _to_json(r: LineResult) -> dict:
+    return {k: getattr(r, k) for k in _FIELDS}
+
+
+def _from_json(d: dict) -> LineResult:
+    return LineResult(**{k: d.get(k) for k in _FIELDS if k != "warnings"}, warnings=list(d.get("warnings") or []))
+
+
+def _load(path: Path) -> LineResult | None:
+    try:
+        return _from_json(json.loads(path.read_text()))
+    except (OSError, ValueError, TypeError):
+        return None     # missing or damaged entry: solve again
+
+
+def _store(path: Path, r: LineResult) -> None:
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        tmp = path.with_suffix(f".{os.getpid()}.tmp")
+        tmp.write_text(json.dumps(_to_json(r)))
+        os.replace(tmp, path)
+    except OSError:
+        pass            # a read-only cache only costs time
+
+
+def _solve_one(args) -> LineResult:
+    xs, target = args
+    return field2d.solve_field(xs, target)
+
+
+def solve_field_all(xs_list: list[CrossSection], target_pct: float = field2d.DEFAULT_TARGET_PCT,
+                    use_cache: bool = True, progress: Callable[[int, int], None] | None = None,
+                    workers: int | None = None) -> list[LineResult]:
+    """Field results for each cross-section (same order), with the closed form beside them."""
+    formula = solve_formula(xs_list)
+    results: list[LineResult | None] = [None] * len(xs_list)
+    todo = []
+    cdir = cache_dir()
+    for i, xs in enumerate(xs_list):
+        if use_cache:
+            hit = _load(cdir / f"{cache_key(xs, target_pct)}.json")
+            if hit is not None:
+                results[i] = hit
+                continue
+        todo.append(i)
+    done = len(xs_list) - len(todo)
+    if progress:
+        progress(done, len(xs_list))
+    n_workers = workers if workers is not None else min(os.cpu_count() or 1, 4)
+    if len(todo) >= 3 and n_workers > 1:
+        with ProcessPoolExecutor(max_workers=n_workers) as pool:
+            for i, r in zip(todo, pool.map(_solve_one, [(xs_list[i], target_pct) for i in todo])):
+                results[i] = r
+                done += 1
+                if progress:
+                    progress(done, len(xs_list))
+    else:
+        for i in todo:
+            results[i] = _solve_one((xs_list[i], target_pct))
+            done += 1
+            if progress:
+                progress(done, len(xs_list))
+    for i in todo:
+        if use_cache:
+            _store(cdir / f"{cache_key(xs_list[i], target_pct)}.json", results[i])
+    out = []
+    for r, f in zip(results, formula):
+        r.formula_z0 = f.z0
+        r.formula_zdiff = f.zdiff
+        r.formula_warnings = f.warnings
+        out.append(r)
+    return out
