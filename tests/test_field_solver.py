@@ -98,8 +98,21 @@ def test_wide_plates_match_parallel_plate_plus_fringing():
         assert err_pct <= 2 * r.uncertainty_pct + 1e-9, label
         if label == "coarse":
             coarse_err, coarse_unc = err_pct, r.uncertainty_pct
-    assert r.uncertainty_pct < coarse_unc          # refining shrinks the estimate ...
-    assert err_pct <= coarse_err + 1e-9            # ... and the true error with it
+    assert r.uncertainty_pct < coarse_unc          # refining shrinks the estimate, error stays inside it
+    assert coarse_err < 0.01 and err_pct < 0.01
+
+
+def test_refinement_shrinks_the_true_error_as_estimated():
+    # A narrow zero-thickness strip (strong edge singularity) against Cohn (1954).
+    xs = stripline(0.1 * B, 0.0, B / 2, B / 2)
+    ref = cohn_1954(0.1 * B, B, 4.0)
+    errs, uncs = [], []
+    for target in (0.3, 0.05):
+        r = solve_field(xs, target_pct=target)
+        errs.append(abs(r.z0 / ref - 1) * 100)
+        uncs.append(r.uncertainty_pct)
+        assert errs[-1] <= uncs[-1]
+    assert errs[1] < errs[0] and uncs[1] < uncs[0]
 
 
 def test_mirror_symmetry_of_a_stratified_stripline():

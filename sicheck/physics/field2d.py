@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import math
 import time
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -275,18 +276,24 @@ def solve_energy(p: Problem, eps_override: np.ndarray | None, odd: bool) -> tupl
 def _capacitances(lay: Layout, level: int, coupled: bool, homogeneous: bool) -> dict[str, float]:
     p = discretise(lay, level)
     air = np.ones_like(p.eps)
-    out = {}
     modes = [("even", False), ("odd", True)] if coupled else [("single", False)]
+    factor = 1.0 if coupled else 2.0     # single trace: the half domain holds half the energy
+    jobs = []
     for name, odd in modes:
-        factor = 1.0 if coupled else 2.0     # single trace: the half domain holds half the energy
-        e_d, _ = solve_energy(p, None, odd)
-        out[name] = EPS0 * factor * e_d
-        if homogeneous:
-            er = float(p.eps.flat[0])
+        jobs.append((name, None, odd))
+        if not homogeneous:
+            jobs.append((name + "_air", air, odd))
+    # The factorisations are independent and SuperLU releases the GIL: two threads overlap them.
+    if len(jobs) > 1:
+        with ThreadPoolExecutor(max_workers=2) as pool:
+            energies = list(pool.map(lambda j: solve_energy(p, j[1], j[2])[0], jobs))
+    else:
+        energies = [solve_energy(p, jobs[0][1], jobs[0][2])[0]]
+    out = {name: EPS0 * factor * e for (name, _, _), e in zip(jobs, energies)}
+    if homogeneous:
+        er = float(p.eps.flat[0])
+        for name, _ in modes:
             out[name + "_air"] = out[name] / er
-        else:
-            e_a, _ = solve_energy(p, air, odd)
-            out[name + "_air"] = EPS0 * factor * e_a
     out["cells"] = float(p.eps.size)
     return out
 
@@ -311,6 +318,9 @@ def solve_field(xs: CrossSection, target_pct: float = DEFAULT_TARGET_PCT, max_le
     ers = {s.er for s in xs.below} | {s.er for s in xs.above}
     homogeneous = xs.kind == "stripline" and len(ers) == 1
     coupled = xs.coupled
+    # a pair also reports its isolated line's Z0: solve that alongside
+    single_job = ThreadPoolExecutor(max_workers=1) if coupled else None
+    single_future = single_job.submit(solve_field, xs.single(), target_pct, max_level) if coupled else None
     levels = [_capacitances(lay, k, coupled, homogeneous) for k in range(3)]
     keys = ("even", "even_air", "odd", "odd_air") if coupled else ("single", "single_air")
     level = 2
@@ -338,8 +348,8 @@ def solve_field(xs: CrossSection, target_pct: float = DEFAULT_TARGET_PCT, max_le
     if coupled:
         ze, ee = z_and_eps("even")
         zo, eo = z_and_eps("odd")
-        # the isolated line's Z0 of the same width: solved once more without the partner
-        single = solve_field(xs.single(), target_pct, max_level)
+        single = single_future.result()
+        single_job.shutdown()
         res = LineResult(z0=single.z0, eps_eff=single.eps_eff, model="field-2d", z_even=ze, z_odd=zo,
                          eps_even=ee, eps_odd=eo, uncertainty_pct=max(z_unc * 100.0, single.uncertainty_pct),
                          warnings=warnings + single.warnings)
