@@ -241,6 +241,29 @@ def line(
              length, solver, units, as_json, etch_factor=etch_factor, top_width=top_width, plot=plot)
 
 
+@app.command()
+def wave(
+    z0: list[str] = typer.Option(..., "--z0", help="Line impedance (repeat with --delay for a chain, driver end "
+                                                   "first)."),
+    delay: list[str] = typer.Option(..., "--delay", help="One-way delay of the line, e.g. 1ns."),
+    driver_ohm: str = typer.Option(..., "--driver-ohm", help="Driver output resistance."),
+    swing: str = typer.Option(..., "--swing", help="Driver swing, e.g. 3.3V."),
+    rise: str = typer.Option(..., "--rise", help="10-90 % rise time; the ramp is linear, 0-100 % in rise/0.8."),
+    series_ohm: Optional[str] = typer.Option(None, "--series-ohm", help="Series resistor at the driver."),
+    load_pf: Optional[str] = typer.Option(None, "--load-pf", help="Receiver input capacitance (pF)."),
+    end_ohm: Optional[str] = typer.Option(None, "--end-ohm", help="Termination resistor at the receiver."),
+    end_volts: Optional[str] = typer.Option(None, "--end-volts", help="Voltage the termination resistor goes to "
+                                                                      "(default 0 V)."),
+    end_cap: Optional[str] = typer.Option(None, "--end-cap", help="Capacitor in series with --end-ohm (an RC "
+                                                                  "termination to ground), pF."),
+    as_json: bool = typer.Option(False, "--json", help="Print one JSON object on standard output."),
+    plot: Optional[Path] = typer.Option(None, "--plot", help="Draw the waveforms (PNG)."),
+):
+    """Receiver waveform and its metrics for one line driven by a ramp."""
+    from sicheck.wave_cmd import run_wave
+    run_wave(z0, delay, driver_ohm, swing, rise, series_ohm, load_pf, end_ohm, end_volts, end_cap, as_json, plot)
+
+
 def main(argv: list[str] | None = None) -> None:
     """Entry point: maps InputError to exit 2 and keeps tracebacks away from users."""
     args = sys.argv[1:] if argv is None else argv

@@ -36,6 +36,7 @@ class Review:
     traces_source: str
     solver: str
     cross_sections: list[tuple[str, CrossSection, LineResult]] = field(default_factory=list)
+    waves: dict = field(default_factory=dict)     # net -> ((t, v) before, (t, v) after, v_final)
 
     @property
     def counts(self) -> dict[str, int]:
@@ -93,7 +94,7 @@ def _check_pairs(df: pd.DataFrame, src: str) -> None:
 
 
 def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solver = solve_formula,
-                 solver_name: str = "formula") -> Review:
+                 solver_name: str = "formula", waveforms: bool = True) -> Review:
     src = traces.source
     df = traces.frame.copy()
     # layers
@@ -150,11 +151,15 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
         mirror["mirrored"] = True
     all_seg = pd.concat([seg, mirror], ignore_index=True) if len(mirror) else seg
     nets = _net_table(all_seg, rules)
+    waves: dict = {}
+    if waveforms:
+        from sicheck.waveform_review import simulate_nets
+        nets, waves = simulate_nets(all_seg, nets, rules)
     findings = _findings(seg, nets, rules, xs, results, codes)
     findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
     return Review(segments=seg, nets=nets, findings=findings, stackup=stackup, rules=rules,
-                  traces_source=src, solver=solver_name, cross_sections=cs)
+                  traces_source=src, solver=solver_name, cross_sections=cs, waves=waves)
 
 
 def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataFrame:
@@ -329,12 +334,29 @@ def _findings(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs, results, 
         msg = (f"one-way delay {_fmt_ps(r.delay)} is {r.td_over_tr:.2f} x the {_fmt_ps(r.rise_time)} rise time "
                f"(critical length {r.critical_length * 1e3:.1f} mm on its layers, net is {r.length * 1e3:.1f} mm): "
                f"transmission line, termination {r.termination}")
-        if r.advice:
+        simulated = isinstance(getattr(r, "termination_part", ""), str) and getattr(r, "termination_part", "")
+        if simulated:
+            msg += (f". Simulated: {r.termination_part} (overshoot {r.before_overshoot_pct:.0f} % -> "
+                    f"{r.after_overshoot_pct:.0f} %, ringback {r.before_ringback_pct:.0f} % -> {r.after_ringback_pct:.0f} %, "
+                    f"settled {r.before_settle_ns:.2f} -> {r.after_settle_ns:.2f} ns)")
+            if r.waveform_assumptions:
+                msg += f"; {r.waveform_assumptions}"
+        elif r.advice:
             msg += f". Proposal: {r.advice}"
         add("electrical-length", label, r.layers, msg,
             severity=None if r.termination == electrical.REQUIRED else "info")
+        if simulated and r.waveform_meets_limits is False:
+            add("waveform", label, r.layers, f"no standard termination meets the limits; best found: "
+                                             f"{r.termination_part} ({r.waveform_violations})")
         if cls is None or (cls.z0 is None and cls.zdiff is None):
             untargeted.setdefault(r.net_class or "none", []).append(label)
+    if "termination_part" in nets.columns:
+        flagged = nets[nets["termination"] != electrical.NOT_NEEDED]
+        unsimulated = int((flagged["termination_part"] == "").sum())
+        if unsimulated:
+            add("waveform", f"{unsimulated} nets", "", f"the waveform check ran on the {rules.max_nets} longest of "
+                f"{len(flagged)} nets that need termination; the others keep the first-order advice "
+                "(raise [waveform] max_nets to simulate them all)", severity="info")
     for cname, labels in untargeted.items():
         shown = ", ".join(labels[:5]) + (f" and {len(labels) - 5} more" if len(labels) > 5 else "")
         add("no-target", shown, "", f"{len(labels)} transmission-line net(s) in class '{cname}' have no "

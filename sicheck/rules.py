@@ -44,6 +44,9 @@ CHECKS = (
     Check("model-accuracy", "warning", "closed-form model used outside its stated accuracy range, or a field "
                                        "solution whose uncertainty is above its target"),
     Check("formula-vs-field", "warning", "closed form and field solution differ by more than formula_field_pct"),
+    Check("waveform", "warning", "simulated receiver waveform of a net that needs termination: the proposed part, "
+                                 "with overshoot, ringback and settling before and after (warning when no standard "
+                                 "scheme meets the class's limits)"),
 )
 CHECK_IDS = {c.id for c in CHECKS}
 
@@ -60,6 +63,10 @@ class NetClass:
     tolerance_pct: float | None = None
     driver_ohm: float | None = None
     load_pf: float | None = None
+    swing: float | None = None
+    max_overshoot_pct: float | None = None
+    max_ringback_pct: float | None = None
+    max_settle_ns: float | None = None
 
     def matches(self, net: str) -> bool:
         return any(fnmatch.fnmatchcase(net.upper(), pat.upper()) for pat in self.match)
@@ -74,6 +81,14 @@ class Rules:
     tolerance_pct: float = 10.0                  # common practice fabrication tolerance
     z_step_pct: float = 10.0                     # common practice
     formula_field_pct: float = 2.0
+    # waveform check (common practice values; see rules/default.toml)
+    swing: float = 3.3
+    driver_ohm: float = 25.0
+    load_pf: float = 2.0
+    max_overshoot_pct: float = 15.0
+    max_ringback_pct: float = 15.0
+    settle_rise_times: float = 2.0
+    max_nets: int = 500
     severity: dict = field(default_factory=lambda: {c.id: c.severity for c in CHECKS})
     columns: dict = field(default_factory=dict)
     classes: tuple[NetClass, ...] = ()
@@ -99,9 +114,12 @@ class Rules:
 SECTIONS = {
     "electrical": {"lumped_max_td_over_tr", "required_min_td_over_tr"},
     "impedance": {"tolerance_pct", "z_step_pct", "formula_field_pct"},
+    "waveform": {"swing", "driver_ohm", "load_pf", "max_overshoot_pct", "max_ringback_pct", "settle_rise_times",
+                 "max_nets"},
 }
-TOP_KEYS = {"name", "electrical", "impedance", "severity", "columns", "net_class"}
-CLASS_KEYS = {"name", "match", "rise_time", "width", "gap", "z0", "zdiff", "tolerance_pct", "driver_ohm", "load_pf"}
+TOP_KEYS = {"name", "electrical", "impedance", "waveform", "severity", "columns", "net_class"}
+CLASS_KEYS = {"name", "match", "rise_time", "width", "gap", "z0", "zdiff", "tolerance_pct", "driver_ohm", "load_pf",
+              "swing", "max_overshoot_pct", "max_ringback_pct", "max_settle_ns"}
 
 
 def _number(src: TomlSource, value, key, header, index=0, lo=0.0, hi=float("inf"), lo_open=True):
@@ -128,6 +146,8 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
             if key not in keys:
                 raise src.error(f"unknown key '{key}' in [{sec}] (allowed: {', '.join(sorted(keys))})", key, sec)
             upd[key] = _number(src, val, key, sec, hi=1e6)
+            if key == "max_nets":
+                upd[key] = int(val)
     sev = dict(rules.severity)
     for key, val in d.get("severity", {}).items():
         if key not in CHECK_IDS:
@@ -169,9 +189,16 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
                     raise src.error(f"{key}: {e}", key, "net_class", i) from None
                 if not kw[key] > 0:
                     raise src.error(f"{key} must be positive", key, "net_class", i)
-        for key in ("z0", "zdiff", "driver_ohm", "load_pf"):
+        for key in ("z0", "zdiff", "driver_ohm", "load_pf", "max_overshoot_pct", "max_ringback_pct", "max_settle_ns"):
             if key in c:
                 kw[key] = _number(src, c[key], key, "net_class", i, lo=0.0, lo_open=key in ("z0", "zdiff"), hi=1e4)
+        if "swing" in c:
+            try:
+                kw["swing"] = parse_quantity(c["swing"], "voltage", "V")
+            except UnitError as e:
+                raise src.error(f"swing: {e}", "swing", "net_class", i) from None
+            if not kw["swing"] > 0:
+                raise src.error("swing must be positive", "swing", "net_class", i)
         if "tolerance_pct" in c:
             kw["tolerance_pct"] = _number(src, c["tolerance_pct"], "tolerance_pct", "net_class", i, hi=100)
         nc = NetClass(**kw)

@@ -77,7 +77,25 @@ def nets_json(nets) -> list[dict]:
             "z_driver_end_ohm": _num(r.z_driver_end), "advice": r.advice or None,
             "listed_via_partner": bool(r.mirrored),
         })
+        d = out[-1]
+        part = getattr(r, "termination_part", "")
+        if isinstance(part, str) and part:
+            d["recommended_termination"] = part
+            d["termination_scheme"] = r.recommended_termination
+            d["overshoot_pct"] = _num(r.after_overshoot_pct, 4)
+            d["settle_ns"] = _num(r.after_settle_ns, 4)
+            d["before"] = {k: _num(getattr(r, f"before_{k}"), 4) for k in WAVE_KEYS}
+            d["after"] = {k: _num(getattr(r, f"after_{k}"), 4) for k in WAVE_KEYS}
+            d["meets_limits"] = bool(r.waveform_meets_limits)
+            d["termination_power_mw"] = _num(r.termination_power_w * 1e3, 4)
+            if r.waveform_assumptions:
+                d["assumptions"] = r.waveform_assumptions
+        else:
+            d["recommended_termination"] = None
     return out
+
+
+WAVE_KEYS = ("overshoot_pct", "ringback_pct", "settle_ns", "flight_ns")
 
 
 def review_dict(rv: Review) -> dict:

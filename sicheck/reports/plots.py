@@ -50,3 +50,28 @@ def plot_cross_section(xs: CrossSection, r: LineResult, target: str | Path) -> N
     with atomic_path(target) as tmp:
         fig.savefig(tmp, format="png")
     plt.close(fig)
+
+
+def plot_waveform(wf, target: str | Path) -> None:
+    """Source and receiver voltages of one simulation, with the settling band."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    fig, ax = plt.subplots(figsize=(8, 4), dpi=120)
+    t = wf.t * 1e9
+    ax.plot(t, wf.v_src, color="tab:gray", linewidth=1.0, label="driver end")
+    ax.plot(t, wf.v_rx, color="tab:blue", linewidth=1.4, label="receiver")
+    vf = wf.v_final
+    ax.axhspan(vf * 0.95, vf * 1.05, color="tab:green", alpha=0.12, label="v_final +/-5 %")
+    m = wf.metrics
+    ax.set_title(f"overshoot {m['overshoot_pct']:.1f} %, ringback {m['ringback']:.3g} V, settled {m['settle_ns']:.2f} ns,"
+                 f" flight {m['flight_ns']:.3f} ns", fontsize=9)
+    ax.set_xlabel("t [ns]")
+    ax.set_ylabel("V")
+    ax.legend(fontsize=8, loc="lower right")
+    ax.grid(alpha=0.3)
+    fig.tight_layout()
+    with atomic_path(Path(target)) as tmp:
+        fig.savefig(tmp, format="png")
+    plt.close(fig)

@@ -10,6 +10,17 @@ from sicheck.review import Review
 STYLE = {"error": "bold red", "warning": "yellow", "info": "cyan"}
 
 
+def _proposal(r) -> str:
+    """The simulated choice with its effect, else the first-order advice."""
+    part = getattr(r, "termination_part", "")
+    if isinstance(part, str) and part:
+        if r.recommended_termination == "none":
+            return f"none needed (overshoot {r.before_overshoot_pct:.0f} %)"
+        return (f"{part}: overshoot {r.before_overshoot_pct:.0f}->{r.after_overshoot_pct:.0f} %, "
+                f"settle {r.before_settle_ns:.1f}->{r.after_settle_ns:.1f} ns")
+    return r.proposal
+
+
 def print_summary(rv: Review, console: Console, worst: int = 10) -> None:
     nets = rv.nets
     c = rv.counts
@@ -32,11 +43,11 @@ def print_summary(rv: Review, console: Console, worst: int = 10) -> None:
     need = need[keep]
     if len(need):
         t = Table(title="Nets that need termination", title_justify="left")
-        for col in ("net", "length mm", "delay ps", "Tr ps", "TD/Tr", "termination", "proposal"):
+        for col in ("net", "length mm", "delay ps", "Tr ps", "TD/Tr", "termination", "proposal (simulated)"):
             t.add_column(col, overflow="fold")
         for r in need.head(worst).itertuples(index=False):
             t.add_row(f"{r.net}/{r.pair}" if r.pair else r.net, f"{r.length * 1e3:.1f}", f"{r.delay * 1e12:.0f}",
-                      f"{r.rise_time * 1e12:.0f}", f"{r.td_over_tr:.2f}", r.termination, r.proposal)
+                      f"{r.rise_time * 1e12:.0f}", f"{r.td_over_tr:.2f}", r.termination, _proposal(r))
         if len(need) > worst:
             t.caption = f"... and {len(need) - worst} more (see the workbook's Nets sheet)"
         console.print(t)

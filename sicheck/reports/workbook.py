@@ -193,16 +193,28 @@ def _nets(wb: Workbook, rv: Review):
             ("TD/Tr", "0.000", 8), ("Electrical", None, 16), ("Termination", None, 13),
             ("Series R [ohm]", "0", 12), ("Z at driver end [ohm]", "0.0", 12),
             ("Lumped limit [mm]", "0.0", 12), ("Critical length [mm]", "0.0", 13),
-            ("Knee freq [GHz]", "0.000", 11), ("Wavelength at knee [mm]", "0.0", 13), ("Advice", None, 80)]
+            ("Knee freq [GHz]", "0.000", 11), ("Wavelength at knee [mm]", "0.0", 13),
+            ("Simulated termination", None, 40), ("Overshoot before [%]", "0.0", 11),
+            ("Overshoot after [%]", "0.0", 11), ("Ringback before [%]", "0.0", 11), ("Ringback after [%]", "0.0", 11),
+            ("Settled before [ns]", "0.00", 11), ("Settled after [ns]", "0.00", 11), ("Flight time [ns]", "0.000", 10),
+            ("Termination power [mW]", "0.0", 12), ("Meets limits", None, 9), ("First-order advice", None, 80)]
     sh = _Sheet(wb, "Nets", cols)
     sh.header()
     fills = {"required": SEVERITY_FILL["warning"], "recommended": SEVERITY_FILL["info"]}
-    for r in rv.nets.itertuples(index=False):
+    nets = rv.nets
+    has_wave = "termination_part" in nets.columns
+    for r in nets.itertuples(index=False):
+        if has_wave and r.termination_part:
+            wave = [r.termination_part, r.before_overshoot_pct, r.after_overshoot_pct, r.before_ringback_pct,
+                    r.after_ringback_pct, r.before_settle_ns, r.after_settle_ns, r.after_flight_ns,
+                    r.termination_power_w * 1e3, "yes" if r.waveform_meets_limits else "no"]
+        else:
+            wave = [None] * 10
         sh.row([r.net, r.net_class, r.pair, r.layers, int(r.segments), r.length * 1e3, r.delay * 1e12,
                 r.rise_time * 1e12, r.td_over_tr, r.electrical, r.termination,
                 None if r.series_ohm is None else float(r.series_ohm), r.z_driver_end,
                 r.lumped_limit_length * 1e3, r.critical_length * 1e3, r.knee_hz * 1e-9,
-                r.wavelength_at_knee * 1e3, r.advice],
+                r.wavelength_at_knee * 1e3] + wave + [r.advice],
                fill=fills.get(r.termination), fill_cols=(10,))
     sh.finish()
 
@@ -279,6 +291,56 @@ def _rules(wb: Workbook, rv: Review):
     sh.finish()
 
 
+def _waveforms(wb: Workbook, rv: Review):
+    """Before/after receiver waveforms of the worst nets, each with a native scatter chart."""
+    from openpyxl.chart import Reference, ScatterChart, Series
+    ws = wb.create_sheet("Waveforms")
+    for col, width in zip("ABCD", (22, 11, 13, 13)):
+        ws.column_dimensions[col].width = width
+    nets = rv.nets.set_index("net")
+    row = 1
+    charts = []
+    note = WriteOnlyCell(ws, value="Receiver voltage of the nets with the largest unterminated overshoot, "
+                                   "without and with the simulated termination (method of characteristics).")
+    note.font = BOLD
+    ws.append([note])
+    row += 1
+    for net, (before, after, _) in rv.waves.items():
+        if before is None or after is None:
+            continue
+        r = nets.loc[net]
+        title = WriteOnlyCell(ws, value=f"{net}: {r['termination_part']}")
+        title.font = BOLD
+        ws.append([title])
+        ws.append(["", "t [ns]", "unterminated [V]", "terminated [V]"])
+        first = row + 2
+        t_b, v_b = before
+        t_a, v_a = after
+        t_common = np.linspace(0.0, max(t_b[-1], t_a[-1]), 120)
+        vb = np.interp(t_common, t_b, v_b)
+        va = np.interp(t_common, t_a, v_a)
+        for k in range(len(t_common)):
+            ws.append([None, float(t_common[k] * 1e9), float(vb[k]), float(va[k])])
+        last = first + len(t_common) - 1
+        ch = ScatterChart()
+        ch.title = f"{net}"
+        ch.style = 13
+        ch.x_axis.title = "t [ns]"
+        ch.y_axis.title = "V"
+        ch.height, ch.width = 7.5, 16
+        xref = Reference(ws, min_col=2, min_row=first, max_row=last)
+        for col, name in ((3, "unterminated"), (4, "terminated")):
+            ser = Series(Reference(ws, min_col=col, min_row=first, max_row=last), xref, title=name)
+            ser.marker.symbol = "none"
+            ser.smooth = False
+            ch.series.append(ser)
+        charts.append((ch, f"F{row}"))
+        row = last + 2
+        ws.append([])
+    for ch, anchor in charts:
+        ws.add_chart(ch, anchor)
+
+
 def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
     """Write the review workbook atomically to ``target``."""
     wb = Workbook(write_only=True)
@@ -288,6 +350,8 @@ def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
     _segments(wb, rv)
     _stackup(wb, rv)
     _rules(wb, rv)
+    if rv.waves:
+        _waveforms(wb, rv)
     for fn in extra_sheets or ():
         fn(wb, rv)
     with atomic_path(target) as tmp:

@@ -1,0 +1,94 @@
+"""Termination chosen by simulation, the `wave` command, and the waveform stage of `review`."""
+
+import json
+
+import pytest
+from openpyxl import load_workbook
+
+from sicheck.physics import eseries
+from sicheck.physics.termination_choice import Limits, choose
+
+
+def test_series_value_follows_z0_minus_driver():
+    # Series (source) termination Rs = Z0 - Rdrv (Johnson & Graham 1993, ch. 6); the chooser simulates the
+    # E24 values around it and picks one of them.
+    z0, rd = 50.0, 15.0
+    none, rec, cands = choose([z0], [1e-9], 0.5e-9, rd, 3.3, 0.0, Limits())
+    assert not none.meets and "overshoot" in none.violations[0]
+    assert rec.scheme == "series" and rec.meets
+    near = eseries.nearest(z0 - rd)
+    assert rec.series_ohm in (near, *[c.series_ohm for c in cands if c.scheme == "series"])
+    assert abs(rec.series_ohm - (z0 - rd)) / (z0 - rd) < 0.15
+    assert rec.metrics["overshoot_pct"] < none.metrics["overshoot_pct"]
+
+
+def test_strong_driver_with_low_impedance_line_uses_end_termination():
+    # Driver impedance above Z0: no series part possible; an end termination must do it.
+    none, rec, cands = choose([30.0], [1e-9], 0.3e-9, 45.0, 3.3, 2e-12, Limits(max_overshoot_pct=5))
+    assert rec.scheme in ("rc", "parallel", "thevenin")
+    assert all(c.scheme != "series" for c in cands)
+
+
+def test_short_net_needs_nothing():
+    none, rec, _ = choose([50.0], [50e-12], 1e-9, 25.0, 3.3, 2e-12, Limits())
+    assert rec.scheme == "none" and rec.meets
+
+
+def test_pair_gets_differential_resistor():
+    none, rec, _ = choose([48.0], [1e-9], 0.25e-9, 25.0, 0.35, 2e-12, Limits(), zdiff=96.0)
+    assert rec.scheme == "differential" and rec.end_ohm in (82.0, 91.0, 100.0, 110.0)
+
+
+def test_wave_json(run):
+    code, out, err = run("wave", "--z0", "50", "--delay", "1ns", "--driver-ohm", "15", "--swing", "3.3V",
+                         "--rise", "0.5ns", "--series-ohm", "35", "--json")
+    assert code == 0, err
+    d = json.loads(out)
+    for key in ("v_final", "v_max", "overshoot_pct", "ringback", "settle_ns", "flight_ns"):
+        assert key in d
+    # series-matched (15 + 35 = 50 ohm) into an open end: a clean full step at the receiver
+    assert d["overshoot_pct"] == pytest.approx(0.0, abs=0.01)
+    assert d["v_final"] == pytest.approx(3.3)
+    assert d["flight_ns"] == pytest.approx(1.0, abs=0.02)
+
+
+def test_wave_parallel_end_and_errors(run, tmp_path):
+    png = tmp_path / "w.png"
+    code, out, err = run("wave", "--z0", "50", "--delay", "1ns", "--driver-ohm", "15", "--swing", "3.3",
+                         "--rise", "500ps", "--end-ohm", "50", "--end-volts", "1.65V", "--plot", png)
+    assert code == 0, err and png.exists()
+    code, out, err = run("wave", "--z0", "50", "--delay", "-1ns", "--driver-ohm", "15", "--swing", "3.3",
+                         "--rise", "500ps")
+    assert code == 2 and "--delay" in err
+    code, out, err = run("wave", "--z0", "50", "--delay", "1", "--driver-ohm", "15", "--swing", "3.3",
+                         "--rise", "500ps")
+    assert code == 2 and "no unit" in err
+
+
+TRACES = """\
+net,layer,length,width,rise_time,driver_ohm,pair,gap
+CLK,L3,150mm,0.15mm,300ps,15,,
+SHORT,L3,5mm,0.15mm,300ps,15,,
+RX_P,L3,150mm,0.1mm,200ps,,RX_N,0.15mm
+"""
+
+
+def test_review_simulates_flagged_nets(run, board, tmp_path):
+    tr, st = board(TRACES)
+    js, out = tmp_path / "r.json", tmp_path / "r.xlsx"
+    code, stdout, err = run("review", tr, "--stackup", st, "--solver", "formula", "--json", js, "--out", out)
+    d = json.loads(js.read_text())
+    nets = {n["net"]: n for n in d["nets"]}
+    clk = nets["CLK"]
+    assert clk["termination"] == "required"
+    assert "series" in clk["recommended_termination"]
+    assert clk["before"]["overshoot_pct"] > clk["after"]["overshoot_pct"] == clk["overshoot_pct"]
+    assert clk["settle_ns"] == clk["after"]["settle_ns"]
+    assert nets["SHORT"]["recommended_termination"] is None          # lumped: not simulated
+    rx = nets["RX_P"]
+    assert "across the receiver" in rx["recommended_termination"]
+    assert "assumed driver" in rx["assumptions"]                    # driver impedance came from the rules
+    wb = load_workbook(out)
+    assert "Waveforms" in wb.sheetnames and len(wb["Waveforms"]._charts) >= 1
+    hdr = [c.value for c in wb["Nets"][1]]
+    assert "Overshoot before [%]" in hdr and "Simulated termination" in hdr
