@@ -232,13 +232,18 @@ def line(
     solver: str = typer.Option("formula", "--solver", help="formula (closed form) or field (2D field solver)."),
     plot: Optional[Path] = typer.Option(None, "--plot", help="Draw the cross-section and its equipotentials "
                                                              "(PNG)."),
+    freq: Optional[str] = typer.Option(None, "--freq", help="Frequency for loss per length, e.g. 5GHz (--er and "
+                                                            "--loss-tangent are taken as they are there)."),
+    loss_tangent: Optional[float] = typer.Option(None, "--loss-tangent", help="Loss tangent of the dielectric."),
+    roughness: Optional[str] = typer.Option(None, "--roughness", help="RMS copper roughness (Hammerstad-Jensen)."),
     units: str = typer.Option("mm", "--units", help="Unit for bare numbers (mm, um, mil, in)."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object on standard output."),
 ):
-    """Impedance, delay and L/C of one cross-section."""
+    """Impedance, delay, L/C and loss of one cross-section."""
     from sicheck.line_cmd import run_line
     run_line(kind.value, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er,
-             length, solver, units, as_json, etch_factor=etch_factor, top_width=top_width, plot=plot)
+             length, solver, units, as_json, etch_factor=etch_factor, top_width=top_width, plot=plot, freq=freq,
+             loss_tangent=loss_tangent, roughness=roughness)
 
 
 @app.command()

@@ -6,6 +6,8 @@ import json
 import sys
 from dataclasses import replace
 
+import numpy as np
+
 from sicheck.errors import InputError
 from sicheck.physics.cross_section import CrossSection, Stratum
 from sicheck.physics.line_result import LineResult, per_length
@@ -151,16 +153,47 @@ def solve_one(xs: CrossSection, solver: str) -> LineResult:
     raise InputError(f"--solver must be 'formula' or 'field' (got '{solver}')")
 
 
+def line_loss(xs: CrossSection, r: LineResult, solver: str, freq: float, rough) -> dict:
+    """Loss per length of one cross-section at ``freq`` (see physics/loss.py)."""
+    from sicheck.physics.line_loss import alphas, wheeler_derivative
+    dzdn = wheeler_derivative([xs], lambda lst: [solve_one(x, solver) for x in lst])
+    a_c, a_d = alphas(freq, r.signal_z, r.signal_eps, r.signal_tand, dzdn, rough)
+    return {"freq_ghz": freq * 1e-9, "conductor_loss_db_per_mm": float(a_c[0]) * 1e-3,
+            "dielectric_loss_db_per_mm": float(np.ravel(a_d)[0]) * 1e-3,
+            "loss_db_per_mm": (float(a_c[0]) + float(np.ravel(a_d)[0])) * 1e-3,
+            "roughness_factor": float(np.ravel(rough.factor(freq))[0])}
+
+
 def run_line(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er, length,
-             solver, units, as_json, etch_factor=None, top_width=None, plot=None) -> None:
+             solver, units, as_json, etch_factor=None, top_width=None, plot=None, freq=None, loss_tangent=None,
+             roughness=None) -> None:
     xs = build_cross_section(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask,
                              mask_er, units, etch_factor, top_width)
+    if loss_tangent is not None:
+        if not 0 <= loss_tangent < 1:
+            raise InputError("--loss-tangent must be from 0 to 1")
+        xs = replace(xs, below=tuple(replace(s, loss_tangent=loss_tangent) for s in xs.below),
+                     above=tuple(s if s.conformal else replace(s, loss_tangent=loss_tangent) for s in xs.above))
+    f_hz = None
+    if freq is not None:
+        try:
+            f_hz = parse_quantity(freq, "frequency")
+        except UnitError as e:
+            raise InputError(f"--freq: {e}") from None
+        if not 1e3 <= f_hz <= 1e12:
+            raise InputError("--freq must be between 1 kHz and 1 THz")
+    from sicheck.physics.line_loss import Roughness
+    rough = Roughness(rms=_len(roughness, "--roughness", units) if roughness else None)
     if plot is not None:
         from sicheck.reports.atomic import refuse_inputs
         refuse_inputs(plot, [], "--plot")
     ln = _len(length, "--length", units)
     r = solve_one(xs, solver)
     d = line_dict(xs, r, ln, units)
+    if f_hz is not None:
+        d.update(line_loss(xs, r, solver, f_hz, rough))
+        if ln is not None:
+            d["loss_db"] = d["loss_db_per_mm"] * ln * 1e3
     if plot is not None:
         from sicheck.reports.plots import plot_cross_section
         plot_cross_section(xs, r, plot)
@@ -185,6 +218,12 @@ def run_line(kind, width, thickness, er, height, below, above, er_below, er_abov
         rows.append(("uncertainty", f"{d['uncertainty_pct']:.3f} %"))
     if "delay_ps" in d:
         rows.append((f"delay over {d['length_mm']:g} mm", f"{d['delay_ps']:.1f} ps"))
+    if "loss_db_per_mm" in d:
+        rows += [(f"loss at {d['freq_ghz']:g} GHz", f"{d['loss_db_per_mm']:.5f} dB/mm (conductor "
+                                                   f"{d['conductor_loss_db_per_mm']:.5f}, dielectric "
+                                                   f"{d['dielectric_loss_db_per_mm']:.5f})")]
+        if "loss_db" in d:
+            rows.append(("loss over length", f"{d['loss_db']:.3f} dB"))
     if r.model.startswith("field"):
         rows.append(("closed form", f"{(r.formula_zdiff if xs.coupled else r.formula_z0):.2f} ohm "
                                     f"({'Zdiff' if xs.coupled else 'Z0'}, {solve_formula_name(xs)})"))

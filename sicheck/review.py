@@ -135,13 +135,21 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
         raise InputError(f"net '{net}' has no rise time: give a 'rise_time' column (e.g. 350ps) or a net class "
                          "with rise_time in the rules", file=src, row=row, column="rise_time")
 
-    # ---- unique cross-sections, solved once each
+    # ---- the frequency each net works at: its class's freq, else the knee 0.5/Tr of its edge
+    class_freq = {c.name: c.freq for c in rules.classes if c.freq}
+    knee = 0.5 / df["net"].map(net_tr).to_numpy(float)
+    df["freq"] = np.array([class_freq.get(c, k) for c, k in zip(df["net_class"], knee)], dtype=float)
+
+    # ---- unique cross-sections, solved once each (per frequency only when a dielectric is dispersive)
     gap_key = df["gap"].fillna(-1.0)
-    keys = pd.MultiIndex.from_arrays([df["layer"], df["width"], gap_key])
+    f_key = (df["freq"].map(lambda f: float(f"{f:.2g}")) if stackup.dispersive else pd.Series(0.0, index=df.index))
+    keys = pd.MultiIndex.from_arrays([df["layer"], df["width"], gap_key, f_key])
     codes, uniques = pd.factorize(keys)
-    xs = [stackup.cross_section(layer, float(w), None if g < 0 else float(g)) for layer, w, g in uniques]
+    xs = [stackup.cross_section(layer, float(w), None if g < 0 else float(g), freq=fk or None)
+          for layer, w, g, fk in uniques]
     results = solver(xs)
     seg = _segment_table(df, codes, xs, results)
+    _add_loss(seg, stackup, xs, results, codes, solver)
 
     # ---- partners listed only through their pair: mirror their segments for the net table
     listed = set(df["net"])
@@ -160,6 +168,26 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
     return Review(segments=seg, nets=nets, findings=findings, stackup=stackup, rules=rules,
                   traces_source=src, solver=solver_name, cross_sections=cs, waves=waves)
+
+
+def _add_loss(seg: pd.DataFrame, stackup: Stackup, xs, results, codes, solver: Solver) -> None:
+    """Conductor and dielectric loss of each segment at its net's frequency (dB)."""
+    from sicheck.physics.line_loss import Roughness, alphas, wheeler_derivative
+    dzdn = wheeler_derivative(xs, solver)[codes]
+    tand = np.array([r.signal_tand for r in results], dtype=float)[codes]
+    a_c = np.zeros(len(seg))
+    a_d = np.zeros(len(seg))
+    for layer in pd.unique(seg["layer"]):
+        m = (seg["layer"] == layer).to_numpy()
+        lay = stackup.layer(layer)
+        rough = Roughness(rms=lay.roughness, huray_radius=lay.huray_radius, huray_ratio=lay.huray_ratio)
+        zs = np.where(seg["pair"].to_numpy()[m] != "", seg["zodd"].to_numpy()[m], seg["z0"].to_numpy()[m])
+        c, d = alphas(seg["freq"].to_numpy()[m], zs, seg["eps_eff"].to_numpy()[m], tand[m], dzdn[m], rough)
+        a_c[m], a_d[m] = c, d
+    seg["conductor_loss_db_per_m"] = a_c
+    seg["dielectric_loss_db_per_m"] = a_d
+    seg["loss_db_per_m"] = a_c + a_d
+    seg["loss_db"] = seg["loss_db_per_m"] * seg["length"]
 
 
 def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataFrame:
@@ -195,6 +223,7 @@ def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataF
         "rise_time": df["rise_time"].to_numpy(float),
         "driver_ohm": df["driver_ohm"].to_numpy(float),
         "load_pf": df["load_pf"].to_numpy(float),
+        "freq": df["freq"].to_numpy(float),
         "xs": codes,
         "mirrored": False,
     })
@@ -213,6 +242,8 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
         "layers": g["layer"].agg(lambda s: " > ".join(dict.fromkeys(s))).to_numpy(),
         "length": g["length"].sum().to_numpy(),
         "delay": g["delay"].sum().to_numpy(),
+        "loss_db": g["loss_db"].sum().to_numpy(),
+        "freq": first["freq"].to_numpy(),
         "rise_time": g["rise_time"].min().to_numpy(),
         "driver_ohm": first["driver_ohm"].to_numpy(),
         "load_pf": first["load_pf"].to_numpy(),
@@ -306,6 +337,15 @@ def _findings(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs, results, 
                 f"Z0 {seg['z0'].iat[i]:.1f} ohm on {layer} (w {seg['width'].iat[i] * 1e3:.3f} mm) misses the "
                 f"{cname} target {z0_t[i]:g} ohm +/-{tol[i]:g} % by {err_se[i]:+.1f} %", row)
 
+    # fabrication minimum feature
+    wmin = rules.min_feature
+    narrow = (seg["width"].to_numpy() < wmin * (1 - 1e-9)) | (is_pair & (seg["gap"].to_numpy() < wmin * (1 - 1e-9)))
+    for i in np.nonzero(narrow)[0]:
+        what = "width" if seg["width"].iat[i] < wmin * (1 - 1e-9) else "gap"
+        add("min-feature", seg["net"].iat[i], seg["layer"].iat[i],
+            f"{what} {seg[what].iat[i] * 1e3:.3f} mm is below the minimum feature {wmin * 1e3:.3f} mm",
+            int(seg["row"].iat[i]))
+
     # impedance steps along a net (layer changes)
     zsig = np.where(is_pair, seg["zdiff"], seg["z0"])
     tmp = pd.DataFrame({"net": seg["net"], "z": zsig, "layer": seg["layer"]})
@@ -318,6 +358,20 @@ def _findings(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs, results, 
         add("z-step", net, f"{lo_l}/{hi_l}",
             f"impedance changes {step:.0f} % along the net ({r.lo:.1f} ohm on {lo_l} to {r.hi:.1f} ohm on "
             f"{hi_l}): each step reflects part of the edge")
+
+    budget = {c.name: c.max_loss_db for c in rules.classes if c.max_loss_db is not None}
+    seen_budget: set = set()
+    for r in nets.itertuples(index=False):
+        lim = budget.get(r.net_class)
+        if lim is None or r.loss_db <= lim:
+            continue
+        key = frozenset((r.net, r.pair)) if r.pair else r.net
+        if key in seen_budget:
+            continue
+        seen_budget.add(key)
+        add("loss-budget", f"{r.net}/{r.pair}" if r.pair else r.net, r.layers,
+            f"insertion loss {r.loss_db:.2f} dB at {r.freq * 1e-9:.3g} GHz over {r.length * 1e3:.0f} mm exceeds the "
+            f"{r.net_class} budget of {lim:g} dB")
 
     done_pairs: set = set()
     untargeted: dict[str, list[str]] = {}

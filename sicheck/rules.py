@@ -44,6 +44,8 @@ CHECKS = (
     Check("model-accuracy", "warning", "closed-form model used outside its stated accuracy range, or a field "
                                        "solution whose uncertainty is above its target"),
     Check("formula-vs-field", "warning", "closed form and field solution differ by more than formula_field_pct"),
+    Check("loss-budget", "error", "insertion loss of a net at its frequency above the class's max_loss_db"),
+    Check("min-feature", "error", "trace width or pair gap below the fabrication minimum feature size"),
     Check("waveform", "warning", "simulated receiver waveform of a net that needs termination: the proposed part, "
                                  "with overshoot, ringback and settling before and after (warning when no standard "
                                  "scheme meets the class's limits)"),
@@ -64,6 +66,8 @@ class NetClass:
     driver_ohm: float | None = None
     load_pf: float | None = None
     swing: float | None = None
+    freq: float | None = None          # where loss (and a dispersive dielectric) is evaluated
+    max_loss_db: float | None = None
     max_overshoot_pct: float | None = None
     max_ringback_pct: float | None = None
     max_settle_ns: float | None = None
@@ -89,6 +93,8 @@ class Rules:
     max_ringback_pct: float = 15.0
     settle_rise_times: float = 2.0
     max_nets: int = 500
+    min_feature: float = 75e-6           # smallest width/gap a fabricator etches reliably (common practice, 3 mil)
+    max_width: float = 2e-3              # widest trace sicheck proposes in `plan`
     severity: dict = field(default_factory=lambda: {c.id: c.severity for c in CHECKS})
     columns: dict = field(default_factory=dict)
     classes: tuple[NetClass, ...] = ()
@@ -114,12 +120,13 @@ class Rules:
 SECTIONS = {
     "electrical": {"lumped_max_td_over_tr", "required_min_td_over_tr"},
     "impedance": {"tolerance_pct", "z_step_pct", "formula_field_pct"},
+    "fabrication": {"min_feature", "max_width"},
     "waveform": {"swing", "driver_ohm", "load_pf", "max_overshoot_pct", "max_ringback_pct", "settle_rise_times",
                  "max_nets"},
 }
-TOP_KEYS = {"name", "electrical", "impedance", "waveform", "severity", "columns", "net_class"}
+TOP_KEYS = {"name", "electrical", "impedance", "waveform", "fabrication", "severity", "columns", "net_class"}
 CLASS_KEYS = {"name", "match", "rise_time", "width", "gap", "z0", "zdiff", "tolerance_pct", "driver_ohm", "load_pf",
-              "swing", "max_overshoot_pct", "max_ringback_pct", "max_settle_ns"}
+              "swing", "max_overshoot_pct", "max_ringback_pct", "max_settle_ns", "freq", "max_loss_db"}
 
 
 def _number(src: TomlSource, value, key, header, index=0, lo=0.0, hi=float("inf"), lo_open=True):
@@ -145,6 +152,14 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
         for key, val in tbl.items():
             if key not in keys:
                 raise src.error(f"unknown key '{key}' in [{sec}] (allowed: {', '.join(sorted(keys))})", key, sec)
+            if sec == "fabrication":
+                try:
+                    upd[key] = parse_quantity(val, "length")
+                except UnitError as e:
+                    raise src.error(f"{key}: {e}", key, sec) from None
+                if not 0 < upd[key] < 0.1:
+                    raise src.error(f"{key} is out of range", key, sec)
+                continue
             upd[key] = _number(src, val, key, sec, hi=1e6)
             if key == "max_nets":
                 upd[key] = int(val)
@@ -189,7 +204,15 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
                     raise src.error(f"{key}: {e}", key, "net_class", i) from None
                 if not kw[key] > 0:
                     raise src.error(f"{key} must be positive", key, "net_class", i)
-        for key in ("z0", "zdiff", "driver_ohm", "load_pf", "max_overshoot_pct", "max_ringback_pct", "max_settle_ns"):
+        if "freq" in c:
+            try:
+                kw["freq"] = parse_quantity(c["freq"], "frequency")
+            except UnitError as e:
+                raise src.error(f"freq: {e}", "freq", "net_class", i) from None
+            if not 1e3 <= kw["freq"] <= 1e12:
+                raise src.error("freq must be between 1 kHz and 1 THz", "freq", "net_class", i)
+        for key in ("z0", "zdiff", "driver_ohm", "load_pf", "max_overshoot_pct", "max_ringback_pct", "max_settle_ns",
+                    "max_loss_db"):
             if key in c:
                 kw[key] = _number(src, c[key], key, "net_class", i, lo=0.0, lo_open=key in ("z0", "zdiff"), hi=1e4)
         if "swing" in c:

@@ -20,10 +20,10 @@ from sicheck.units import COPPER_OZ, UnitError, parse_quantity
 LAYER_TYPES = ("mask", "signal", "plane", "dielectric")
 TOP_KEYS = {"name", "units", "layers"}
 LAYER_KEYS = {
-    "mask": {"type", "name", "thickness", "er", "loss_tangent"},
-    "signal": {"type", "name", "thickness", "copper", "etch_factor"},
+    "mask": {"type", "name", "thickness", "er", "loss_tangent", "freq"},
+    "signal": {"type", "name", "thickness", "copper", "etch_factor", "roughness", "huray_radius", "huray_ratio"},
     "plane": {"type", "name", "thickness", "copper"},
-    "dielectric": {"type", "name", "thickness", "er", "loss_tangent", "kind"},
+    "dielectric": {"type", "name", "thickness", "er", "loss_tangent", "kind", "freq"},
 }
 BARE_UNITS = ("mm", "um", "mil", "in")
 MAX_LAYER_THICKNESS = 10e-3   # 10 mm: thicker than any board layer
@@ -40,6 +40,10 @@ class Layer:
     kind: str | None = None
     etch_factor: float | None = None
     line: int | None = None
+    freq: float | None = None          # frequency at which er and loss_tangent were given
+    roughness: float | None = None     # RMS copper roughness (Hammerstad-Jensen)
+    huray_radius: float | None = None
+    huray_ratio: float | None = None
 
     @property
     def copper(self) -> bool:
@@ -69,8 +73,15 @@ class Stackup:
     def geometry(self, name: str) -> "LayerGeometry":
         return _geometry(self, self.layer(name))  # type: ignore[arg-type]
 
-    def cross_section(self, layer_name: str, width: float, gap: float | None = None) -> CrossSection:
+    @property
+    def dispersive(self) -> bool:
+        return any(l.freq is not None for l in self.layers)
+
+    def cross_section(self, layer_name: str, width: float, gap: float | None = None,
+                      freq: float | None = None) -> CrossSection:
         g = self.geometry(layer_name)
+        if freq is not None and self.dispersive:
+            g = _at_frequency(self, g, freq)
         top_width = None
         if g.etch_factor:
             # etch factor = thickness / (one side's undercut), so top = w - 2 t / ef
@@ -87,6 +98,22 @@ class LayerGeometry:
     above: tuple[Stratum, ...]
     references: tuple[str, ...]
     etch_factor: float | None
+
+
+def _at_frequency(st: Stackup, g: "LayerGeometry", freq: float) -> "LayerGeometry":
+    """The geometry with each stratum's er and loss tangent moved to ``freq`` (Djordjevic-Sarkar)."""
+    from dataclasses import replace
+
+    from sicheck.physics.loss import djordjevic_sarkar
+    by_values = {(l.er, l.loss_tangent): l.freq for l in st.layers if l.freq is not None and l.er is not None}
+
+    def move(s: Stratum) -> Stratum:
+        f_ref = by_values.get((s.er, s.loss_tangent))
+        if f_ref is None or s.loss_tangent <= 0:
+            return s
+        er, td = djordjevic_sarkar(freq, s.er, s.loss_tangent, f_ref)
+        return replace(s, er=float(er), loss_tangent=float(td))
+    return replace(g, below=tuple(move(s) for s in g.below), above=tuple(move(s) for s in g.above))
 
 
 def _strata_between(layers: list[Layer], nearest_er: float | None) -> list[Stratum]:
@@ -243,9 +270,35 @@ def parse_stackup(data: dict, raw: str, src: str) -> Stackup:
         ef = lr.get("etch_factor")
         if ef is not None and (isinstance(ef, bool) or not isinstance(ef, (int, float)) or not ef > 0):
             fail("etch_factor must be a positive number (thickness over one side's undercut)", "etch_factor")
+        freq = None
+        if "freq" in lr:
+            try:
+                freq = parse_quantity(lr["freq"], "frequency")
+            except UnitError as e:
+                fail(f"freq: {e}", "freq")
+            if not 1e3 < freq < 1e12:
+                fail("freq must be between 1 kHz and 1 THz", "freq")
+        rough = {}
+        for key in ("roughness", "huray_radius"):
+            if key in lr:
+                try:
+                    rough[key] = parse_quantity(lr[key], "length", units)
+                except UnitError as e:
+                    fail(f"{key}: {e}", key)
+                if not 0 < rough[key] < 50e-6:
+                    fail(f"{key} must be between 0 and 50 um", key)
+        if "huray_ratio" in lr:
+            hr = lr["huray_ratio"]
+            if isinstance(hr, bool) or not isinstance(hr, (int, float)) or not 0 < hr < 100:
+                fail("huray_ratio must be a positive number (ball surface per flat area)", "huray_ratio")
+            rough["huray_ratio"] = float(hr)
+        if ("huray_radius" in rough) != ("huray_ratio" in rough):
+            fail("Huray's model needs both huray_radius and huray_ratio", "huray_radius")
         layers.append(Layer(index=i, type=ltype, name=str(label), thickness=float(thickness),
                             er=None if er is None else float(er), loss_tangent=float(tand), kind=kind,
-                            etch_factor=None if ef is None else float(ef), line=start + 1))
+                            etch_factor=None if ef is None else float(ef), line=start + 1, freq=freq,
+                            roughness=rough.get("roughness"), huray_radius=rough.get("huray_radius"),
+                            huray_ratio=rough.get("huray_ratio")))
 
     st = Stackup(name=str(data.get("name") or Path(src).stem), layers=tuple(layers), source=src)
     _check_structure(st, src)

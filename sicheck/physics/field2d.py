@@ -57,7 +57,7 @@ class Layout:
 
     conductors: list[Box]              # the trace (or the right-hand trace of a pair)
     trapezoid: tuple[float, float] | None  # (bottom half-offsets) for an etched trace, see _in_conductor
-    dielectrics: list[tuple[Box, float]]   # later boxes override earlier ones
+    dielectrics: list[tuple[Box, float, float]]   # (box, er, loss tangent); later boxes override earlier ones
     y_top: float                       # upper plane (stripline) or far boundary
     x_far: float
     open_top: bool
@@ -86,11 +86,11 @@ def layout_of(xs: CrossSection) -> Layout:
     cond = Box(max(xl, 0.0), xr, yb, yt)
     trap = (inset, t) if inset > 0 and t > 0 else None
 
-    diel: list[tuple[Box, float]] = []
+    diel: list[tuple[Box, float, float]] = []
     y = 0.0
     big = 1e3
     for s in below:
-        diel.append((Box(0.0, big, y, y + s.thickness), s.er))
+        diel.append((Box(0.0, big, y, y + s.thickness), s.er, s.loss_tangent))
         y += s.thickness
     above = list(xs.above)
     y_keys = [0.0, yb, yt]
@@ -102,7 +102,7 @@ def layout_of(xs: CrossSection) -> Layout:
         for k, s in enumerate(above):
             lo = y0 if k == 0 else yy
             yy += s.thickness
-            diel.append((Box(0.0, big, lo, yy), s.er))
+            diel.append((Box(0.0, big, lo, yy), s.er, s.loss_tangent))
             y_keys.append(yy)
         open_top = False
     else:
@@ -111,15 +111,15 @@ def layout_of(xs: CrossSection) -> Layout:
         for s in above:
             if first and s.conformal:
                 c = s.thickness
-                diel.append((Box(0.0, big, yb, yb + c), s.er))
-                diel.append((Box(max(xl - c, 0.0), xr + c, yb, yt + c), s.er))
+                diel.append((Box(0.0, big, yb, yb + c), s.er, s.loss_tangent))
+                diel.append((Box(max(xl - c, 0.0), xr + c, yb, yt + c), s.er, s.loss_tangent))
                 y_keys += [yb + c, yt + c]
                 x_keys += [max(xl - c, 0.0), xr + c]
                 yy = yt + c
             else:
                 lo = yb if first else yy
                 yy = (yt if first else yy) + s.thickness
-                diel.append((Box(0.0, big, lo, yy), s.er))
+                diel.append((Box(0.0, big, lo, yy), s.er, s.loss_tangent))
                 y_keys.append(yy)
             first = False
         open_top = True
@@ -180,6 +180,7 @@ class Problem:
     y: np.ndarray
     eps: np.ndarray          # (nx-1, ny-1) relative permittivity of each cell
     conductor: np.ndarray    # (nx, ny) bool
+    tand: np.ndarray | None = None   # (nx-1, ny-1) loss tangent of each cell
 
 
 def discretise(lay: Layout, level: int) -> Problem:
@@ -191,10 +192,12 @@ def discretise(lay: Layout, level: int) -> Problem:
     xc = 0.5 * (x[:-1] + x[1:])
     yc = 0.5 * (y[:-1] + y[1:])
     eps = np.ones((len(xc), len(yc)))
-    for box, er in lay.dielectrics:
+    tand = np.zeros_like(eps)
+    for box, er, td in lay.dielectrics:
         mx = (xc >= box.x0) & (xc <= box.x1)
         my = (yc >= box.y0) & (yc <= box.y1)
         eps[np.ix_(mx, my)] = er
+        tand[np.ix_(mx, my)] = td
     cond = np.zeros((len(x), len(y)), dtype=bool)
     tol = 1e-12 * lay.scale
     for box in lay.conductors:
@@ -210,7 +213,7 @@ def discretise(lay: Layout, level: int) -> Problem:
             right_ok = X <= box.x1 - inset * U + tol
             block &= left_ok & right_ok
         cond |= block
-    return Problem(x, y, eps, cond)
+    return Problem(x, y, eps, cond, tand)
 
 
 def _edge_coefficients(p: Problem):
@@ -231,7 +234,7 @@ def _edge_coefficients(p: Problem):
 
 def solve_energy(p: Problem, eps_override: np.ndarray | None, odd: bool) -> tuple[float, np.ndarray]:
     """Potential with the conductor at 1 V; returns (sum of coefficient * dphi^2, phi)."""
-    prob = p if eps_override is None else Problem(p.x, p.y, eps_override, p.conductor)
+    prob = p if eps_override is None else Problem(p.x, p.y, eps_override, p.conductor, p.tand)
     ax, ay = _edge_coefficients(prob)
     nx, ny = len(p.x), len(p.y)
     idx = np.arange(nx * ny).reshape(nx, ny)
@@ -273,6 +276,20 @@ def solve_energy(p: Problem, eps_override: np.ndarray | None, odd: bool) -> tupl
     return energy, phi.reshape(nx, ny)
 
 
+def loss_tangent_share(p: Problem, phi: np.ndarray) -> float:
+    """Capacitance-weighted loss tangent: sum(tand_i W_i) / sum(W_i) over the cells' field energy."""
+    if p.tand is None or not np.any(p.tand):
+        return 0.0
+    dx = np.diff(p.x)[:, None]
+    dy = np.diff(p.y)[None, :]
+    gx = phi[1:, :] - phi[:-1, :]            # along x, (nx-1, ny)
+    gy = phi[:, 1:] - phi[:, :-1]            # along y, (nx, ny-1)
+    w = p.eps * ((dy / 2.0 / dx) * (gx[:, :-1] ** 2 + gx[:, 1:] ** 2)
+                 + (dx / 2.0 / dy) * (gy[:-1, :] ** 2 + gy[1:, :] ** 2))
+    total = float(w.sum())
+    return float((w * p.tand).sum()) / total if total > 0 else 0.0
+
+
 def _capacitances(lay: Layout, level: int, coupled: bool, homogeneous: bool) -> dict[str, float]:
     p = discretise(lay, level)
     air = np.ones_like(p.eps)
@@ -284,12 +301,18 @@ def _capacitances(lay: Layout, level: int, coupled: bool, homogeneous: bool) -> 
         if not homogeneous:
             jobs.append((name + "_air", air, odd))
     # The factorisations are independent and SuperLU releases the GIL: two threads overlap them.
+    def job(j):
+        e, phi = solve_energy(p, j[1], j[2])
+        return e, (loss_tangent_share(p, phi) if j[1] is None else 0.0)
     if len(jobs) > 1:
         with ThreadPoolExecutor(max_workers=2) as pool:
-            energies = list(pool.map(lambda j: solve_energy(p, j[1], j[2])[0], jobs))
+            results = list(pool.map(job, jobs))
     else:
-        energies = [solve_energy(p, jobs[0][1], jobs[0][2])[0]]
-    out = {name: EPS0 * factor * e for (name, _, _), e in zip(jobs, energies)}
+        results = [job(jobs[0])]
+    out = {name: EPS0 * factor * e for (name, _, _), (e, _) in zip(jobs, results)}
+    for (name, ov, _), (_, td) in zip(jobs, results):
+        if ov is None:
+            out[name + "_tand"] = td
     if homogeneous:
         er = float(p.eps.flat[0])
         for name, _ in modes:
@@ -316,7 +339,8 @@ def solve_field(xs: CrossSection, target_pct: float = DEFAULT_TARGET_PCT, max_le
     t0 = time.perf_counter()
     lay = layout_of(xs)
     ers = {s.er for s in xs.below} | {s.er for s in xs.above}
-    homogeneous = xs.kind == "stripline" and len(ers) == 1
+    # one permittivity everywhere: a stripline in one dielectric, or any line in air
+    homogeneous = len(ers) == 1 and (xs.kind == "stripline" or ers == {1.0})
     coupled = xs.coupled
     # a pair also reports its isolated line's Z0: solve that alongside
     single_job = ThreadPoolExecutor(max_workers=1) if coupled else None
@@ -345,6 +369,7 @@ def solve_field(xs: CrossSection, target_pct: float = DEFAULT_TARGET_PCT, max_le
     warnings = []
     if z_unc * 100.0 > target_pct:
         warnings.append(f"field solution uncertainty {z_unc * 100:.2f} % is above the {target_pct:g} % target")
+    tands = {m: levels[-1].get(m + "_tand", 0.0) for m in (("even", "odd") if coupled else ("single",))}
     if coupled:
         ze, ee = z_and_eps("even")
         zo, eo = z_and_eps("odd")
@@ -353,11 +378,13 @@ def solve_field(xs: CrossSection, target_pct: float = DEFAULT_TARGET_PCT, max_le
         res = LineResult(z0=single.z0, eps_eff=single.eps_eff, model="field-2d", z_even=ze, z_odd=zo,
                          eps_even=ee, eps_odd=eo, uncertainty_pct=max(z_unc * 100.0, single.uncertainty_pct),
                          warnings=warnings + single.warnings)
+        res.tand_eff, res.tand_even, res.tand_odd = single.tand_eff, tands["even"], tands["odd"]
         res.c_matrix = _pair_matrix(ext["even"], ext["odd"])
         res.l_matrix = _l_matrix(ext["even_air"], ext["odd_air"], homogeneous, ext)
     else:
         z, e = z_and_eps("single")
-        res = LineResult(z0=z, eps_eff=e, model="field-2d", uncertainty_pct=z_unc * 100.0, warnings=warnings)
+        res = LineResult(z0=z, eps_eff=e, model="field-2d", uncertainty_pct=z_unc * 100.0, warnings=warnings,
+                         tand_eff=tands["single"])
     res.solve_s = time.perf_counter() - t0
     res.levels = level + 1
     return res
@@ -387,3 +414,42 @@ def potential_for_plot(xs: CrossSection, level: int = 1, odd: bool = False):
     sign = -1.0 if (odd and xs.coupled) else 1.0
     phi_full = np.concatenate([sign * phi[:0:-1, :], phi], axis=0)
     return x, p.y, phi_full, lay, p
+
+
+def current_integral_resistance(xs: CrossSection, level: int = 4) -> float:
+    """R / Rs [1/m] of the signal mode from the air solution's surface current (J = c sigma).
+
+    An independent check of Wheeler's rule: R = Rs * sum(J^2 dl) / I^2 over every conductor
+    surface (trace and planes), with sigma from the discrete flux through each conductor face.
+    """
+    from dataclasses import replace as _replace
+    air = _replace(xs, below=tuple(_replace(s, er=1.0) for s in xs.below),
+                   above=tuple(_replace(s, er=1.0) for s in xs.above))
+    lay = layout_of(air)
+    p = discretise(lay, level)
+    ones = np.ones_like(p.eps)
+    _, phi = solve_energy(p, ones, odd=xs.coupled)
+    ax, ay = _edge_coefficients(Problem(p.x, p.y, ones, p.conductor))
+    cond = p.conductor
+    dx, dy = np.diff(p.x), np.diff(p.y)
+    fy = np.zeros(len(p.y))
+    fy[1:] += dy / 2.0
+    fy[:-1] += dy / 2.0
+    fx = np.zeros(len(p.x))
+    fx[1:] += dx / 2.0
+    fx[:-1] += dx / 2.0
+    # trace faces: edges joining a trace node to a free node
+    hx = cond[:-1, :] != cond[1:, :]
+    flux_x = ax * np.abs(phi[:-1, :] - phi[1:, :])
+    hy = cond[:, :-1] != cond[:, 1:]
+    flux_y = ay * np.abs(phi[:, :-1] - phi[:, 1:])
+    face_x = np.broadcast_to(fy[None, :], flux_x.shape)
+    face_y = np.broadcast_to(fx[:, None], flux_y.shape)
+    s_trace = float((flux_x[hx] ** 2 / face_x[hx]).sum() + (flux_y[hy] ** 2 / face_y[hy]).sum())
+    q = float(flux_x[hx].sum() + flux_y[hy].sum())
+    # plane surfaces: the lower plane (and the upper one of a stripline)
+    s_planes = float((flux_y[:, 0][~cond[:, 1]] ** 2 / fx[~cond[:, 1]]).sum())
+    if not lay.open_top:
+        s_planes += float((flux_y[:, -1][~cond[:, -2]] ** 2 / fx[~cond[:, -2]]).sum())
+    # half domain: both sums double in the full cross-section, the current too
+    return 2.0 * (s_trace + s_planes) / (2.0 * q) ** 2

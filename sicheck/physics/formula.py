@@ -8,11 +8,18 @@ from __future__ import annotations
 
 import numpy as np
 
-from sicheck.physics import coupled_microstrip, microstrip, stripline
+from sicheck.physics import coupled_microstrip, loss, microstrip, stripline
 from sicheck.physics import cover
 from sicheck.physics.cover import covered_eps_eff
 from sicheck.physics.cross_section import CrossSection, series_er
 from sicheck.physics.line_result import LineResult
+
+
+def series_tand(strata) -> float:
+    """Loss tangent of stacked strata in series (low loss): sum(h tand/er) / sum(h/er)."""
+    if not strata:
+        return 0.0
+    return sum(s.thickness * s.loss_tangent / s.er for s in strata) / sum(s.thickness / s.er for s in strata)
 
 
 def _arrays(xs: list[CrossSection]):
@@ -32,7 +39,9 @@ def _microstrip(xs: list[CrossSection]) -> list[LineResult]:
     covered = c > 0
     e_single = np.where(covered, covered_eps_eff(e_bare, er, er_c, c, w, h), e_bare)
     z_single = z_bare * np.sqrt(e_bare / e_single)
-    out = [LineResult(z0=float(z_single[i]), eps_eff=float(e_single[i]),
+    tand = np.array([series_tand(x.below) for x in xs])
+    td_single = loss.microstrip_tand_eff(er, e_bare, tand)
+    out = [LineResult(z0=float(z_single[i]), eps_eff=float(e_single[i]), tand_eff=float(td_single[i]),
                       model="hammerstad-jensen" + ("+cover" if covered[i] else "")) for i in range(len(xs))]
     pair = ~np.isnan(s)
     if pair.any():
@@ -46,6 +55,8 @@ def _microstrip(xs: list[CrossSection]) -> list[LineResult]:
             r.z_even = float(ze[j] * np.sqrt(ee[j] / ee_c[j]))
             r.z_odd = float(zo[j] * np.sqrt(eo[j] / eo_c[j]))
             r.eps_even, r.eps_odd = float(ee_c[j]), float(eo_c[j])
+            r.tand_even = float(loss.microstrip_tand_eff(er[i], ee[j], tand[i]))
+            r.tand_odd = float(loss.microstrip_tand_eff(er[i], eo[j], tand[i]))
             r.model = "kirschning-jansen" + ("+cover" if covered[i] else "")
     for i, x in enumerate(xs):
         r = out[i]
@@ -65,7 +76,13 @@ def _microstrip(xs: list[CrossSection]) -> list[LineResult]:
 def _stripline(xs: list[CrossSection]) -> list[LineResult]:
     w, t, s, hb, ha, eb, ea = _arrays(xs)
     z0, e0 = stripline.stripline(w, t, hb, ha, eb, ea)
-    out = [LineResult(z0=float(z0[i]), eps_eff=float(e0[i]), model="cohn-wheeler") for i in range(len(xs))]
+    # each side's share of the capacitance ~ er/h (parallel plates): weights for the loss tangent
+    tb = np.array([series_tand(x.below) for x in xs])
+    ta = np.array([series_tand(x.above) for x in xs])
+    wb, wa = eb / hb, ea / ha
+    td = (tb * wb + ta * wa) / (wb + wa)
+    out = [LineResult(z0=float(z0[i]), eps_eff=float(e0[i]), tand_eff=float(td[i]), model="cohn-wheeler")
+           for i in range(len(xs))]
     pair = ~np.isnan(s)
     if pair.any():
         idx = np.nonzero(pair)[0]
@@ -74,6 +91,7 @@ def _stripline(xs: list[CrossSection]) -> list[LineResult]:
             r = out[i]
             r.z_even, r.z_odd = float(ze[j]), float(zo[j])
             r.eps_even, r.eps_odd = float(ee[j]), float(eo[j])
+            r.tand_even = r.tand_odd = r.tand_eff
             r.model = "cohn-coupled"
     for i, x in enumerate(xs):
         r = out[i]

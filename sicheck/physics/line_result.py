@@ -39,6 +39,14 @@ class LineResult:
     l_matrix: list | None = None        # pairs, field solver: 2x2 inductance matrix, H/m
     levels: int | None = None           # field solver: grid levels used
     formula_warnings: list[str] = field(default_factory=list)   # the closed form's range warnings
+    tand_eff: float | None = None       # capacitance-weighted loss tangent (single line)
+    tand_even: float | None = None
+    tand_odd: float | None = None
+
+    @property
+    def signal_tand(self) -> float:
+        v = self.tand_odd if self.z_odd is not None else self.tand_eff
+        return 0.0 if v is None else v
 
     @property
     def coupled(self) -> bool:

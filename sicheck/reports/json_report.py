@@ -40,6 +40,10 @@ def segments_json(seg) -> list[dict]:
         "l_nh_per_mm": _col(seg, "l_per_m", 1e6), "c_pf_per_mm": _col(seg, "c_per_m", 1e9),
         "uncertainty_pct": _col(seg, "uncertainty_pct"), "formula_z_ohm": _col(seg, "formula_z"),
         "formula_zdiff_ohm": _col(seg, "formula_zdiff"),
+        "conductor_loss_db_per_mm": _col(seg, "conductor_loss_db_per_m", 1e-3),
+        "dielectric_loss_db_per_mm": _col(seg, "dielectric_loss_db_per_m", 1e-3),
+        "loss_db_per_mm": _col(seg, "loss_db_per_m", 1e-3), "loss_db": _col(seg, "loss_db"),
+        "freq_ghz": _col(seg, "freq", 1e-9),
     }
     net, layer, pair, kind, model, row = (seg[c].tolist() for c in ("net", "layer", "pair", "kind", "model", "row"))
     out = []
@@ -50,7 +54,10 @@ def segments_json(seg) -> list[dict]:
              "delay_ps_per_mm": cols["delay_ps_per_mm"][i], "l_nh_per_mm": cols["l_nh_per_mm"][i],
              "c_pf_per_mm": cols["c_pf_per_mm"][i], "model": model[i],
              "solver": "field" if model[i].startswith("field") else "formula",
-             "uncertainty_pct": cols["uncertainty_pct"][i]}
+             "uncertainty_pct": cols["uncertainty_pct"][i], "freq_ghz": cols["freq_ghz"][i],
+             "conductor_loss_db_per_mm": cols["conductor_loss_db_per_mm"][i],
+             "dielectric_loss_db_per_mm": cols["dielectric_loss_db_per_mm"][i],
+             "loss_db_per_mm": cols["loss_db_per_mm"][i], "loss_db": cols["loss_db"][i]}
         if pair[i]:
             d.update(pair=pair[i], gap_mm=cols["gap_mm"][i], zdiff_ohm=cols["zdiff_ohm"][i],
                      zodd_ohm=cols["zodd_ohm"][i], zeven_ohm=cols["zeven_ohm"][i])
@@ -69,6 +76,7 @@ def nets_json(nets) -> list[dict]:
             "net": r.net, "net_class": r.net_class or None, "pair": r.pair or None, "segments": int(r.segments),
             "layers": r.layers, "length_mm": _num(r.length * 1e3), "delay_ps": _num(r.delay * 1e12),
             "rise_time_ps": _num(r.rise_time * 1e12), "td_over_tr": _num(r.td_over_tr, 4),
+            "freq_ghz": _num(r.freq * 1e-9, 4), "loss_db": _num(r.loss_db, 4),
             "knee_ghz": _num(r.knee_hz * 1e-9, 4), "wavelength_at_knee_mm": _num(r.wavelength_at_knee * 1e3),
             "lumped_limit_mm": _num(r.lumped_limit_length * 1e3), "critical_length_mm": _num(r.critical_length * 1e3),
             "electrical": r.electrical, "termination": r.termination,

@@ -194,6 +194,7 @@ def _nets(wb: Workbook, rv: Review):
             ("Series R [ohm]", "0", 12), ("Z at driver end [ohm]", "0.0", 12),
             ("Lumped limit [mm]", "0.0", 12), ("Critical length [mm]", "0.0", 13),
             ("Knee freq [GHz]", "0.000", 11), ("Wavelength at knee [mm]", "0.0", 13),
+            ("Loss freq [GHz]", "0.000", 10), ("Insertion loss [dB]", "0.000", 11),
             ("Simulated termination", None, 40), ("Overshoot before [%]", "0.0", 11),
             ("Overshoot after [%]", "0.0", 11), ("Ringback before [%]", "0.0", 11), ("Ringback after [%]", "0.0", 11),
             ("Settled before [ns]", "0.00", 11), ("Settled after [ns]", "0.00", 11), ("Flight time [ns]", "0.000", 10),
@@ -214,7 +215,7 @@ def _nets(wb: Workbook, rv: Review):
                 r.rise_time * 1e12, r.td_over_tr, r.electrical, r.termination,
                 None if r.series_ohm is None else float(r.series_ohm), r.z_driver_end,
                 r.lumped_limit_length * 1e3, r.critical_length * 1e3, r.knee_hz * 1e-9,
-                r.wavelength_at_knee * 1e3] + wave + [r.advice],
+                r.wavelength_at_knee * 1e3, r.freq * 1e-9, r.loss_db] + wave + [r.advice],
                fill=fills.get(r.termination), fill_cols=(10,))
     sh.finish()
 
@@ -226,7 +227,9 @@ def _segments(wb: Workbook, rv: Review):
             ("Z0 [ohm]", "0.0", 9), ("Zdiff [ohm]", "0.0", 10), ("Zodd [ohm]", "0.0", 10), ("Zeven [ohm]", "0.0", 10),
             ("eps_eff", "0.000", 8), ("Delay [ps/mm]", "0.000", 11), ("Delay [ps]", "0.0", 10),
             ("L [nH/mm]", "0.0000", 10), ("C [pF/mm]", "0.0000", 10), ("Model", None, 20),
-            ("Uncertainty [%]", "0.00", 11), ("Closed-form Z [ohm]", "0.0", 12)]
+            ("Uncertainty [%]", "0.00", 11), ("Closed-form Z [ohm]", "0.0", 12), ("Freq [GHz]", "0.000", 9),
+            ("Loss [dB/mm]", "0.0000", 10), ("Conductor [dB/mm]", "0.0000", 11), ("Dielectric [dB/mm]", "0.0000", 11),
+            ("Loss [dB]", "0.000", 9)]
     sh = _Sheet(wb, "Segments", cols)
     sh.header()
     arr = {c: seg[c].to_numpy() for c in seg.columns}
@@ -236,7 +239,9 @@ def _segments(wb: Workbook, rv: Review):
                 arr["length"][i] * 1e3, arr["width"][i] * 1e3, arr["gap"][i] * 1e3, arr["z0"][i], arr["zdiff"][i],
                 arr["zodd"][i], arr["zeven"][i], arr["eps_eff"][i], arr["delay_per_m"][i] * 1e9,
                 arr["delay"][i] * 1e12, arr["l_per_m"][i] * 1e6, arr["c_per_m"][i] * 1e9, arr["model"][i],
-                arr["uncertainty_pct"][i], zf[i]])
+                arr["uncertainty_pct"][i], zf[i], arr["freq"][i] * 1e-9, arr["loss_db_per_m"][i] * 1e-3,
+                arr["conductor_loss_db_per_m"][i] * 1e-3, arr["dielectric_loss_db_per_m"][i] * 1e-3,
+                arr["loss_db"][i]])
     sh.finish()
 
 
