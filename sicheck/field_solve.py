@@ -1,7 +1,8 @@
 """Field-solving a board's cross-sections: disk cache, both cores, progress.
 
 The physics is in sicheck.physics.field2d; this module only decides what to solve,
-where results are kept and how work is spread. The cache lives in
+where results are kept and how work is spread (processes: $SICHECK_WORKERS, default the
+number of cores up to 4). The cache lives in
 $SICHECK_CACHE_DIR, else $XDG_CACHE_HOME/sicheck, else ~/.cache/sicheck, one JSON file
 per cross-section keyed by a hash of its exact geometry and the solver settings.
 """
@@ -88,6 +89,8 @@ def solve_field_all(xs_list: list[CrossSection], target_pct: float = field2d.DEF
     done = len(xs_list) - len(todo)
     if progress:
         progress(done, len(xs_list))
+    if workers is None and os.environ.get("SICHECK_WORKERS", "").isdigit():
+        workers = int(os.environ["SICHECK_WORKERS"])
     n_workers = workers if workers is not None else min(os.cpu_count() or 1, 4)
     if len(todo) >= 3 and n_workers > 1:
         with ProcessPoolExecutor(max_workers=n_workers) as pool:

@@ -52,6 +52,7 @@ def test_review_field_solver_keys_cache_and_formula_finding(run, board, tmp_path
     assert len(cached) == 6
 
     calls = []
+    monkeypatch.setenv("SICHECK_WORKERS", "1")      # solve in this process so that the spy sees every solve
     real = field_solve._solve_one
     monkeypatch.setattr(field_solve, "_solve_one", lambda a: calls.append(1) or real(a))
     code, _, err = run("review", tr, "--stackup", st, "--solver", "field", "--json", js)
