@@ -247,6 +247,28 @@ def line(
 
 
 @app.command()
+def plan(
+    stackup: Path = typer.Argument(..., help="Stackup file (.toml)."),
+    z0: Optional[list[float]] = typer.Option(None, "--z0", help="Single-ended target in ohm (repeatable)."),
+    zdiff: Optional[list[float]] = typer.Option(None, "--zdiff", help="Differential target in ohm (repeatable)."),
+    gap_rule: str = typer.Option("equal", "--gap-rule", help="How pairs pick their gap: equal (gap = width), "
+                                                             "min (the rules' minimum feature) or fixed:<gap>."),
+    freq: Optional[list[str]] = typer.Option(None, "--freq", help="Frequency for loss per length (repeatable; "
+                                                                  "default 1GHz)."),
+    solver: str = typer.Option("field", "--solver", help="field (default) or formula."),
+    rules: Optional[list[Path]] = typer.Option(None, "--rules", "-r", help="Rule set (minimum feature, maximum "
+                                                                           "width)."),
+    no_cache: bool = typer.Option(False, "--no-cache", help="Do not use the field-solver cache."),
+    as_json: bool = typer.Option(False, "--json", help="Print one JSON object on standard output."),
+    out: Optional[Path] = typer.Option(None, "--out", "-o", help="Plan workbook to write (.xlsx)."),
+):
+    """Widths (and width/gap pairs) for target impedances on every signal layer, with delay and loss."""
+    from sicheck.plan_cmd import run_plan
+    raise typer.Exit(run_plan(stackup, z0 or [], zdiff or [], gap_rule, freq or [], solver, rules, no_cache,
+                              as_json, out))
+
+
+@app.command()
 def wave(
     z0: list[str] = typer.Option(..., "--z0", help="Line impedance (repeat with --delay for a chain, driver end "
                                                    "first)."),

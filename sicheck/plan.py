@@ -1,0 +1,167 @@
+"""Stackup planning: the width (and width/gap) that gives each target impedance.
+
+For each signal layer the closed form gives a starting width by bisection; the
+chosen solver (the field solver by default) then refines it with secant steps on
+ln Z against ln w until the impedance is within TOL_PCT of the target.
+
+Pairs need a rule to pick one of the many width/gap pairs that hit a Zdiff:
+  equal        gap = width (common practice)
+  fixed:<len>  the gap is given, e.g. fixed:0.15mm
+  min          the gap is the rules' minimum feature size (the tightest coupling, so the
+               narrowest pair that the fabrication rules allow)
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+
+from sicheck.physics.cross_section import CrossSection
+from sicheck.physics.formula import solve_formula
+from sicheck.physics.line_loss import Roughness, alphas, wheeler_derivative
+from sicheck.physics.line_result import LineResult, per_length
+from sicheck.stackup import Stackup
+
+TOL_PCT = 0.1          # aim; the issue's acceptance is 0.5 %
+MAX_STEPS = 10
+Solver = Callable[[list[CrossSection]], list[LineResult]]
+
+
+@dataclass
+class GapRule:
+    kind: str                  # "equal" | "fixed" | "min"
+    gap: float | None = None
+
+    def gap_for(self, width: float, min_feature: float) -> float:
+        if self.kind == "equal":
+            return width
+        if self.kind == "fixed":
+            return float(self.gap)
+        return min_feature
+
+    def describe(self) -> str:
+        return {"equal": "gap = width", "fixed": f"fixed gap {self.gap * 1e3:g} mm" if self.gap else "fixed gap",
+                "min": "gap = minimum feature"}[self.kind]
+
+
+@dataclass
+class Target:
+    layer: str
+    kind: str                    # line kind
+    what: str                    # "z0" | "zdiff"
+    target: float
+    width: float | None = None
+    gap: float | None = None
+    achieved: float | None = None
+    error_pct: float | None = None
+    uncertainty_pct: float | None = None
+    delay_per_m: float | None = None
+    eps_eff: float | None = None
+    losses: list[dict] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    steps: int = 0
+
+
+def _impedance(xs_list: list[CrossSection], what: str, solver: Solver) -> list[LineResult]:
+    return solver(xs_list)
+
+
+def _z_of(r: LineResult, what: str) -> float:
+    return r.zdiff if what == "zdiff" else r.z0
+
+
+def _make(st: Stackup, layer: str, w: float, what: str, rule: GapRule, min_feature: float) -> CrossSection:
+    gap = rule.gap_for(w, min_feature) if what == "zdiff" else None
+    return st.cross_section(layer, w, gap)
+
+
+def _formula_width(st, layer, target, what, rule, min_feature, h_scale) -> float | None:
+    """Starting width from the closed form: the crossing of the target at the largest width.
+
+    Outside their ranges (very narrow strips) the closed forms can misbehave, so the scan
+    covers 0.02..30 x the dielectric height and keeps the physical (widest) crossing.
+    """
+    ws = np.geomspace(max(0.02 * h_scale, 0.5 * min_feature), 30.0 * h_scale, 160)
+    with np.errstate(all="ignore"):
+        zs = np.array([_z_of(r, what) for r in
+                       solve_formula([_make(st, layer, w, what, rule, min_feature) for w in ws])], dtype=float)
+    for i in range(len(ws) - 2, -1, -1):
+        a, b = zs[i], zs[i + 1]
+        if np.isfinite(a) and np.isfinite(b) and (a - target) * (b - target) <= 0 and a != b:
+            frac = (math.log(target) - math.log(a)) / (math.log(b) - math.log(a))
+            return float(math.exp(math.log(ws[i]) + frac * (math.log(ws[i + 1]) - math.log(ws[i]))))
+    return None
+
+
+def synthesise(st: Stackup, layer: str, target: float, what: str, solver: Solver, rule: GapRule,
+               min_feature: float, max_width: float) -> Target:
+    g = st.geometry(layer)
+    h_scale = min(sum(s.thickness for s in g.below), sum(s.thickness for s in g.above) or 1.0)
+    res = Target(layer=layer, kind=g.kind, what=what, target=target)
+    w = _formula_width(st, layer, target, what, rule, min_feature, h_scale)
+    if w is None:
+        hint = " (try another --gap-rule, e.g. fixed:<wider gap>)" if what == "zdiff" else ""
+        res.notes.append(f"no width from {0.5 * min_feature * 1e3:g} mm up gives {'Zdiff' if what == 'zdiff' else 'Z0'} "
+                         f"{target:g} ohm on {layer} with {rule.describe() if what == 'zdiff' else 'this stackup'}"
+                         f"{hint}")
+        return res
+    pts: list[tuple[float, float]] = []
+    r = None
+    for step in range(MAX_STEPS):
+        r = solver([_make(st, layer, w, what, rule, min_feature)])[0]
+        z = _z_of(r, what)
+        pts.append((math.log(w), math.log(z)))
+        res.steps = step + 1
+        if abs(z / target - 1.0) * 100.0 <= TOL_PCT:
+            break
+        if len(pts) >= 2 and pts[-1][1] != pts[-2][1]:
+            slope = (pts[-1][1] - pts[-2][1]) / (pts[-1][0] - pts[-2][0])
+        else:
+            # first step: the closed form's local slope d ln Z / d ln w
+            z1, z2 = (_z_of(x, what) for x in solve_formula([_make(st, layer, w * 0.98, what, rule, min_feature),
+                                                             _make(st, layer, w * 1.02, what, rule, min_feature)]))
+            slope = (math.log(z2) - math.log(z1)) / (math.log(1.02) - math.log(0.98))
+        if not slope < 0:
+            res.notes.append("the impedance stops changing with width here (for a pair with gap = width, the side "
+                             "walls' coupling caps Zdiff): the target is out of reach; try a wider fixed gap")
+            break
+        w = math.exp(pts[-1][0] + (math.log(target) - pts[-1][1]) / slope)
+    res.width = w
+    res.gap = rule.gap_for(w, min_feature) if what == "zdiff" else None
+    res.achieved = _z_of(r, what)
+    res.error_pct = (res.achieved / target - 1.0) * 100.0
+    res.uncertainty_pct = r.uncertainty_pct
+    res.eps_eff = r.signal_eps
+    res.delay_per_m = float(per_length(r.signal_z, r.signal_eps)[2])
+    if abs(res.error_pct) > 0.5:
+        res.notes.append(f"reached {res.achieved:.2f} ohm ({res.error_pct:+.2f} %), outside 0.5 % of the target")
+    if w < min_feature:
+        res.notes.append(f"width {w * 1e3:.4f} mm is below the minimum feature {min_feature * 1e3:g} mm")
+    if res.gap is not None and res.gap < min_feature * (1 - 1e-9):
+        res.notes.append(f"gap {res.gap * 1e3:.4f} mm is below the minimum feature {min_feature * 1e3:g} mm")
+    if w > max_width:
+        res.notes.append(f"width {w * 1e3:.3f} mm is above the {max_width * 1e3:g} mm maximum: use a thinner "
+                         "dielectric or a different target")
+    res._result = r      # kept for the loss step
+    return res
+
+
+def add_losses(st: Stackup, targets: list[Target], freqs: list[float], solver: Solver, rule: GapRule,
+               min_feature: float) -> None:
+    done = [t for t in targets if t.width is not None]
+    if not done or not freqs:
+        return
+    xs = [_make(st, t.layer, t.width, t.what, rule, min_feature) for t in done]
+    dzdn = wheeler_derivative(xs, solver)
+    for t, d in zip(done, dzdn):
+        r = t._result
+        lay = st.layer(t.layer)
+        rough = Roughness(rms=lay.roughness, huray_radius=lay.huray_radius, huray_ratio=lay.huray_ratio)
+        for f in freqs:
+            a_c, a_d = alphas(f, r.signal_z, r.signal_eps, r.signal_tand, d, rough)
+            t.losses.append({"freq_ghz": f * 1e-9, "conductor_loss_db_per_mm": float(a_c) * 1e-3,
+                             "dielectric_loss_db_per_mm": float(a_d) * 1e-3,
+                             "loss_db_per_mm": (float(a_c) + float(a_d)) * 1e-3})

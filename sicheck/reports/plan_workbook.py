@@ -1,0 +1,48 @@
+"""The plan as a workbook a designer can send to the fabricator."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from openpyxl import Workbook
+
+from sicheck.reports.atomic import atomic_path
+from sicheck.reports.workbook import BOLD, TITLE_FONT, _Sheet, _value
+from openpyxl.cell import WriteOnlyCell
+
+
+def write_plan_workbook(plan: dict, target: str | Path) -> None:
+    wb = Workbook(write_only=True)
+    ws = wb.create_sheet("Plan")
+    ws.column_dimensions["A"].width = 28
+    ws.column_dimensions["B"].width = 60
+    t = WriteOnlyCell(ws, value="Impedance plan")
+    t.font = TITLE_FONT
+    ws.append([t])
+    for k, v in (("Stackup", plan["stackup"]), ("Stackup file", plan["stackup_file"]), ("Solver", plan["solver"]),
+                 ("Pair rule", plan["gap_rule"]), ("Minimum feature [mm]", plan["min_feature_mm"]),
+                 ("Loss frequencies [GHz]", ", ".join(f"{f:g}" for f in plan["freqs_ghz"])),
+                 ("Caution", "Engineering estimates: the fabricator adjusts widths to hit impedance; confirm with "
+                             "their impedance report and test coupons.")):
+        kc = WriteOnlyCell(ws, value=k)
+        kc.font = BOLD
+        ws.append([kc, _value(ws, v)])
+    cols = [("Layer", None, 10), ("Line type", None, 11), ("Target", None, 12), ("Width [mm]", "0.0000", 11),
+            ("Gap [mm]", "0.0000", 10), ("Achieved [ohm]", "0.00", 12), ("Error [%]", "+0.00;-0.00", 9),
+            ("Uncertainty [%]", "0.00", 11), ("eps_eff", "0.000", 8), ("Delay [ps/mm]", "0.000", 11)]
+    freqs = plan["freqs_ghz"]
+    for f in freqs:
+        cols.append((f"Loss at {f:g} GHz [dB/mm]", "0.00000", 14))
+    cols.append(("Notes", None, 60))
+    sh = _Sheet(wb, "Widths", cols)
+    sh.header()
+    for L in plan["layers"]:
+        for kind, items in (("Z0", L["singles"]), ("Zdiff", L["pairs"])):
+            for d in items:
+                losses = [x["loss_db_per_mm"] for x in d["losses"]] + [None] * (len(freqs) - len(d["losses"]))
+                sh.row([L["layer"], L["kind"], f"{kind} {d['target_ohm']:g} ohm", d["width_mm"], d["gap_mm"],
+                        d["achieved_ohm"], d["error_pct"], d["uncertainty_pct"], d["eps_eff"], d["delay_ps_per_mm"]]
+                       + losses + ["; ".join(d["notes"])])
+    sh.finish()
+    with atomic_path(target) as tmp:
+        wb.save(tmp)
