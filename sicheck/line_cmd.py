@@ -192,6 +192,12 @@ def run_line(kind, width, thickness, er, height, below, above, er_below, er_abov
     d = line_dict(xs, r, ln, units)
     if f_hz is not None:
         d.update(line_loss(xs, r, solver, f_hz, rough))
+        if solver == "formula" and xs.kind == "microstrip" and not xs.coupled and not xs.above:
+            from sicheck.physics.cross_section import series_er
+            from sicheck.physics.loss import kirschning_jansen_dispersion
+            e_f = float(kirschning_jansen_dispersion(f_hz, xs.width, xs.h_below, series_er(xs.below), r.eps_eff))
+            d["eps_eff_at_freq"] = e_f
+            d["delay_ps_per_mm_at_freq"] = e_f**0.5 / 299792458.0 * 1e9
         if ln is not None:
             d["loss_db"] = d["loss_db_per_mm"] * ln * 1e3
     if plot is not None:

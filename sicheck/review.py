@@ -197,6 +197,21 @@ def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataF
     z0 = col(lambda r: r.z0)
     zs = col(lambda r: r.signal_z)
     es = col(lambda r: r.signal_eps)
+    # closed-form single microstrips: eps_eff at the net's frequency (Kirschning & Jansen 1982); Z0 stays static
+    disp = np.array([r.model.startswith("hammerstad") and not r.coupled for r in results])[codes]
+    if disp.any():
+        from sicheck.physics.cross_section import series_er
+        from sicheck.physics.loss import kirschning_jansen_dispersion
+        w = np.array([x.width for x in xs])[codes][disp]
+        h = np.array([x.h_below for x in xs])[codes][disp]
+        er = np.array([series_er(x.below) for x in xs])[codes][disp]
+        covered = np.array([bool(x.above) for x in xs])[codes][disp]
+        f = df["freq"].to_numpy(float)[disp]
+        e_static = es[disp]
+        # a cover raises eps_eff; disperse the bare part and keep the cover's increment
+        e_disp = np.where(covered, e_static, kirschning_jansen_dispersion(f, w, h, er, e_static))
+        es = es.copy()
+        es[disp] = np.minimum(e_disp, er)
     l_pm, c_pm, d_pm = per_length(zs, es)
     seg = pd.DataFrame({
         "row": df["row"].to_numpy(),

@@ -198,3 +198,51 @@ def test_review_loss_budget_and_min_feature(run, board, tmp_path):
     assert nets["FLONG"]["freq_ghz"] == pytest.approx(5.0)
     seg = d["segments"][0]
     assert seg["loss_db"] == pytest.approx(seg["loss_db_per_mm"] * seg["length_mm"], rel=1e-4)
+
+
+DISPERSIVE = """\
+units = "mm"
+[[layers]]
+type = "signal"
+name = "S1"
+copper = "1oz"
+[[layers]]
+type = "dielectric"
+thickness = 0.1
+er = 4.0
+loss_tangent = 0.02
+freq = "1GHz"
+[[layers]]
+type = "plane"
+name = "G"
+copper = "1oz"
+"""
+
+
+def test_dispersive_stackup_moves_er_with_frequency(tmp_path):
+    from sicheck.stackup import load_stackup
+    p = tmp_path / "s.toml"
+    p.write_text(DISPERSIVE)
+    st = load_stackup(p)
+    assert st.dispersive
+    lo = st.cross_section("S1", 0.2e-3, freq=100e6).below[0]
+    ref = st.cross_section("S1", 0.2e-3, freq=1e9).below[0]
+    hi = st.cross_section("S1", 0.2e-3, freq=10e9).below[0]
+    assert ref.er == pytest.approx(4.0) and ref.loss_tangent == pytest.approx(0.02)
+    assert lo.er > ref.er > hi.er
+
+
+def test_review_evaluates_each_net_at_its_frequency(run, tmp_path):
+    # Two nets on the same trace with different edges: on the dispersive stackup (Djordjevic-Sarkar) and with
+    # Kirschning-Jansen dispersion of the closed form, the faster net sees a different eps_eff.
+    (tmp_path / "s.toml").write_text(DISPERSIVE)
+    (tmp_path / "t.csv").write_text("net,layer,length,width,rise_time\nSLOW,S1,50mm,0.2mm,5ns\nFAST,S1,50mm,0.2mm,"
+                                    "50ps\n")
+    js = tmp_path / "r.json"
+    code, out, err = run("review", tmp_path / "t.csv", "--stackup", tmp_path / "s.toml", "--solver", "formula",
+                         "--json", js)
+    d = json.loads(js.read_text())
+    seg = {s["net"]: s for s in d["segments"]}
+    assert seg["FAST"]["freq_ghz"] == pytest.approx(10.0) and seg["SLOW"]["freq_ghz"] == pytest.approx(0.1)
+    assert seg["FAST"]["eps_eff"] != pytest.approx(seg["SLOW"]["eps_eff"], rel=1e-3)
+    assert seg["FAST"]["loss_db_per_mm"] > seg["SLOW"]["loss_db_per_mm"]
