@@ -11,7 +11,7 @@ import numpy as np
 from sicheck.errors import InputError
 from sicheck.physics.cross_section import CrossSection, Stratum
 from sicheck.physics.line_result import LineResult, per_length
-from sicheck.units import UnitError, parse_quantity
+from sicheck.units import UnitError, option_frequency, parse_quantity
 
 
 def _len(value: str | None, option: str, units: str) -> float | None:
@@ -174,14 +174,7 @@ def run_line(kind, width, thickness, er, height, below, above, er_below, er_abov
             raise InputError("--loss-tangent must be from 0 to 1")
         xs = replace(xs, below=tuple(replace(s, loss_tangent=loss_tangent) for s in xs.below),
                      above=tuple(s if s.conformal else replace(s, loss_tangent=loss_tangent) for s in xs.above))
-    f_hz = None
-    if freq is not None:
-        try:
-            f_hz = parse_quantity(freq, "frequency")
-        except UnitError as e:
-            raise InputError(f"--freq: {e}") from None
-        if not 1e3 <= f_hz <= 1e12:
-            raise InputError("--freq must be between 1 kHz and 1 THz")
+    f_hz = None if freq is None else option_frequency(freq, "--freq")
     from sicheck.physics.line_loss import Roughness
     rough = Roughness(rms=_len(roughness, "--roughness", units) if roughness else None)
     if plot is not None:

@@ -7,7 +7,7 @@ import sys
 from pathlib import Path
 
 from sicheck.errors import InputError
-from sicheck.units import UnitError, parse_quantity
+from sicheck.units import UnitError, option_frequency, parse_quantity
 
 
 def parse_gap_rule(text: str):
@@ -55,15 +55,7 @@ def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str
         if not 5.0 <= v <= 500.0:
             raise InputError(f"{opt} {v:g} ohm is outside 5..500 ohm")
     rule = parse_gap_rule(gap_rule)
-    f_hz = []
-    for f in freqs or ["1GHz"]:
-        try:
-            v = parse_quantity(f, "frequency")
-        except UnitError as e:
-            raise InputError(f"--freq: {e}") from None
-        if not 1e3 <= v <= 1e12:
-            raise InputError("--freq must be between 1 kHz and 1 THz")
-        f_hz.append(v)
+    f_hz = [option_frequency(f, "--freq") for f in freqs or ["1GHz"]]
     if solver not in ("field", "formula"):
         raise InputError("--solver must be 'field' or 'formula' for plan")
     solve = _solver_fn(solver, no_cache, show_progress=False)

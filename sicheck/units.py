@@ -114,3 +114,15 @@ def _example(dimension: str) -> str:
 def to_unit(value_si: float, unit: str, dimension: str) -> float:
     """Convert an SI value to ``unit`` (for output)."""
     return value_si / unit_factor(unit, dimension)
+
+
+def option_frequency(text: str, option: str) -> float:
+    """A command-line frequency (1 kHz..1 THz) in Hz; bad values raise InputError naming the option."""
+    from sicheck.errors import InputError
+    try:
+        f = parse_quantity(text, "frequency")
+    except UnitError as e:
+        raise InputError(f"{option}: {e}") from None
+    if not 1e3 <= f <= 1e12:
+        raise InputError(f"{option} must be between 1 kHz and 1 THz (got {text})")
+    return f
