@@ -236,6 +236,9 @@ def line(
                                                             "--loss-tangent are taken as they are there)."),
     loss_tangent: Optional[float] = typer.Option(None, "--loss-tangent", help="Loss tangent of the dielectric."),
     roughness: Optional[str] = typer.Option(None, "--roughness", help="RMS copper roughness (Hammerstad-Jensen)."),
+    huray_radius: Optional[str] = typer.Option(None, "--huray-radius", help="Huray model: copper ball radius."),
+    huray_ratio: Optional[float] = typer.Option(None, "--huray-ratio", help="Huray model: ball surface per flat "
+                                                                            "area."),
     units: str = typer.Option("mm", "--units", help="Unit for bare numbers (mm, um, mil, in)."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object on standard output."),
 ):
@@ -243,7 +246,7 @@ def line(
     from sicheck.line_cmd import run_line
     run_line(kind.value, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er,
              length, solver, units, as_json, etch_factor=etch_factor, top_width=top_width, plot=plot, freq=freq,
-             loss_tangent=loss_tangent, roughness=roughness)
+             loss_tangent=loss_tangent, roughness=roughness, huray_radius=huray_radius, huray_ratio=huray_ratio)
 
 
 @app.command()

@@ -166,7 +166,7 @@ def line_loss(xs: CrossSection, r: LineResult, solver: str, freq: float, rough) 
 
 def run_line(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er, length,
              solver, units, as_json, etch_factor=None, top_width=None, plot=None, freq=None, loss_tangent=None,
-             roughness=None) -> None:
+             roughness=None, huray_radius=None, huray_ratio=None) -> None:
     xs = build_cross_section(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask,
                              mask_er, units, etch_factor, top_width)
     if loss_tangent is not None:
@@ -176,7 +176,15 @@ def run_line(kind, width, thickness, er, height, below, above, er_below, er_abov
                      above=tuple(s if s.conformal else replace(s, loss_tangent=loss_tangent) for s in xs.above))
     f_hz = None if freq is None else option_frequency(freq, "--freq")
     from sicheck.physics.line_loss import Roughness
-    rough = Roughness(rms=_len(roughness, "--roughness", units) if roughness else None)
+    if (huray_radius is None) != (huray_ratio is None):
+        raise InputError("Huray's model needs both --huray-radius and --huray-ratio")
+    if huray_ratio is not None and not 0 < huray_ratio < 100:
+        raise InputError("--huray-ratio must be a positive number (ball surface per flat area)")
+    if roughness is not None and huray_radius is not None:
+        raise InputError("give --roughness or the Huray options, not both")
+    rough = Roughness(rms=_len(roughness, "--roughness", units) if roughness else None,
+                      huray_radius=_len(huray_radius, "--huray-radius", units) if huray_radius else None,
+                      huray_ratio=huray_ratio)
     if plot is not None:
         from sicheck.reports.atomic import refuse_inputs
         refuse_inputs(plot, [], "--plot")

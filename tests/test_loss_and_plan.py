@@ -246,3 +246,17 @@ def test_review_evaluates_each_net_at_its_frequency(run, tmp_path):
     assert seg["FAST"]["freq_ghz"] == pytest.approx(10.0) and seg["SLOW"]["freq_ghz"] == pytest.approx(0.1)
     assert seg["FAST"]["eps_eff"] != pytest.approx(seg["SLOW"]["eps_eff"], rel=1e-3)
     assert seg["FAST"]["loss_db_per_mm"] > seg["SLOW"]["loss_db_per_mm"]
+
+
+def test_line_roughness_raises_conductor_loss(run):
+    base = ["line", "microstrip", "--width", "0.2", "--thickness", "0.035", "--er", "4", "--height", "0.1",
+            "--freq", "10GHz", "--json"]
+    smooth = json.loads(run(*base)[1])
+    rms = json.loads(run(*base, "--roughness", "2um")[1])
+    huray = json.loads(run(*base, "--huray-radius", "0.5um", "--huray-ratio", "2")[1])
+    # at 10 GHz the skin depth (0.65 um) is well below 2 um RMS: Hammerstad-Jensen K close to 2
+    assert rms["roughness_factor"] == pytest.approx(2.0, abs=0.05)
+    assert rms["conductor_loss_db_per_mm"] == pytest.approx(smooth["conductor_loss_db_per_mm"] * rms["roughness_factor"])
+    assert 1.0 < huray["roughness_factor"] < 3.0
+    code, out, err = run(*base, "--huray-radius", "0.5um")
+    assert code == 2 and "both" in err

@@ -56,16 +56,32 @@ def _value(ws, v):
     return v
 
 
+def _longest(values) -> int:
+    """Longest text among values (a sample of at most 20 000 is enough for a width)."""
+    n = 0
+    for k, v in enumerate(values):
+        if k >= 20000:
+            break
+        if isinstance(v, str) and len(v) > n:
+            n = len(v)
+    return n
+
+
 class _Sheet:
     """A write-only sheet with a header row, frozen panes, filter and fitted widths."""
 
-    def __init__(self, wb: Workbook, title: str, columns: list[tuple[str, str | None, int]], header_row: int = 1):
+    def __init__(self, wb: Workbook, title: str, columns: list[tuple[str, str | None, int]], header_row: int = 1,
+                 fit: dict[int, object] | None = None):
         self.ws = wb.create_sheet(title)
         self.columns = columns
         self.n = len(columns)
         self.formats = [fmt for _, fmt, _ in columns]
         for j, (name, _, width) in enumerate(columns):
-            self.ws.column_dimensions[get_column_letter(j + 1)].width = max(width, len(name) + 2)
+            # headers wrap, so a long header does not force a wide column; text columns fit their content
+            w = max(width, min(len(name) + 2, 16))
+            if fit and j in fit:
+                w = min(max(w, _longest(fit[j]) + 2), 100)
+            self.ws.column_dimensions[get_column_letter(j + 1)].width = w
         self.ws.freeze_panes = f"A{header_row + 1}"
         self.header_row = header_row
         self.rows = header_row
@@ -173,7 +189,9 @@ def _findings(wb: Workbook, rv: Review):
     cols = [("ID", None, 7), ("Severity", None, 10), ("Rule", None, 18), ("Net", None, 22), ("Layer", None, 12),
             ("Finding", None, 90), ("Trace row", "0", 9), ("Disposition", None, 13), ("Reviewer", None, 14),
             ("Comment", None, 40)]
-    sh = _Sheet(wb, "Findings", cols)
+    fs = rv.findings
+    sh = _Sheet(wb, "Findings", cols, fit={3: [f.net for f in fs], 4: [f.layer for f in fs],
+                                           5: [f.message for f in fs]})
     n = max(len(rv.findings), 1)
     dv = DataValidation(type="list", formula1='"' + ",".join(DISPOSITIONS) + '"', allow_blank=True,
                         showErrorMessage=True, errorTitle="Disposition",
@@ -199,7 +217,11 @@ def _nets(wb: Workbook, rv: Review):
             ("Overshoot after [%]", "0.0", 11), ("Ringback before [%]", "0.0", 11), ("Ringback after [%]", "0.0", 11),
             ("Settled before [ns]", "0.00", 11), ("Settled after [ns]", "0.00", 11), ("Flight time [ns]", "0.000", 10),
             ("Termination power [mW]", "0.0", 12), ("Meets limits", None, 9), ("First-order advice", None, 80)]
-    sh = _Sheet(wb, "Nets", cols)
+    nets = rv.nets
+    fit = {0: nets["net"], 1: nets["net_class"], 2: nets["pair"], 3: nets["layers"]}
+    if "termination_part" in nets.columns:
+        fit[19] = nets["termination_part"]
+    sh = _Sheet(wb, "Nets", cols, fit=fit)
     sh.header()
     fills = {"required": SEVERITY_FILL["warning"], "recommended": SEVERITY_FILL["info"]}
     nets = rv.nets
@@ -230,7 +252,7 @@ def _segments(wb: Workbook, rv: Review):
             ("Uncertainty [%]", "0.00", 11), ("Closed-form Z [ohm]", "0.0", 12), ("Freq [GHz]", "0.000", 9),
             ("Loss [dB/mm]", "0.0000", 10), ("Conductor [dB/mm]", "0.0000", 11), ("Dielectric [dB/mm]", "0.0000", 11),
             ("Loss [dB]", "0.000", 9)]
-    sh = _Sheet(wb, "Segments", cols)
+    sh = _Sheet(wb, "Segments", cols, fit={1: seg["net"], 2: seg["pair"], 3: seg["layer"], 17: seg["model"]})
     sh.header()
     arr = {c: seg[c].to_numpy() for c in seg.columns}
     zf = np.where(arr["pair"] != "", arr["formula_zdiff"], arr["formula_z"])
