@@ -10,7 +10,7 @@ Candidates, with values from IEC 60063 series:
 The recommendation is the candidate that meets the limits (overshoot, ringback,
 settling) at the least static power; among equals, the one that settles first.
 Static power is the DC power in the driver and termination, averaged over the high
-and low states. Segments shorter than Tr/20 are folded into their neighbours first
+and low states. Segments shorter than Tr/10 are folded into their neighbours first
 (transient.merge_short).
 """
 
@@ -93,7 +93,7 @@ def choose(z: list[float], td: list[float], rise: float, driver_ohm: float, swin
            limits: Limits, zdiff: float | None = None, keep_waves: bool = False) -> tuple[Candidate, Candidate,
                                                                                            list[Candidate]]:
     """(unterminated, recommended, all candidates) for one net."""
-    z, td = merge_short(z, td, rise / 20.0)
+    z, td = merge_short(z, td, rise / 10.0)
     td_total = float(sum(td))
     cands: list[Candidate] = []
 

@@ -109,8 +109,9 @@ def merge_short(z: list[float], td: list[float], min_td: float) -> tuple[list[fl
     """Fold segments shorter than ``min_td`` into their longer neighbour (delay kept).
 
     A segment whose delay is a small fraction of the edge reflects about
-    Gamma x 2 TD / Tr of it; below Tr/20 that is a few percent of its step, and keeping
-    it would force a time step far finer than the edge needs.
+    Gamma x 2 TD / Tr of it; below Tr/10 that is at most a fifth of its own small step
+    (a few percent of the edge for the usual 10-20 % impedance steps), and keeping it
+    would force blocks far shorter than the edge needs.
     """
     z, td = list(z), list(td)
     while len(td) > 1 and min(td) < min_td:

@@ -85,6 +85,11 @@ class _Sheet:
         self.ws.freeze_panes = f"A{header_row + 1}"
         self.header_row = header_row
         self.rows = header_row
+        # one styled cell per number column, reused: openpyxl serialises a row when it is appended
+        self._num_cells = [None if fmt is None else WriteOnlyCell(self.ws, value=0.0) for fmt in self.formats]
+        for c, fmt in zip(self._num_cells, self.formats):
+            if c is not None:
+                c.number_format = fmt
 
     def pre(self, values: list):
         self.ws.append([_value(self.ws, v) for v in values])
@@ -115,7 +120,10 @@ class _Sheet:
                 if not math.isfinite(f):
                     out.append(None)
                     continue
-                if fmt:
+                if fmt and not (fill is not None and j in fill_cols):
+                    c = self._num_cells[j]
+                    c.value = f
+                elif fmt:
                     c = WriteOnlyCell(ws, value=f)
                     c.number_format = fmt
                 else:
