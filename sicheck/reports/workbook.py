@@ -364,10 +364,12 @@ def _waveforms(wb: Workbook, rv: Review):
         ch.y_axis.title = "V"
         ch.height, ch.width = 7.5, 16
         xref = Reference(ws, min_col=2, min_row=first, max_row=last)
-        for col, name in ((3, "unterminated"), (4, "terminated")):
+        for col, name, colour in ((3, "unterminated", "C8553D"), (4, "terminated", "2E6FAD")):
             ser = Series(Reference(ws, min_col=col, min_row=first, max_row=last), xref, title=name)
             ser.marker.symbol = "none"
             ser.smooth = False
+            ser.graphicalProperties.line.solidFill = colour
+            ser.graphicalProperties.line.width = 19050      # 1.5 pt
             ch.series.append(ser)
         charts.append((ch, f"F{row}"))
         row = last + 2
