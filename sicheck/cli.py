@@ -286,12 +286,17 @@ def wave(
                                                                       "(default 0 V)."),
     end_cap: Optional[str] = typer.Option(None, "--end-cap", help="Capacitor in series with --end-ohm (an RC "
                                                                   "termination to ground), pF."),
+    end_up: Optional[str] = typer.Option(None, "--end-up", help="Thevenin termination: resistor from the receiver "
+                                                                "to the supply (the swing)."),
+    end_down: Optional[str] = typer.Option(None, "--end-down", help="Thevenin termination: resistor from the "
+                                                                    "receiver to ground."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object on standard output."),
     plot: Optional[Path] = typer.Option(None, "--plot", help="Draw the waveforms (PNG)."),
 ):
     """Receiver waveform and its metrics for one line driven by a ramp."""
     from sicheck.wave_cmd import run_wave
-    run_wave(z0, delay, driver_ohm, swing, rise, series_ohm, load_pf, end_ohm, end_volts, end_cap, as_json, plot)
+    run_wave(z0, delay, driver_ohm, swing, rise, series_ohm, load_pf, end_ohm, end_volts, end_cap, as_json, plot,
+             end_up, end_down)
 
 
 def main(argv: list[str] | None = None) -> None:

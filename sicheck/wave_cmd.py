@@ -26,8 +26,8 @@ def _q(value: str | None, option: str, dim: str, default_unit: str | None = None
 
 def run_wave(z0: list[str], delay: list[str], driver_ohm: str, swing: str, rise: str, series_ohm: str | None,
              load_pf: str | None, end_ohm: str | None, end_volts: str | None, end_cap: str | None, as_json: bool,
-             plot: Path | None) -> None:
-    from sicheck.physics.transient import Load, simulate
+             plot: Path | None, end_up: str | None = None, end_down: str | None = None) -> None:
+    from sicheck.physics.transient import Load, simulate, thevenin
     if len(z0) != len(delay):
         raise InputError("give one --delay for each --z0 (a chain of lines, driver end first)")
     zs = [_q(z, "--z0", "resistance", "ohm") for z in z0]
@@ -46,6 +46,13 @@ def run_wave(z0: list[str], delay: list[str], driver_ohm: str, swing: str, rise:
         raise InputError("--end-volts and --end-cap need --end-ohm")
     if end_volts is not None and end_cap is not None:
         raise InputError("an RC termination (--end-cap) goes to ground; drop --end-volts")
+    if (end_up is None) != (end_down is None):
+        raise InputError("a Thevenin termination needs both --end-up and --end-down")
+    if end_up is not None:
+        if r_end is not None:
+            raise InputError("give --end-ohm or the Thevenin pair (--end-up/--end-down), not both")
+        r_end, v_end = thevenin(_q(end_up, "--end-up", "resistance", "ohm"),
+                                _q(end_down, "--end-down", "resistance", "ohm"), v)
     if plot is not None:
         from sicheck.reports.atomic import refuse_inputs
         refuse_inputs(plot, [], "--plot")

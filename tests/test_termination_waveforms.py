@@ -92,3 +92,12 @@ def test_review_simulates_flagged_nets(run, board, tmp_path):
     assert "Waveforms" in wb.sheetnames and len(wb["Waveforms"]._charts) >= 1
     hdr = [c.value for c in wb["Nets"][1]]
     assert "Overshoot before [%]" in hdr and "Simulated termination" in hdr
+
+
+def test_wave_thevenin_equals_its_equivalent(run):
+    # A Thevenin pair (100 ohm up to 3.3 V, 100 ohm down) is the same load as 50 ohm to 1.65 V.
+    base = ["wave", "--z0", "50", "--delay", "1ns", "--driver-ohm", "15", "--swing", "3.3V", "--rise", "0.5ns", "--json"]
+    a = json.loads(run(*base, "--end-up", "100", "--end-down", "100")[1])
+    b = json.loads(run(*base, "--end-ohm", "50", "--end-volts", "1.65V")[1])
+    assert a["v_final"] == pytest.approx(b["v_final"]) and a["v_max"] == pytest.approx(b["v_max"])
+    assert a["v_final"] == pytest.approx((3.3 / 15 + 1.65 / 50) / (1 / 15 + 1 / 50))   # DC divider
