@@ -65,10 +65,6 @@ class Target:
     steps: int = 0
 
 
-def _impedance(xs_list: list[CrossSection], what: str, solver: Solver) -> list[LineResult]:
-    return solver(xs_list)
-
-
 def _z_of(r: LineResult, what: str) -> float:
     return r.zdiff if what == "zdiff" else r.z0
 

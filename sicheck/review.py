@@ -15,7 +15,6 @@ import pandas as pd
 from sicheck.errors import InputError
 from sicheck.findings import SEVERITY_ORDER, Finding
 from sicheck.physics import electrical, termination
-from sicheck.physics.constants import C0
 from sicheck.physics.cross_section import CrossSection
 from sicheck.physics.formula import solve_formula
 from sicheck.physics.line_result import LineResult, per_length

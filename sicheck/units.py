@@ -111,10 +111,6 @@ def _example(dimension: str) -> str:
             "capacitance": "'3pF'", "voltage": "'3.3V'", "frequency": "'1GHz'"}[dimension]
 
 
-def to_unit(value_si: float, unit: str, dimension: str) -> float:
-    """Convert an SI value to ``unit`` (for output)."""
-    return value_si / unit_factor(unit, dimension)
-
 
 def option_frequency(text: str, option: str) -> float:
     """A command-line frequency (1 kHz..1 THz) in Hz; bad values raise InputError naming the option."""

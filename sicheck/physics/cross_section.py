@@ -59,10 +59,6 @@ class CrossSection:
     def single(self) -> "CrossSection":
         return replace(self, gap=None)
 
-    def with_width(self, width: float) -> "CrossSection":
-        return replace(self, width=width, top_width=None if self.top_width is None
-                       else self.top_width - self.width + width)
-
 
 def series_er(strata: tuple[Stratum, ...]) -> float:
     """Permittivity of one layer equivalent to stacked strata between parallel plates."""
@@ -70,6 +66,3 @@ def series_er(strata: tuple[Stratum, ...]) -> float:
     return h / sum(s.thickness / s.er for s in strata)
 
 
-def strata_from(pairs, tand=0.0) -> tuple[Stratum, ...]:
-    """Convenience: ((thickness, er), ...) -> strata."""
-    return tuple(Stratum(float(t), float(e), tand) for t, e in pairs)

@@ -33,7 +33,3 @@ def classify(delay, rise_time, lumped_max=1.0 / 6.0, required_min=0.5):
     termination = np.where(lumped, NOT_NEEDED, np.where(required, REQUIRED, RECOMMENDED))
     return electrical, termination
 
-
-def length_for_delay(delay_target, delay_per_m):
-    """Length at which a line of the given delay per length reaches ``delay_target``."""
-    return np.asarray(delay_target, dtype=float) / np.asarray(delay_per_m, dtype=float)

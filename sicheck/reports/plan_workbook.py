@@ -7,26 +7,17 @@ from pathlib import Path
 from openpyxl import Workbook
 
 from sicheck.reports.atomic import atomic_path
-from sicheck.reports.workbook import BOLD, TITLE_FONT, _Sheet, _value
-from openpyxl.cell import WriteOnlyCell
+from sicheck.reports.workbook import _Sheet, key_value_sheet
 
 
 def write_plan_workbook(plan: dict, target: str | Path) -> None:
     wb = Workbook(write_only=True)
-    ws = wb.create_sheet("Plan")
-    ws.column_dimensions["A"].width = 28
-    ws.column_dimensions["B"].width = 60
-    t = WriteOnlyCell(ws, value="Impedance plan")
-    t.font = TITLE_FONT
-    ws.append([t])
-    for k, v in (("Stackup", plan["stackup"]), ("Stackup file", plan["stackup_file"]), ("Solver", plan["solver"]),
-                 ("Pair rule", plan["gap_rule"]), ("Minimum feature [mm]", plan["min_feature_mm"]),
-                 ("Loss frequencies [GHz]", ", ".join(f"{f:g}" for f in plan["freqs_ghz"])),
-                 ("Caution", "Engineering estimates: the fabricator adjusts widths to hit impedance; confirm with "
-                             "their impedance report and test coupons.")):
-        kc = WriteOnlyCell(ws, value=k)
-        kc.font = BOLD
-        ws.append([kc, _value(ws, v)])
+    key_value_sheet(wb, "Plan", "Impedance plan", [
+        ("Stackup", plan["stackup"]), ("Stackup file", plan["stackup_file"]), ("Solver", plan["solver"]),
+        ("Pair rule", plan["gap_rule"]), ("Minimum feature [mm]", plan["min_feature_mm"]),
+        ("Loss frequencies [GHz]", ", ".join(f"{f:g}" for f in plan["freqs_ghz"])),
+        ("Caution", "Engineering estimates: the fabricator adjusts widths to hit impedance; confirm with "
+                    "their impedance report and test coupons.")], widths=(28, 60))
     cols = [("Layer", None, 10), ("Line type", None, 11), ("Target", None, 12), ("Width [mm]", "0.0000", 11),
             ("Gap [mm]", "0.0000", 10), ("Achieved [ohm]", "0.00", 12), ("Error [%]", "+0.00;-0.00", 9),
             ("Uncertainty [%]", "0.00", 11), ("eps_eff", "0.000", 8), ("Delay [ps/mm]", "0.000", 11)]

@@ -91,9 +91,6 @@ class _Sheet:
             if c is not None:
                 c.number_format = fmt
 
-    def pre(self, values: list):
-        self.ws.append([_value(self.ws, v) for v in values])
-
     def header(self):
         cells = []
         for name, _, _ in self.columns:
@@ -141,13 +138,25 @@ class _Sheet:
         self.ws.auto_filter.ref = f"A{self.header_row}:{last}{max(self.rows, self.header_row + 1)}"
 
 
-def _summary(wb: Workbook, rv: Review, out_name: str):
-    ws = wb.create_sheet("Summary")
-    ws.column_dimensions["A"].width = 34
-    ws.column_dimensions["B"].width = 70
-    title = WriteOnlyCell(ws, value="Signal-integrity review")
-    title.font = TITLE_FONT
-    ws.append([title])
+def key_value_sheet(wb: Workbook, name: str, title: str, rows: list[tuple[str, object]], widths=(34, 70)):
+    """A sheet with a title and bold keys beside their values (long texts wrap)."""
+    ws = wb.create_sheet(name)
+    ws.column_dimensions["A"].width, ws.column_dimensions["B"].width = widths
+    t = WriteOnlyCell(ws, value=title)
+    t.font = TITLE_FONT
+    ws.append([t])
+    for k, v in rows:
+        kc = WriteOnlyCell(ws, value=k)
+        kc.font = BOLD
+        vc = _value(ws, v)
+        if isinstance(vc, str) and len(vc) > 60:
+            vc = WriteOnlyCell(ws, value=vc)
+            vc.alignment = Alignment(wrap_text=True)
+        ws.append([kc, vc])
+    return ws
+
+
+def _summary(wb: Workbook, rv: Review):
     counts = rv.counts
     nets = rv.nets
     rows = [
@@ -176,14 +185,7 @@ def _summary(wb: Workbook, rv: Review, out_name: str):
                     "test coupons. No high-voltage creepage/clearance or product-safety checks."),
         ("", ""),
     ]
-    for k, v in rows:
-        kc = WriteOnlyCell(ws, value=k)
-        kc.font = BOLD
-        vc = _value(ws, v)
-        if isinstance(vc, str) and len(vc) > 60:
-            vc = WriteOnlyCell(ws, value=vc)
-            vc.alignment = Alignment(wrap_text=True)
-        ws.append([kc, vc])
+    ws = key_value_sheet(wb, "Summary", "Signal-integrity review", rows)
     head = WriteOnlyCell(ws, value="Sign-off")
     head.font = TITLE_FONT
     ws.append([head])
@@ -381,7 +383,7 @@ def _waveforms(wb: Workbook, rv: Review):
 def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
     """Write the review workbook atomically to ``target``."""
     wb = Workbook(write_only=True)
-    _summary(wb, rv, str(target))
+    _summary(wb, rv)
     _findings(wb, rv)
     _nets(wb, rv)
     _segments(wb, rv)
