@@ -1,6 +1,7 @@
-"""Command line: the thin shell around the review (typer).
+"""Command line: the typer app, nothing else (no module imports it but ``__main__``).
 
-Heavy modules are imported inside the commands so that ``sicheck --version`` is fast.
+Each command hands its options to its own module (review_cmd, line_cmd, wave_cmd, plan_cmd,
+rules_cmd), imported inside the command so that ``sicheck --version`` is fast.
 Every bad input ends with a one-line message on standard error and exit code 2.
 """
 
@@ -16,6 +17,7 @@ import typer
 from sicheck import __version__
 
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
+                  context_settings={"help_option_names": ["-h", "--help"]},
                   help="Signal-integrity rule checker for PCB trace lists.")
 
 
@@ -41,93 +43,6 @@ def _root(version: bool = typer.Option(False, "--version", callback=_version_cal
     pass
 
 
-SOLVERS = ("auto", "formula", "field")
-
-
-def _solver_fn(name: str, no_cache: bool = False, show_progress: bool = True):
-    """The function that solves a list of unique cross-sections for the chosen solver."""
-    from sicheck.errors import InputError
-    from sicheck.physics.formula import solve_formula
-    if name not in SOLVERS:
-        raise InputError(f"--solver must be one of {', '.join(SOLVERS)} (got '{name}')")
-    if name == "formula":
-        return solve_formula
-
-    def field(xs_list):
-        from sicheck.field_solve import AUTO_FIELD_LIMIT, solve_field_all
-        if name == "auto" and len(xs_list) > AUTO_FIELD_LIMIT:
-            _err_console().print(f"{len(xs_list)} unique cross-sections: more than {AUTO_FIELD_LIMIT}, so 'auto' "
-                                 "uses the closed forms (use --solver field to force the field solver)")
-            return solve_formula(xs_list)
-        if not show_progress:
-            return solve_field_all(xs_list, use_cache=not no_cache)
-        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
-        with Progress(TextColumn("field-solving cross-sections"), BarColumn(), MofNCompleteColumn(),
-                      TimeElapsedColumn(), console=_err_console(), transient=True) as bar:
-            task = bar.add_task("solve", total=len(xs_list))
-            return solve_field_all(xs_list, use_cache=not no_cache,
-                                   progress=lambda done, total: bar.update(task, completed=done))
-    return field
-
-
-def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path | None, json_out: Path | None,
-               solver: str, units: list[str] | None, maps: list[str] | None, sheet: str | None,
-               quiet: bool = False, no_cache: bool = False) -> int:
-    from rich.console import Console
-
-    from sicheck.errors import InputError
-    from sicheck.reports.atomic import refuse_inputs, write_text_atomic
-    from sicheck.reports.json_report import review_json
-    from sicheck.reports.terminal import print_summary
-    from sicheck.reports.workbook import write_workbook
-    from sicheck.review import build_review
-    from sicheck.rules import load_rules, Rules
-    from sicheck.stackup import load_stackup
-    from sicheck.traces import parse_map_option, parse_units_option, read_traces
-
-    inputs = [traces, stackup] + list(rules or [])
-    if out is not None:
-        refuse_inputs(out, inputs, "--out")
-    if json_out is not None:
-        refuse_inputs(json_out, inputs, "--json")
-    if out is not None and json_out is not None and Path(out).resolve() == Path(json_out).resolve():
-        raise InputError("--out and --json name the same file")
-    st = load_stackup(stackup)
-    rs: Rules | None = None
-    for p in (rules or [None]):
-        nxt = load_rules(p)
-        rs = nxt if rs is None else _merge_rules(rs, nxt)
-    assert rs is not None
-    aliases = dict(rs.columns)
-    aliases.update(parse_map_option(maps))
-    tl = read_traces(traces, parse_units_option(units), aliases, sheet)
-    rv = build_review(tl, st, rs, _solver_fn(solver, no_cache, not quiet), solver)
-    console = Console(highlight=False)
-    if not quiet:
-        print_summary(rv, console)
-    if out is not None:
-        write_workbook(rv, out)
-        if not quiet:
-            console.print(f"workbook: {out}")
-    if json_out is not None:
-        write_text_atomic(json_out, review_json(rv))
-        if not quiet:
-            console.print(f"json: {json_out}")
-    return rv.exit_code
-
-
-def _merge_rules(base, extra):
-    """Rule sets given with several --rules: later ones override and add classes."""
-    from dataclasses import replace
-    classes = [c for c in base.classes if all(c.name.lower() != e.name.lower() for e in extra.classes)]
-    sev = dict(base.severity)
-    sev.update({k: v for k, v in extra.severity.items()})
-    cols = dict(base.columns)
-    cols.update(extra.columns)
-    return replace(extra, classes=tuple(classes) + extra.classes, severity=sev, columns=cols,
-                   sources=base.sources + extra.sources)
-
-
 @app.command()
 def review(
     traces: Path = typer.Argument(..., help="Trace list, .csv or .xlsx (one row per segment)."),
@@ -147,6 +62,7 @@ def review(
     sheet: Optional[str] = typer.Option(None, "--sheet", help="Worksheet of an .xlsx trace list."),
 ):
     """Review a board's trace list against its stackup; exit 1 when there are errors."""
+    from sicheck.review_cmd import run_review
     raise typer.Exit(run_review(traces, stackup, rules, out, json_out, solver, units, maps, sheet,
                                 no_cache=no_cache))
 
@@ -159,52 +75,16 @@ def demo(
     no_cache: bool = typer.Option(False, "--no-cache", help="Do not use the field-solver cache."),
 ):
     """Review the bundled demo board and write its workbook in the current folder."""
-    from sicheck.resources import default_rules_path, demo_dir
-    d = demo_dir()
-    code = run_review(d / "traces.csv", d / "stackup.toml", [default_rules_path(), d / "rules.toml"], out,
-                      json_out, solver, None, None, None, no_cache=no_cache)
-    # The demo board breaks some rules on purpose: its findings are the point, not a failure.
-    raise typer.Exit(0 if code in (0, 1) else code)
+    from sicheck.review_cmd import run_demo
+    raise typer.Exit(run_demo(out, json_out, solver, no_cache))
 
 
 @app.command("rules")
-def rules_cmd(rules: Optional[list[Path]] = typer.Option(None, "--rules", "-r", help="Rule set to list.")):
+def rules_cmd(rules: Optional[list[Path]] = typer.Option(None, "--rules", "-r", help="Rule set to list; repeat "
+                                                                                    "to layer sets.")):
     """List every check with its parameters and the net classes of a rule set."""
-    from rich.console import Console
-    from rich.table import Table
-
-    from sicheck.rules import CHECKS, load_rules
-    rs = None
-    for p in (rules or [None]):
-        nxt = load_rules(p)
-        rs = nxt if rs is None else _merge_rules(rs, nxt)
-    con = Console(highlight=False)
-    con.print(f"rule sets: {', '.join(rs.sources)}")
-    t = Table(title="Checks", title_justify="left")
-    t.add_column("rule")
-    t.add_column("severity")
-    t.add_column("what it checks", overflow="fold")
-    for c in CHECKS:
-        t.add_row(c.id, rs.severity[c.id], c.what)
-    con.print(t)
-    t = Table(title="Parameters", title_justify="left")
-    t.add_column("parameter")
-    t.add_column("value")
-    for k in ("lumped_max_td_over_tr", "required_min_td_over_tr", "tolerance_pct", "z_step_pct", "formula_field_pct"):
-        t.add_row(k, f"{getattr(rs, k):.4g}")
-    con.print(t)
-    t = Table(title="Net classes", title_justify="left")
-    for col in ("class", "match", "Z0", "Zdiff", "tol %", "rise time", "width", "gap", "driver"):
-        t.add_column(col, overflow="fold")
-    for c in rs.classes:
-        t.add_row(c.name, " ".join(c.match), _g(c.z0), _g(c.zdiff), _g(rs.tolerance_for(c)),
-                  _g(c.rise_time, 1e12, " ps"), _g(c.width, 1e3, " mm"), _g(c.gap, 1e3, " mm"),
-                  _g(c.driver_ohm, 1, " ohm"))
-    con.print(t)
-
-
-def _g(v, scale=1.0, suffix=""):
-    return "" if v is None else f"{v * scale:g}{suffix}"
+    from sicheck.rules_cmd import run_rules
+    raise typer.Exit(run_rules(rules))
 
 
 @app.command()
@@ -213,7 +93,7 @@ def line(
     width: str = typer.Option(..., "--width", "-w", help="Trace width (bottom width of the etched trace)."),
     thickness: str = typer.Option(..., "--thickness", "-t", help="Copper thickness."),
     er: Optional[float] = typer.Option(None, "--er", help="Relative permittivity of the dielectric."),
-    height: Optional[str] = typer.Option(None, "--height", "-h",
+    height: Optional[str] = typer.Option(None, "--height",
                                          help="Microstrip: trace bottom to plane. Stripline: plane-to-plane "
                                               "spacing with the trace centred."),
     below: Optional[str] = typer.Option(None, "--below", help="Dielectric from the trace's bottom face to the "

@@ -40,15 +40,12 @@ def _target_dict(t) -> dict:
 
 def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str, freqs: list[str],
                solver: str, rules: list[Path] | None, no_cache: bool) -> dict:
-    from sicheck.cli import _merge_rules, _solver_fn
     from sicheck.plan import add_losses, synthesise
-    from sicheck.rules import load_rules
+    from sicheck.rules import load_rule_sets
+    from sicheck.solvers import solver_fn
     from sicheck.stackup import load_stackup
     st = load_stackup(stackup)
-    rs = None
-    for p in (rules or [None]):
-        nxt = load_rules(p)
-        rs = nxt if rs is None else _merge_rules(rs, nxt)
+    rs = load_rule_sets(rules)
     if not z0 and not zdiff:
         raise InputError("give at least one --z0 or --zdiff target")
     for v, opt in [(v, "--z0") for v in z0] + [(v, "--zdiff") for v in zdiff]:
@@ -58,7 +55,7 @@ def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str
     f_hz = [option_frequency(f, "--freq") for f in freqs or ["1GHz"]]
     if solver not in ("field", "formula"):
         raise InputError("--solver must be 'field' or 'formula' for plan")
-    solve = _solver_fn(solver, no_cache, show_progress=False)
+    solve = solver_fn(solver, no_cache, show_progress=False)
     layers, findings = [], []
     for lay in st.signal_layers:
         singles = [synthesise(st, lay.name, z, "z0", solve, rule, rs.min_feature, rs.max_width) for z in z0]

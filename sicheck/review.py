@@ -12,6 +12,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
+from sicheck.checks import ReviewContext, run_checks
 from sicheck.errors import InputError
 from sicheck.findings import SEVERITY_ORDER, Finding
 from sicheck.physics import electrical, termination
@@ -43,6 +44,24 @@ class Review:
         for f in self.findings:
             c[f.severity] += 1
         return c
+
+    @property
+    def net_counts(self) -> dict[str, int]:
+        """Headline counts by termination and electrical class, a pair counted once (by its longer leg)."""
+        n = self.nets
+        order = n.sort_values("delay", ascending=False, kind="stable")
+        seen: set = set()
+        once = []
+        for idx, net, pair in zip(order.index, order["net"], order["pair"]):
+            ident = frozenset((net, pair)) if pair else net
+            if ident not in seen:
+                once.append(idx)
+                seen.add(ident)
+        u = n.loc[sorted(once)]
+        out = {k: int((u["termination"] == k).sum()) for k in ("not-needed", "recommended", "required")}
+        out.update({k: int((u["electrical"] == k).sum()) for k in ("lumped", "transmission-line")})
+        out["nets"] = int(len(u))
+        return out
 
     @property
     def exit_code(self) -> int:
@@ -162,7 +181,9 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     if waveforms:
         from sicheck.waveform_review import simulate_nets
         nets, waves = simulate_nets(all_seg, nets, rules)
-    findings = _findings(seg, nets, rules, xs, results, codes)
+    ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
+                        cross_sections=list(zip(xs, results)))
+    findings = run_checks(ctx)
     findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
     return Review(segments=seg, nets=nets, findings=findings, stackup=stackup, rules=rules,
@@ -306,152 +327,3 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     nets["advice"] = advice
     nets["proposal"] = short
     return nets
-
-
-def _fmt_ps(seconds: float) -> str:
-    return f"{seconds * 1e12:.0f} ps"
-
-
-def _findings(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs, results, codes) -> list[Finding]:
-    sev = rules.severity
-    out: list[Finding] = []
-
-    def add(rule, net, layer, msg, row=None, severity=None):
-        s = severity or sev[rule]
-        if sev[rule] != "off":
-            out.append(Finding(rule, s, net, layer, msg, row))
-
-    classes = {c.name: c for c in rules.classes}
-    cls_names = seg["net_class"].to_numpy()
-    z0_t = np.array([getattr(classes.get(n), "z0", None) or np.nan for n in cls_names], dtype=float)
-    zd_t = np.array([getattr(classes.get(n), "zdiff", None) or np.nan for n in cls_names], dtype=float)
-    tol = np.array([rules.tolerance_for(classes.get(n)) for n in cls_names], dtype=float)
-    is_pair = (seg["pair"] != "").to_numpy()
-    with np.errstate(invalid="ignore"):
-        err_se = (seg["z0"].to_numpy() - z0_t) / z0_t * 100.0
-        err_df = (seg["zdiff"].to_numpy() - zd_t) / zd_t * 100.0
-    miss_se = ~is_pair & (np.abs(err_se) > tol)
-    miss_df = is_pair & (np.abs(err_df) > tol)
-    seen_pairs: set = set()
-    for i in np.nonzero(miss_se | miss_df)[0]:
-        net, layer, row = seg["net"].iat[i], seg["layer"].iat[i], int(seg["row"].iat[i])
-        cname = cls_names[i]
-        if miss_df[i]:
-            partner = seg["pair"].iat[i]
-            key = (frozenset((net, partner)), layer, seg["width"].iat[i], seg["gap"].iat[i])
-            if key in seen_pairs:          # the pair listed on both nets: report it once
-                continue
-            seen_pairs.add(key)
-            add("zdiff-target", f"{net}/{partner}", layer,
-                f"Zdiff {seg['zdiff'].iat[i]:.1f} ohm on {layer} (w {seg['width'].iat[i] * 1e3:.3f} mm, gap "
-                f"{seg['gap'].iat[i] * 1e3:.3f} mm) misses the {cname} target {zd_t[i]:g} ohm "
-                f"+/-{tol[i]:g} % by {err_df[i]:+.1f} %", row)
-        else:
-            add("z0-target", net, layer,
-                f"Z0 {seg['z0'].iat[i]:.1f} ohm on {layer} (w {seg['width'].iat[i] * 1e3:.3f} mm) misses the "
-                f"{cname} target {z0_t[i]:g} ohm +/-{tol[i]:g} % by {err_se[i]:+.1f} %", row)
-
-    # fabrication minimum feature
-    wmin = rules.min_feature
-    narrow = (seg["width"].to_numpy() < wmin * (1 - 1e-9)) | (is_pair & (seg["gap"].to_numpy() < wmin * (1 - 1e-9)))
-    for i in np.nonzero(narrow)[0]:
-        what = "width" if seg["width"].iat[i] < wmin * (1 - 1e-9) else "gap"
-        add("min-feature", seg["net"].iat[i], seg["layer"].iat[i],
-            f"{what} {seg[what].iat[i] * 1e3:.3f} mm is below the minimum feature {wmin * 1e3:.3f} mm",
-            int(seg["row"].iat[i]))
-
-    # impedance steps along a net (layer changes)
-    zsig = np.where(is_pair, seg["zdiff"], seg["z0"])
-    tmp = pd.DataFrame({"net": seg["net"], "z": zsig, "layer": seg["layer"]})
-    g = tmp.groupby("net", sort=False)["z"]
-    stats = pd.DataFrame({"lo": g.min(), "hi": g.max(), "lo_at": g.idxmin(), "hi_at": g.idxmax()})
-    stats = stats[(stats["hi"] - stats["lo"]) / stats["lo"] * 100.0 > rules.z_step_pct]
-    for net, r in stats.iterrows():
-        lo_l, hi_l = tmp["layer"].iat[int(r.lo_at)], tmp["layer"].iat[int(r.hi_at)]
-        step = (r.hi - r.lo) / r.lo * 100.0
-        add("z-step", net, f"{lo_l}/{hi_l}",
-            f"impedance changes {step:.0f} % along the net ({r.lo:.1f} ohm on {lo_l} to {r.hi:.1f} ohm on "
-            f"{hi_l}): each step reflects part of the edge")
-
-    budget = {c.name: c.max_loss_db for c in rules.classes if c.max_loss_db is not None}
-    seen_budget: set = set()
-    for r in nets.itertuples(index=False):
-        lim = budget.get(r.net_class)
-        if lim is None or r.loss_db <= lim:
-            continue
-        key = frozenset((r.net, r.pair)) if r.pair else r.net
-        if key in seen_budget:
-            continue
-        seen_budget.add(key)
-        add("loss-budget", f"{r.net}/{r.pair}" if r.pair else r.net, r.layers,
-            f"insertion loss {r.loss_db:.2f} dB at {r.freq * 1e-9:.3g} GHz over {r.length * 1e3:.0f} mm exceeds the "
-            f"{r.net_class} budget of {lim:g} dB")
-
-    done_pairs: set = set()
-    untargeted: dict[str, list[str]] = {}
-    for r in nets.sort_values("delay", ascending=False).itertuples(index=False):
-        cls = classes.get(r.net_class)
-        if r.termination == electrical.NOT_NEEDED:
-            continue
-        if r.pair:       # a pair is one finding, on its longer leg
-            key = frozenset((r.net, r.pair))
-            if key in done_pairs:
-                continue
-            done_pairs.add(key)
-        label = f"{r.net}/{r.pair}" if r.pair else r.net
-        msg = (f"one-way delay {_fmt_ps(r.delay)} is {r.td_over_tr:.2f} x the {_fmt_ps(r.rise_time)} rise time "
-               f"(critical length {r.critical_length * 1e3:.1f} mm on its layers, net is {r.length * 1e3:.1f} mm): "
-               f"transmission line, termination {r.termination}")
-        simulated = isinstance(getattr(r, "termination_part", ""), str) and getattr(r, "termination_part", "")
-        if simulated:
-            msg += (f". Simulated: {r.termination_part} (overshoot {r.before_overshoot_pct:.0f} % -> "
-                    f"{r.after_overshoot_pct:.0f} %, ringback {r.before_ringback_pct:.0f} % -> {r.after_ringback_pct:.0f} %, "
-                    f"settled {r.before_settle_ns:.2f} -> {r.after_settle_ns:.2f} ns)")
-            if r.waveform_assumptions:
-                msg += f"; {r.waveform_assumptions}"
-        elif r.advice:
-            msg += f". Proposal: {r.advice}"
-        add("electrical-length", label, r.layers, msg,
-            severity=None if r.termination == electrical.REQUIRED else "info")
-        if simulated and r.waveform_meets_limits is False:
-            add("waveform", label, r.layers, f"no standard termination meets the limits; best found: "
-                                             f"{r.termination_part} ({r.waveform_violations})")
-        if cls is None or (cls.z0 is None and cls.zdiff is None):
-            untargeted.setdefault(r.net_class or "none", []).append(label)
-    if "termination_part" in nets.columns:
-        flagged = nets[nets["termination"] != electrical.NOT_NEEDED]
-        unsimulated = int((flagged["termination_part"] == "").sum())
-        if unsimulated:
-            add("waveform", f"{unsimulated} nets", "", f"the waveform check ran on the {rules.max_nets} longest of "
-                f"{len(flagged)} nets that need termination; the others keep the first-order advice "
-                "(raise [waveform] max_nets to simulate them all)", severity="info")
-    for cname, labels in untargeted.items():
-        shown = ", ".join(labels[:5]) + (f" and {len(labels) - 5} more" if len(labels) > 5 else "")
-        add("no-target", shown, "", f"{len(labels)} transmission-line net(s) in class '{cname}' have no "
-                                    f"impedance target: set z0 or zdiff for the class")
-
-    for i, (x, res) in enumerate(zip(xs, results)):
-        field_solved = res.model.startswith("field")
-        notes = list(res.warnings)
-        diff = None
-        if field_solved:
-            z_f, z_ref = (res.formula_zdiff, res.zdiff) if x.coupled else (res.formula_z0, res.z0)
-            if z_f is not None and z_ref:
-                diff = (z_f - z_ref) / z_ref * 100.0
-        if not notes and (diff is None or abs(diff) <= rules.formula_field_pct):
-            continue
-        rows = seg.index[seg["xs"] == i]
-        nets_here = seg.loc[rows, "net"].unique()
-        label = ", ".join(nets_here[:3]) + (f" and {len(nets_here) - 3} more" if len(nets_here) > 3 else "")
-        layer = seg.loc[rows[0], "layer"]
-        for w in notes:
-            add("model-accuracy", label, layer, f"{res.model}: {w}")
-        if diff is not None and abs(diff) > rules.formula_field_pct:
-            what = "Zdiff" if x.coupled else "Z0"
-            z_ref = res.zdiff if x.coupled else res.z0
-            z_f = res.formula_zdiff if x.coupled else res.formula_z0
-            why = "; ".join(res.formula_warnings) or "closed-form approximation"
-            add("formula-vs-field", label, layer,
-                f"{what}: field solution {z_ref:.1f} ohm (+/-{res.uncertainty_pct:.2f} %) vs closed form "
-                f"{z_f:.1f} ohm ({diff:+.1f} %); the field value is reported ({why})")
-    return out

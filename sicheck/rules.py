@@ -1,15 +1,15 @@
-"""Rule sets: net classes, thresholds and severities, read from TOML.
+"""Rule sets: net classes, check parameters and severities, read from TOML.
 
 A rule set file may hold these tables (all optional):
   name = "..."
-  [electrical]   lumped_max_td_over_tr, required_min_td_over_tr
-  [impedance]    tolerance_pct, z_step_pct, formula_field_pct
+  [<section>]    the parameters the registered checks declare for that section (`sicheck rules` lists
+                 them: [electrical], [impedance], [fabrication], [waveform], ...)
   [severity]     rule id = "error" | "warning" | "info" | "off"
   [columns]      "header in the export" = "sicheck column"
-  [[net_class]]  name, match (globs), rise_time, width, gap, z0, zdiff, tolerance_pct,
-                 driver_ohm, load_pf
-A directory of rule files is read in name order; later files add net classes and
-override scalar settings.
+  [[net_class]]  name, match (globs), the net's own values (rise_time, width, gap, driver_ohm, load_pf,
+                 swing, freq) and any per-class check parameter (z0, zdiff, tolerance_pct, ...)
+Files are applied in order (a folder in name order): a later file overrides only what it sets and adds
+net classes; a class name may be defined once in the whole set.
 """
 
 from __future__ import annotations
@@ -17,40 +17,21 @@ from __future__ import annotations
 import fnmatch
 from dataclasses import dataclass, field, replace
 from pathlib import Path
+from typing import Iterable
 
+from sicheck.checks import CHECKS, SEVERITIES, SEVERITY_CHOICES, Param, all_params, class_params, section_params
 from sicheck.errors import InputError
 from sicheck.tomlsrc import TomlSource
 from sicheck.units import UnitError, parse_quantity
 
-SEVERITIES = ("error", "warning", "info")
+__all__ = ["Rules", "NetClass", "load_rules", "load_rule_sets", "SEVERITIES", "CHECKS", "UNCLASSIFIED"]
 
+UNCLASSIFIED = "unclassified"       # the class of nets no class matches
+OLD_UNCLASSIFIED = "default"        # its former name, still accepted in rule files (with a note)
 
-@dataclass(frozen=True)
-class Check:
-    id: str
-    severity: str
-    what: str
-
-
-# Every check sicheck runs, its default severity and what it tests.
-CHECKS = (
-    Check("z0-target", "error", "single-ended Z0 of each segment within the net class's target +/- tolerance"),
-    Check("zdiff-target", "error", "differential Zdiff of each pair segment within the class target +/- tolerance"),
-    Check("electrical-length", "warning", "one-way delay against rise time: a net that must be treated and "
-                                          "terminated as a transmission line, with the proposed part and value "
-                                          "(info when termination is only recommended)"),
-    Check("z-step", "warning", "impedance step between a net's segments (layer change) larger than z_step_pct"),
-    Check("no-target", "info", "transmission-line nets whose class sets no impedance target (one per class)"),
-    Check("model-accuracy", "warning", "closed-form model used outside its stated accuracy range, or a field "
-                                       "solution whose uncertainty is above its target"),
-    Check("formula-vs-field", "warning", "closed form and field solution differ by more than formula_field_pct"),
-    Check("loss-budget", "error", "insertion loss of a net at its frequency above the class's max_loss_db"),
-    Check("min-feature", "error", "trace width or pair gap below the fabrication minimum feature size"),
-    Check("waveform", "warning", "simulated receiver waveform of a net that needs termination: the proposed part, "
-                                 "with overshoot, ringback and settling before and after (warning when no standard "
-                                 "scheme meets the class's limits)"),
-)
-CHECK_IDS = {c.id for c in CHECKS}
+# A net class's own description of its nets (not check parameters): key -> quantity kind.
+CLASS_VALUES = {"rise_time": "time", "width": "length", "gap": "length", "freq": "frequency", "swing": "voltage",
+                "driver_ohm": "number", "load_pf": "number"}
 
 
 @dataclass(frozen=True)
@@ -60,73 +41,71 @@ class NetClass:
     rise_time: float | None = None
     width: float | None = None
     gap: float | None = None
-    z0: float | None = None
-    zdiff: float | None = None
-    tolerance_pct: float | None = None
     driver_ohm: float | None = None
     load_pf: float | None = None
     swing: float | None = None
     freq: float | None = None          # where loss (and a dispersive dielectric) is evaluated
-    max_loss_db: float | None = None
-    max_overshoot_pct: float | None = None
-    max_ringback_pct: float | None = None
-    max_settle_ns: float | None = None
+    params: dict = field(default_factory=dict, compare=False)   # per-class check parameters it sets (SI)
+    origin: str = ""                   # "file, line n" where it was defined
+
+    def __getattr__(self, name: str):
+        # per-class check parameters read as attributes (cls.z0, cls.max_loss_db); None when not set
+        if not name.startswith("_") and name in class_params():
+            return self.__dict__.get("params", {}).get(name)
+        raise AttributeError(name)
 
     def matches(self, net: str) -> bool:
         return any(fnmatch.fnmatchcase(net.upper(), pat.upper()) for pat in self.match)
+
+
+def _defaults() -> dict:
+    return {n: p.default for n, p in all_params().items()}
+
+
+def _default_severity() -> dict:
+    return {c.id: c.severity for c in CHECKS}
 
 
 @dataclass(frozen=True)
 class Rules:
     name: str = "built-in"
     sources: tuple[str, ...] = ()
-    lumped_max_td_over_tr: float = 1.0 / 6.0     # common practice (Johnson & Graham 1993)
-    required_min_td_over_tr: float = 0.5         # round trip >= rise time
-    tolerance_pct: float = 10.0                  # common practice fabrication tolerance
-    z_step_pct: float = 10.0                     # common practice
-    formula_field_pct: float = 2.0
-    # waveform check (common practice values; see rules/default.toml)
-    swing: float = 3.3
-    driver_ohm: float = 25.0
-    load_pf: float = 2.0
-    max_overshoot_pct: float = 15.0
-    max_ringback_pct: float = 15.0
-    settle_rise_times: float = 2.0
-    max_nets: int = 500
-    min_feature: float = 75e-6           # smallest width/gap a fabricator etches reliably (common practice, 3 mil)
-    max_width: float = 2e-3              # widest trace sicheck proposes in `plan`
-    severity: dict = field(default_factory=lambda: {c.id: c.severity for c in CHECKS})
+    settings: dict = field(default_factory=_defaults)        # parameter name -> value (SI)
+    severity: dict = field(default_factory=_default_severity)
     columns: dict = field(default_factory=dict)
     classes: tuple[NetClass, ...] = ()
+    notes: tuple[tuple[str, str], ...] = ()                  # (where, note) for the rules-note check
+
+    def __getattr__(self, name: str):
+        # parameters read as attributes (rules.min_feature, rules.swing)
+        s = self.__dict__.get("settings")
+        if s is not None and name in s:
+            return s[name]
+        raise AttributeError(name)
+
+    def value(self, name: str, cls: NetClass | None = None):
+        """A parameter's value in effect for a class: the class's own value when it sets one."""
+        if cls is not None and name in cls.params:
+            return cls.params[name]
+        return self.settings.get(name)
 
     def class_named(self, name: str) -> NetClass | None:
+        want = UNCLASSIFIED if name.lower() == OLD_UNCLASSIFIED else name.lower()
         for c in self.classes:
-            if c.name.lower() == name.lower():
+            if c.name.lower() == want:
                 return c
-        return None
+        return NetClass(UNCLASSIFIED) if want == UNCLASSIFIED else None
 
     def class_for(self, net: str, explicit: str | None = None) -> NetClass | None:
         if explicit:
             return self.class_named(explicit)
         for c in self.classes:
-            if c.matches(net):
+            if c.name != UNCLASSIFIED and c.matches(net):
                 return c
-        return self.class_named("default")
+        return self.class_named(UNCLASSIFIED)
 
     def tolerance_for(self, cls: NetClass | None) -> float:
-        return cls.tolerance_pct if cls and cls.tolerance_pct is not None else self.tolerance_pct
-
-
-SECTIONS = {
-    "electrical": {"lumped_max_td_over_tr", "required_min_td_over_tr"},
-    "impedance": {"tolerance_pct", "z_step_pct", "formula_field_pct"},
-    "fabrication": {"min_feature", "max_width"},
-    "waveform": {"swing", "driver_ohm", "load_pf", "max_overshoot_pct", "max_ringback_pct", "settle_rise_times",
-                 "max_nets"},
-}
-TOP_KEYS = {"name", "electrical", "impedance", "waveform", "fabrication", "severity", "columns", "net_class"}
-CLASS_KEYS = {"name", "match", "rise_time", "width", "gap", "z0", "zdiff", "tolerance_pct", "driver_ohm", "load_pf",
-              "swing", "max_overshoot_pct", "max_ringback_pct", "max_settle_ns", "freq", "max_loss_db"}
+        return self.value("tolerance_pct", cls)
 
 
 def _number(src: TomlSource, value, key, header, index=0, lo=0.0, hi=float("inf"), lo_open=True):
@@ -138,98 +117,120 @@ def _number(src: TomlSource, value, key, header, index=0, lo=0.0, hi=float("inf"
     return float(value)
 
 
+def _param_value(src: TomlSource, p: Param, value, header: str, index: int = 0):
+    """A parameter read by its declaration: numbers by range, quantities with their units, to SI."""
+    if p.kind in ("number", "int"):
+        v = _number(src, value, p.name, header, index, lo=p.lo, hi=p.hi, lo_open=p.lo_open)
+        if p.kind == "int":
+            if v != int(v):
+                raise src.error(f"'{p.name}' must be a whole number (got {value!r})", p.name, header, index)
+            return int(v)
+        return v
+    try:
+        v = parse_quantity(value, p.kind)
+    except UnitError as e:
+        raise src.error(f"{p.name}: {e}", p.name, header, index) from None
+    if not ((v > p.lo if p.lo_open else v >= p.lo) and v <= p.hi):
+        raise src.error(f"{p.name} = {value!r} is out of range", p.name, header, index)
+    return v
+
+
+def _table(src: TomlSource, d: dict, key: str) -> dict:
+    val = d.get(key, {})
+    if not isinstance(val, dict):
+        raise src.error(f"'{key}' must be a table ([{key}] with keys below it), not {type(val).__name__} "
+                        f"{val!r}", key)
+    return val
+
+
+def _class_value(src: TomlSource, key: str, kind: str, value, i: int) -> float:
+    if kind == "number":
+        return _number(src, value, key, "net_class", i, lo=0.0, lo_open=False, hi=1e4)
+    try:
+        v = parse_quantity(value, kind, "V" if kind == "voltage" else None)
+    except UnitError as e:
+        raise src.error(f"{key}: {e}", key, "net_class", i) from None
+    if kind == "frequency" and not 1e3 <= v <= 1e12:
+        raise src.error("freq must be between 1 kHz and 1 THz", key, "net_class", i)
+    if not v > 0:
+        raise src.error(f"{key} must be positive", key, "net_class", i)
+    return v
+
+
 def _apply_file(rules: Rules, path: Path) -> Rules:
+    """`rules` with what this file sets applied on top (nothing else changes)."""
     src = TomlSource(path, "rules")
     d = src.data
+    sections = section_params()
+    top_keys = {"name", "severity", "columns", "net_class"} | set(sections)
     for key in d:
-        if key not in TOP_KEYS:
-            raise src.error(f"unknown key '{key}' (allowed: {', '.join(sorted(TOP_KEYS))})", key)
-    upd: dict = {}
-    for sec, keys in SECTIONS.items():
-        tbl = d.get(sec, {})
-        if not isinstance(tbl, dict):
-            raise src.error(f"[{sec}] must be a table", sec)
-        for key, val in tbl.items():
-            if key not in keys:
-                raise src.error(f"unknown key '{key}' in [{sec}] (allowed: {', '.join(sorted(keys))})", key, sec)
-            if sec == "fabrication":
-                try:
-                    upd[key] = parse_quantity(val, "length")
-                except UnitError as e:
-                    raise src.error(f"{key}: {e}", key, sec) from None
-                if not 0 < upd[key] < 0.1:
-                    raise src.error(f"{key} is out of range", key, sec)
-                continue
-            upd[key] = _number(src, val, key, sec, hi=1e6)
-            if key == "max_nets":
-                upd[key] = int(val)
+        if key not in top_keys:
+            raise src.error(f"unknown key '{key}' (allowed: {', '.join(sorted(top_keys))})", key)
+    settings = dict(rules.settings)
+    for sec, params in sections.items():
+        for key, val in _table(src, d, sec).items():
+            if key not in params:
+                raise src.error(f"unknown key '{key}' in [{sec}] (allowed: {', '.join(sorted(params))})", key, sec)
+            settings[key] = _param_value(src, params[key], val, sec)
     sev = dict(rules.severity)
-    for key, val in d.get("severity", {}).items():
-        if key not in CHECK_IDS:
+    for key, val in _table(src, d, "severity").items():
+        if key not in sev:
             raise src.error(f"unknown rule id '{key}' in [severity] (see 'sicheck rules')", key, "severity")
-        if val not in SEVERITIES + ("off",):
+        if not isinstance(val, str) or val not in SEVERITY_CHOICES:
             raise src.error(f"severity must be error, warning, info or off (got {val!r})", key, "severity")
         sev[key] = val
-    upd["severity"] = sev
     cols = dict(rules.columns)
-    for key, val in d.get("columns", {}).items():
+    for key, val in _table(src, d, "columns").items():
         if not isinstance(val, str):
             raise src.error(f"column alias '{key}' must map to a column name", key, "columns")
         cols[key] = val
-    upd["columns"] = cols
 
     classes = list(rules.classes)
+    notes = list(rules.notes)
     raw_classes = d.get("net_class", [])
     if not isinstance(raw_classes, list):
         raise src.error("net_class must be written as [[net_class]] tables", "net_class")
+    per_class = class_params()
+    class_keys = {"name", "match"} | set(CLASS_VALUES) | set(per_class)
     for i, c in enumerate(raw_classes):
+        line = src.block("net_class", i)[0] + 1
+        if not isinstance(c, dict):
+            raise InputError("net_class must be written as [[net_class]] tables", file=src.path, line=line,
+                             key="net_class")
         for key in c:
-            if key not in CLASS_KEYS:
-                raise src.error(f"unknown key '{key}' in a net class (allowed: {', '.join(sorted(CLASS_KEYS))})",
+            if key not in class_keys:
+                raise src.error(f"unknown key '{key}' in a net class (allowed: {', '.join(sorted(class_keys))})",
                                 key, "net_class", i)
         name = c.get("name")
-        if not isinstance(name, str) or not name:
+        if not isinstance(name, str) or not name.strip():
             raise src.error("every [[net_class]] needs a name", "name", "net_class", i)
+        name = name.strip()
+        here = f"{src.path}, line {line}"
+        if name.lower() == OLD_UNCLASSIFIED:
+            notes.append((here, f"net class '{OLD_UNCLASSIFIED}' is now called '{UNCLASSIFIED}' (nets that match "
+                                f"no other class); rename it"))
+            name = UNCLASSIFIED
+        twin = next((k for k in classes if k.name.lower() == name.lower()), None)
+        if twin is not None:
+            raise InputError(f"net class '{name}' is defined twice: at {twin.origin} and here; give each class "
+                             "one definition (or another name)", file=src.path, line=line, key="name")
         match = c.get("match", [])
         if isinstance(match, str):
             match = [match]
         if not isinstance(match, list) or not all(isinstance(m, str) for m in match):
             raise src.error("'match' must be a list of net-name patterns", "match", "net_class", i)
-        kw: dict = {"name": name, "match": tuple(match)}
-        for key, dim in (("rise_time", "time"), ("width", "length"), ("gap", "length")):
+        kw: dict = {"name": name, "match": tuple(match), "origin": here}
+        for key, kind in CLASS_VALUES.items():
             if key in c:
-                try:
-                    kw[key] = parse_quantity(c[key], dim)
-                except UnitError as e:
-                    raise src.error(f"{key}: {e}", key, "net_class", i) from None
-                if not kw[key] > 0:
-                    raise src.error(f"{key} must be positive", key, "net_class", i)
-        if "freq" in c:
-            try:
-                kw["freq"] = parse_quantity(c["freq"], "frequency")
-            except UnitError as e:
-                raise src.error(f"freq: {e}", "freq", "net_class", i) from None
-            if not 1e3 <= kw["freq"] <= 1e12:
-                raise src.error("freq must be between 1 kHz and 1 THz", "freq", "net_class", i)
-        for key in ("z0", "zdiff", "driver_ohm", "load_pf", "max_overshoot_pct", "max_ringback_pct", "max_settle_ns",
-                    "max_loss_db"):
-            if key in c:
-                kw[key] = _number(src, c[key], key, "net_class", i, lo=0.0, lo_open=key in ("z0", "zdiff"), hi=1e4)
-        if "swing" in c:
-            try:
-                kw["swing"] = parse_quantity(c["swing"], "voltage", "V")
-            except UnitError as e:
-                raise src.error(f"swing: {e}", "swing", "net_class", i) from None
-            if not kw["swing"] > 0:
-                raise src.error("swing must be positive", "swing", "net_class", i)
-        if "tolerance_pct" in c:
-            kw["tolerance_pct"] = _number(src, c["tolerance_pct"], "tolerance_pct", "net_class", i, hi=100)
-        nc = NetClass(**kw)
-        classes = [k for k in classes if k.name.lower() != name.lower()] + [nc]
-    upd["classes"] = tuple(classes)
-    upd["sources"] = rules.sources + (str(path),)
+                kw[key] = _class_value(src, key, kind, c[key], i)
+        kw["params"] = {key: _param_value(src, p, c[key], "net_class", i) for key, p in per_class.items() if key in c}
+        classes.append(NetClass(**kw))
+    upd: dict = {"settings": settings, "severity": sev, "columns": cols, "classes": tuple(classes),
+                 "notes": tuple(notes), "sources": rules.sources + (str(path),)}
     if "name" in d:
-        upd["name"] = str(d["name"])
+        if not isinstance(d["name"], str):
+            raise src.error(f"'name' must be text (got {d['name']!r})", "name")
+        upd["name"] = d["name"]
     new = replace(rules, **upd)
     if new.lumped_max_td_over_tr >= new.required_min_td_over_tr:
         raise src.error("lumped_max_td_over_tr must be below required_min_td_over_tr",
@@ -237,8 +238,7 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
     return new
 
 
-def load_rules(path: str | Path | None) -> Rules:
-    """Rules from a file or a directory of files; None = the shipped default set."""
+def _files(path: str | Path | None) -> list[Path]:
     if path is None:
         from sicheck.resources import default_rules_path
         path = default_rules_path()
@@ -247,11 +247,25 @@ def load_rules(path: str | Path | None) -> Rules:
         files = sorted(p.glob("*.toml"))
         if not files:
             raise InputError("no .toml rule files in this folder", file=str(p))
-    elif p.exists():
-        files = [p]
-    else:
-        raise InputError("rules file or folder not found", file=str(p))
+        return files
+    if p.exists():
+        return [p]
+    raise InputError("rules file or folder not found", file=str(p))
+
+
+def load_rule_sets(paths: Iterable[str | Path | None] | None) -> Rules:
+    """The rule sets given (files or folders) applied in order; none given = the shipped default set.
+
+    Each file overrides only what it sets, so `--rules a.toml --rules b.toml` equals a folder holding
+    the two files.
+    """
     rules = Rules()
-    for f in files:
-        rules = _apply_file(rules, f)
+    for p in (list(paths) if paths else [None]):
+        for f in _files(p):
+            rules = _apply_file(rules, f)
     return rules
+
+
+def load_rules(path: str | Path | None) -> Rules:
+    """Rules from one file or folder; None = the shipped default set."""
+    return load_rule_sets([path])

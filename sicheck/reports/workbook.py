@@ -296,19 +296,18 @@ def _stackup(wb: Workbook, rv: Review):
 
 
 def _rules(wb: Workbook, rv: Review):
-    from sicheck.rules import CHECKS
+    """Every registered check with its severity here and its parameters in effect, then the net classes."""
+    from sicheck.checks import CHECKS, SETTINGS
     r = rv.rules
-    cols = [("Item", None, 26), ("Value", None, 18), ("Match / meaning", None, 70)]
+    cols = [("Item", None, 30), ("Value", None, 18), ("Set in", None, 20), ("Meaning", None, 90)]
     sh = _Sheet(wb, "Rules", cols)
     sh.header()
-    for k, v, m in (("lumped_max_td_over_tr", r.lumped_max_td_over_tr, "lumped when TD/Tr at or below"),
-                    ("required_min_td_over_tr", r.required_min_td_over_tr, "termination required when TD/Tr at or above"),
-                    ("tolerance_pct", r.tolerance_pct, "default impedance tolerance, +/- %"),
-                    ("z_step_pct", r.z_step_pct, "largest impedance step along a net before a finding, %"),
-                    ("formula_field_pct", r.formula_field_pct, "closed form vs field solver difference that is reported, %")):
-        sh.row([k, v, m])
     for c in CHECKS:
-        sh.row([f"check {c.id}", r.severity[c.id], c.what])
+        sh.row([f"check {c.id}", r.severity.get(c.id, c.severity), "[severity]", c.summary])
+        for p in c.params:
+            sh.row([f"  {p.name}", p.shown(r.value(p.name)), p.where, p.help])
+    for p in SETTINGS:
+        sh.row([f"setting {p.name}", p.shown(r.value(p.name)), p.where, p.help])
     for c in r.classes:
         vals = []
         if c.z0 is not None:
@@ -324,7 +323,8 @@ def _rules(wb: Workbook, rv: Review):
             vals.append(f"gap {c.gap * 1e3:g} mm")
         if c.driver_ohm is not None:
             vals.append(f"Rdrv {c.driver_ohm:g} ohm")
-        sh.row([f"class {c.name}", ", ".join(vals), " ".join(c.match) or "(by net_class column)"])
+        vals += [f"{k} {v:g}" for k, v in c.params.items() if k not in ("z0", "zdiff", "tolerance_pct")]
+        sh.row([f"class {c.name}", ", ".join(vals), "[[net_class]]", " ".join(c.match) or "(by net_class column)"])
     sh.finish()
 
 

@@ -34,7 +34,7 @@ def per_cross_section() -> None:
 
 
 def demo_review() -> None:
-    from sicheck.cli import run_review
+    from sicheck.review_cmd import run_review
     from sicheck.resources import default_rules_path, demo_dir
     d = demo_dir()
     with tempfile.TemporaryDirectory() as tmp:

@@ -99,7 +99,7 @@ def same_rows_baseline(csv_path: Path, stackup: Path, xlsx: Path) -> tuple[float
 
 
 def full_review(csv_path: Path, stackup: Path, out: Path, js: Path) -> float:
-    from sicheck.cli import run_review
+    from sicheck.review_cmd import run_review
     t0 = time.perf_counter()
     run_review(csv_path, stackup, None, out, js, "formula", None, None, None, quiet=True)
     return time.perf_counter() - t0

@@ -28,14 +28,13 @@ def main() -> None:
     _, rec, cands = choose([50.0], [1e-9], 0.5e-9, 15.0, 3.3, 3e-12, Limits())
     print(f"termination choice for one net ({len(cands)} simulations): {(time.perf_counter() - t0) * 1e3:.1f} ms")
 
-    from sicheck.cli import _merge_rules
     from sicheck.resources import demo_dir
     from sicheck.review import build_review
-    from sicheck.rules import load_rules
+    from sicheck.rules import load_rule_sets
     from sicheck.stackup import load_stackup
     from sicheck.traces import read_traces
     d = demo_dir()
-    rules = _merge_rules(load_rules(None), load_rules(d / "rules.toml"))
+    rules = load_rule_sets([None, d / "rules.toml"])
     tl, st = read_traces(d / "traces.csv"), load_stackup(d / "stackup.toml")
     t0 = time.perf_counter()
     build_review(tl, st, rules, waveforms=False)

@@ -1,0 +1,199 @@
+"""The rule engine: what a check declares, the review context it reads, and the loop that runs them.
+
+A check is a plain function ``fn(ctx, chk) -> Iterable[Finding]`` registered with ``@check(...)``.
+It reads tables from the ``ReviewContext`` and builds findings with ``chk.finding(...)``; the
+engine applies the severity chosen in the rules (and skips a check set to ``off``).
+Nothing here imports the rules module: the rules read this registry, not the other way round.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from typing import Any, Callable, Iterable
+
+from sicheck.findings import Finding
+
+SEVERITIES = ("error", "warning", "info")
+SEVERITY_CHOICES = SEVERITIES + ("off",)
+
+# Parameter kinds: a plain number (with a unit shown beside it), an integer, or a quantity read with
+# units (stored in SI; `scale` converts SI to the unit shown in listings).
+KINDS = ("number", "int", "length", "time", "frequency")
+
+
+@dataclass(frozen=True)
+class Param:
+    """One setting a check reads.
+
+    ``section``: the rules-file table it can be set in (e.g. "impedance"), or None.
+    ``per_class``: it can also be set in a ``[[net_class]]``; the class value wins for that class.
+    ``default``: in SI; None means "not set" (a per-class-only limit such as a target).
+    """
+    name: str
+    kind: str
+    default: Any
+    unit: str = ""
+    help: str = ""
+    section: str | None = None
+    per_class: bool = False
+    lo: float = 0.0
+    hi: float = 1e6
+    lo_open: bool = True
+    scale: float = 1.0          # SI value x scale = the value in `unit`
+
+    def __post_init__(self):
+        if self.kind not in KINDS:
+            raise ValueError(f"parameter {self.name}: kind must be one of {KINDS}")
+        if self.section is None and not self.per_class:
+            raise ValueError(f"parameter {self.name}: settable nowhere (give a section or per_class)")
+
+    @property
+    def where(self) -> str:
+        places = ([f"[{self.section}]"] if self.section else []) + (["net class"] if self.per_class else [])
+        return ", ".join(places)
+
+    def shown(self, value) -> str:
+        """A value in this parameter's display unit, for listings."""
+        if value is None:
+            return "-"
+        v = value * self.scale
+        return f"{v:.4g} {self.unit}".strip()
+
+
+@dataclass
+class Check:
+    id: str
+    severity: str                       # the default; the rules' [severity] table overrides it
+    params: tuple[Param, ...]
+    fn: Callable[["ReviewContext", "Check"], Iterable[Finding]]
+    family: str
+    doc: str
+
+    @property
+    def summary(self) -> str:
+        """The docstring's first sentence group: what it checks, in one line."""
+        text = self.doc.strip().split("\n\n")[0]
+        return " ".join(text.split())
+
+    def section(self, title: str) -> str:
+        """The text under "What it checks:", "Why it matters:" or "How to fix:" in the docstring."""
+        lines = self.doc.splitlines()
+        out, on = [], False
+        for ln in lines:
+            s = ln.strip()
+            if s.lower().startswith(title.lower()):
+                on = True
+                rest = s[len(title):].lstrip(":").strip()
+                if rest:
+                    out.append(rest)
+                continue
+            if on and (not s or any(s.lower().startswith(t.lower()) for t in DOC_PARTS)):
+                break
+            if on:
+                out.append(s)
+        return " ".join(out)
+
+    def finding(self, net: str, layer: str, message: str, *, row: int | None = None, key: str | None = None,
+                value: float | None = None, limit: float | None = None, unit: str = "",
+                severity: str | None = None) -> Finding:
+        """A finding of this check. ``key`` defaults to rule|net|layer (no row: keys survive re-exports).
+
+        ``severity`` is only for a finding that is milder by nature (e.g. an info note); the engine
+        otherwise fills in the severity the rules choose.
+        """
+        return Finding(rule=self.id, severity=severity or "", net=net, layer=layer, message=message, row=row,
+                       key=key or make_key(self.id, net, layer), value=value, limit=limit, unit=unit)
+
+
+DOC_PARTS = ("What it checks", "Why it matters", "How to fix")
+
+REGISTRY: list[Check] = []
+SETTINGS: list[Param] = []      # settings no check owns (e.g. `plan`'s widest trace)
+
+
+def setting(p: Param) -> Param:
+    """Register a rules-file setting that no check reads (so the rules file may set it)."""
+    SETTINGS.append(p)
+    return p
+
+
+def check(id: str, severity: str, params: Iterable[Param] = ()):
+    """Register a check function. The function's docstring documents the rule (see DOC_PARTS)."""
+    if severity not in SEVERITIES:
+        raise ValueError(f"check {id}: default severity must be one of {SEVERITIES}")
+
+    def deco(fn):
+        if any(c.id == id for c in REGISTRY):
+            raise ValueError(f"check id '{id}' registered twice")
+        family = fn.__module__.rsplit(".", 1)[-1]
+        REGISTRY.append(Check(id, severity, tuple(params), fn, family, fn.__doc__ or ""))
+        return fn
+    return deco
+
+
+def make_key(rule: str, net: str, *where: str) -> str:
+    """A finding's stable identity: rule, net (or pair, its names sorted) and place; never a row number."""
+    return "|".join([rule, net, *[w for w in where if w]])
+
+
+def pair_label(a: str, b: str) -> str:
+    """A pair's name as shown (listed leg first)."""
+    return f"{a}/{b}"
+
+
+def pair_id(a: str, b: str) -> str:
+    """A pair's name for keys: the same whichever leg the export lists first."""
+    return "/".join(sorted((a, b)))
+
+
+@dataclass
+class ReviewContext:
+    """What a check may read. Tables use SI units (see review._segment_table and review._net_table).
+
+    segments: one row per trace-list row (pairs listed on one leg appear once)
+    nets: one row per net, both legs of a pair (a partner listed only through `pair` is mirrored)
+    cross_sections: (CrossSection, LineResult) per unique cross-section; segments["xs"] indexes it
+    rules: the merged rule set; classes: class name -> NetClass
+    """
+    segments: Any
+    nets: Any
+    rules: Any
+    stackup: Any = None
+    cross_sections: list = field(default_factory=list)
+
+    def __post_init__(self):
+        self.classes = {c.name: c for c in getattr(self.rules, "classes", ())}
+
+    def net_class(self, name: str):
+        return self.classes.get(name)
+
+    def param(self, name: str, class_name: str | None = None):
+        """A parameter's value in effect: the class's own value when set, else the rules' value."""
+        cls = self.classes.get(class_name) if class_name else None
+        return self.rules.value(name, cls)
+
+    def param_per_row(self, name: str, class_names) -> "np.ndarray":
+        """A parameter's value for each row's class, as floats (NaN where unset); one lookup per class."""
+        import numpy as np
+        names = list(class_names)
+        vals = {n: self.param(name, n) for n in set(names)}
+        return np.array([np.nan if vals[n] is None else vals[n] for n in names], dtype=float)
+
+
+def run_checks(ctx: ReviewContext, checks: Iterable[Check] | None = None) -> list[Finding]:
+    """Every registered check not turned off, with the rules' severities applied; keys made unique."""
+    sev = ctx.rules.severity
+    out: list[Finding] = []
+    for chk in (REGISTRY if checks is None else checks):
+        level = sev.get(chk.id, chk.severity)
+        if level == "off":
+            continue
+        for f in chk.fn(ctx, chk):
+            out.append(replace(f, severity=f.severity or level))
+    seen: dict[str, int] = {}
+    for i, f in enumerate(out):
+        n = seen.get(f.key, 0) + 1
+        seen[f.key] = n
+        if n > 1:       # same place twice (e.g. two equal rows): keep keys unique, still row-free
+            out[i] = replace(f, key=f"{f.key}|{n}")
+    return out

@@ -1,0 +1,60 @@
+"""Waveform check: the simulated receiver waveform of nets that need termination."""
+
+from __future__ import annotations
+
+from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label
+from sicheck.checks.length import lines_longest_first, simulated
+from sicheck.checks.loss import first_rows
+
+# Common practice values (see rules/default.toml); the waveform stage (waveform_review.py) reads them.
+PARAMS = (
+    Param("swing", "number", 3.3, "V", "driver swing when the class gives none (assumed; the % metrics do not "
+          "depend on it)", section="waveform", hi=1e3),
+    Param("driver_ohm", "number", 25.0, "ohm", "driver output resistance when neither trace list nor class "
+          "gives one (common practice, CMOS)", section="waveform", hi=1e4),
+    Param("load_pf", "number", 2.0, "pF", "receiver input capacitance when none is given (common practice)",
+          section="waveform", lo_open=False, hi=1e4),
+    Param("max_overshoot_pct", "number", 15.0, "%", "largest overshoot accepted (common practice)",
+          section="waveform", per_class=True, lo_open=False, hi=1e4),
+    Param("max_ringback_pct", "number", 15.0, "%", "largest ringback accepted (common practice)",
+          section="waveform", per_class=True, lo_open=False, hi=1e4),
+    Param("settle_rise_times", "number", 2.0, "x Tr", "settled within flight + ramp + this many rise times (ours)",
+          section="waveform", hi=1e6),
+    Param("max_settle_ns", "number", None, "ns", "latest settling time accepted for the class", per_class=True,
+          lo_open=False, hi=1e4),
+    Param("max_nets", "int", 500, "nets", "simulate at most this many nets (the longest first); the rest keep "
+          "the first-order advice", section="waveform", hi=1e6),
+)
+
+
+@check("waveform", "warning", params=PARAMS)
+def waveform(ctx, chk):
+    """Simulated receiver waveform of a net that needs termination, when no standard scheme meets the limits.
+
+    What it checks: each net that needs termination is simulated unterminated and with each standard
+    scheme; this finding appears when none of them keeps overshoot, ringback and settling within the
+    class's limits (an info says when only the `max_nets` longest nets were simulated).
+    Why it matters: a termination that leaves the waveform outside its limits still risks false
+    clocking, over-stress of the receiver's input and lost timing margin.
+    How to fix: shorten the net, lower the driver strength (a larger series resistor), reduce the load
+    or the stub lengths, or review the class's limits.
+    """
+    nets = ctx.nets
+    if "termination_part" not in nets.columns:
+        return
+    rows = first_rows(ctx.segments)
+    for r in lines_longest_first(nets):
+        if simulated(r) and r.waveform_meets_limits is False:
+            ident = pair_id(r.net, r.pair) if r.pair else r.net
+            yield chk.finding(pair_label(r.net, r.pair) if r.pair else r.net, r.layers,
+                              f"no standard termination meets the limits; best found: {r.termination_part} "
+                              f"({r.waveform_violations})", row=rows.get(r.net, rows.get(r.pair)),
+                              key=make_key(chk.id, ident))
+    flagged = nets[nets["termination"] != "not-needed"]
+    unsimulated = int((flagged["termination_part"] == "").sum())
+    if unsimulated:
+        n_max = ctx.param("max_nets")
+        yield chk.finding(f"{unsimulated} nets", "", f"the waveform check ran on the {n_max} longest of "
+                          f"{len(flagged)} nets that need termination; the others keep the first-order advice "
+                          "(raise [waveform] max_nets to simulate them all)", key=make_key(chk.id, "not-simulated"),
+                          value=float(unsimulated), limit=float(n_max), unit="nets", severity="info")

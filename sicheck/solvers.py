@@ -1,0 +1,37 @@
+"""Choosing the impedance solver for a command: closed forms, the field solver, or 'auto'."""
+
+from __future__ import annotations
+
+from sicheck.errors import InputError
+
+SOLVERS = ("auto", "formula", "field")
+
+
+def _err_console():
+    from rich.console import Console
+    return Console(stderr=True, highlight=False)
+
+
+def solver_fn(name: str, no_cache: bool = False, show_progress: bool = True):
+    """The function that solves a list of unique cross-sections for the chosen solver."""
+    from sicheck.physics.formula import solve_formula
+    if name not in SOLVERS:
+        raise InputError(f"--solver must be one of {', '.join(SOLVERS)} (got '{name}')")
+    if name == "formula":
+        return solve_formula
+
+    def field(xs_list):
+        from sicheck.field_solve import AUTO_FIELD_LIMIT, solve_field_all
+        if name == "auto" and len(xs_list) > AUTO_FIELD_LIMIT:
+            _err_console().print(f"{len(xs_list)} unique cross-sections: more than {AUTO_FIELD_LIMIT}, so 'auto' "
+                                 "uses the closed forms (use --solver field to force the field solver)")
+            return solve_formula(xs_list)
+        if not show_progress:
+            return solve_field_all(xs_list, use_cache=not no_cache)
+        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+        with Progress(TextColumn("field-solving cross-sections"), BarColumn(), MofNCompleteColumn(),
+                      TimeElapsedColumn(), console=_err_console(), transient=True) as bar:
+            task = bar.add_task("solve", total=len(xs_list))
+            return solve_field_all(xs_list, use_cache=not no_cache,
+                                   progress=lambda done, total: bar.update(task, completed=done))
+    return field
