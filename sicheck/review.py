@@ -7,6 +7,7 @@ Pure orchestration over tables; no printing, no files. Each unique cross-section
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Callable
 
 import numpy as np
@@ -45,7 +46,7 @@ class Review:
             c[f.severity] += 1
         return c
 
-    @property
+    @cached_property
     def net_counts(self) -> dict[str, int]:
         """Headline counts by termination and electrical class, a pair counted once (by its longer leg)."""
         n = self.nets

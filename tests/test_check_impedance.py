@@ -75,3 +75,60 @@ def test_zdiff_target_param_tolerance():
     seg = segments({"net": "D_P", "pair": "D_N", "net_class": "LV", "zdiff": 112.0})
     assert findings(seg, rules([cls("LV", zdiff=100.0, tolerance_pct=15.0)]), "zdiff-target") == []
     assert len(findings(seg, rules([cls("LV", zdiff=100.0)]), "zdiff-target")) == 1
+
+
+def _step_net(z_second, length_mm=50.0, **kw):
+    return segments({"net": "A", "layer": "TOP", "z0": 50.0, "length_mm": length_mm, **kw},
+                    {"net": "A", "layer": "IN3", "z0": z_second, "length_mm": length_mm, **kw})
+
+
+def test_z_step_passes_small_step():
+    assert findings(_step_net(54.0), rules(), "z-step") == []
+
+
+def test_z_step_fails_on_transmission_line_with_layers_in_order():
+    (f,) = findings(_step_net(60.0), rules(), "z-step")
+    assert f.layer == "TOP → IN3" and f.message.startswith("Z0 changes 20 %")
+    assert (f.value, f.limit, f.unit, f.severity) == (20.0, 10.0, "%", "warning")
+    assert f.key == "z-step|A|TOP → IN3" and f.row == 3
+
+
+def test_z_step_fails_once_per_pair_naming_zdiff():
+    rows = []
+    for net, partner in (("D_P", "D_N"), ("D_N", "D_P")):
+        rows += [{"net": net, "pair": partner, "layer": "TOP", "zdiff": 100.0},
+                 {"net": net, "pair": partner, "layer": "IN3", "zdiff": 85.0}]
+    (f,) = findings(segments(*rows), rules(), "z-step")
+    assert f.message.startswith("Zdiff changes 18 %") and "pair" in f.message and f.key.startswith("z-step|D_N/D_P|")
+
+
+def test_z_step_passes_on_lumped_net():
+    # 2 mm pieces: 27 ps of a 500 ps edge, lumped; the same 20 % step is not reported
+    assert findings(_step_net(60.0, length_mm=2.0), rules(), "z-step") == []
+
+
+def test_z_step_off():
+    assert findings(_step_net(60.0), rules(severity={"z-step": "off"}), "z-step") == []
+
+
+def test_z_step_param_z_step_pct():
+    assert findings(_step_net(60.0), rules(z_step_pct=25.0), "z-step") == []
+
+
+def test_no_target_fails_for_transmission_line_without_target():
+    seg = segments({"net": "S1", "net_class": "SLOW", "length_mm": 100.0},
+                   {"net": "S2", "net_class": "SLOW", "length_mm": 120.0})
+    (f,) = findings(seg, rules([cls("SLOW")]), "no-target")
+    assert f.net == "S2, S1" and "class 'SLOW'" in f.message and f.key == "no-target|SLOW" and f.value == 2
+
+
+def test_no_target_passes_with_target_or_lumped():
+    seg = segments({"net": "S1", "net_class": "SLOW", "length_mm": 100.0})
+    assert findings(seg, rules([cls("SLOW", z0=50.0)]), "no-target") == []
+    assert findings(segments({"net": "S1", "net_class": "SLOW", "length_mm": 3.0}), rules([cls("SLOW")]),
+                    "no-target") == []
+
+
+def test_no_target_off():
+    seg = segments({"net": "S1", "net_class": "SLOW", "length_mm": 100.0})
+    assert findings(seg, rules([cls("SLOW")], severity={"no-target": "off"}), "no-target") == []

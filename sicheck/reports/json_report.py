@@ -114,8 +114,9 @@ def review_dict(rv: Review) -> dict:
         "segments": int(len(rv.segments)), "nets": int(len(nets)),
         "cross_sections": len(rv.cross_sections),
         "findings": rv.counts,
-        "termination": {k: int((nets["termination"] == k).sum()) for k in ("not-needed", "recommended", "required")},
-        "electrical": {k: int((nets["electrical"] == k).sum()) for k in ("lumped", "transmission-line")},
+        # a pair counts once, as in the tables and findings
+        "termination": {k: rv.net_counts[k] for k in ("not-needed", "recommended", "required")},
+        "electrical": {k: rv.net_counts[k] for k in ("lumped", "transmission-line")},
         "exit_code": rv.exit_code,
     }
     return {"summary": summary, "nets": nets_json(nets), "segments": segments_json(rv.segments),

@@ -29,7 +29,7 @@ def print_summary(rv: Review, console: Console, worst: int = 10) -> None:
                   f"{len(rv.cross_sections)} cross-sections)")
     console.print(f"findings: [bold red]{c['error']} error[/]  [yellow]{c['warning']} warning[/]  "
                   f"[cyan]{c['info']} info[/]")
-    counts = {k: int((nets["termination"] == k).sum()) for k in ("not-needed", "recommended", "required")}
+    counts = rv.net_counts        # a pair counts once
     console.print(f"nets: {counts['not-needed']} lumped, {counts['recommended']} termination recommended, "
                   f"{counts['required']} termination required")
 

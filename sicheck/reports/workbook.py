@@ -175,9 +175,9 @@ def _summary(wb: Workbook, rv: Review):
         ("Warnings", counts["warning"]),
         ("Info", counts["info"]),
         ("", ""),
-        ("Lumped nets (no termination needed)", int((nets["termination"] == "not-needed").sum())),
-        ("Termination recommended", int((nets["termination"] == "recommended").sum())),
-        ("Termination required", int((nets["termination"] == "required").sum())),
+        ("Lumped nets (no termination needed)", rv.net_counts["not-needed"]),     # a pair counts once
+        ("Termination recommended", rv.net_counts["recommended"]),
+        ("Termination required", rv.net_counts["required"]),
         ("", ""),
         ("Criteria", f"lumped when TD <= {rv.rules.lumped_max_td_over_tr:.3g} x Tr; termination required when "
                      f"TD >= {rv.rules.required_min_td_over_tr:.3g} x Tr; in between recommended"),
