@@ -75,6 +75,10 @@ class Check:
         text = self.doc.strip().split("\n\n")[0]
         return " ".join(text.split())
 
+    @property
+    def what(self) -> str:          # the name the former rules.Check used
+        return self.summary
+
     def section(self, title: str) -> str:
         """The text under "What it checks:", "Why it matters:" or "How to fix:" in the docstring."""
         lines = self.doc.splitlines()

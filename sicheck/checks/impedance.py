@@ -118,36 +118,38 @@ def z_step(ctx, chk):
     too short to matter, which is why they are not checked.
     How to fix: keep the impedance equal across layers: change the width (and gap) on one of the layers.
     """
+    import pandas as pd
     seg = ctx.segments
     nets = ctx.nets
     lines = set(nets.loc[nets["electrical"] != "lumped", "net"])
     limit = ctx.param("z_step_pct")
+    paired = (seg["pair"] != "").to_numpy()
+    t = pd.DataFrame({"net": seg["net"].to_numpy(), "paired": paired,
+                      "z": np.where(paired, seg["zdiff"].to_numpy(float), seg["z0"].to_numpy(float))})
+    t = t[t["net"].isin(lines)]
+    g = t.groupby(["net", "paired"], sort=False)["z"]
+    stats = pd.DataFrame({"lo": g.min(), "hi": g.max(), "lo_at": g.idxmin(), "hi_at": g.idxmax()})
+    stats = stats[(stats["hi"] - stats["lo"]) / stats["lo"] * 100.0 > limit]      # vectorised; loop over steps only
     done: set = set()
-    is_pair = (seg["pair"] != "").to_numpy()
-    for (net, paired), g in seg.assign(_paired=is_pair).groupby(["net", "_paired"], sort=False):
-        if net not in lines or len(g) < 2:
-            continue
-        partner = g["pair"].iat[0] if paired else ""
-        ident = pair_id(net, partner) if paired else net
+    for (net, is_pair), r in stats.iterrows():
+        partner = seg["pair"].iat[int(r.lo_at)] if is_pair else ""
+        ident = pair_id(net, partner) if is_pair else net
         if ident in done:
             continue
         done.add(ident)
-        q = "Zdiff" if paired else "Z0"
-        z = g["zdiff" if paired else "z0"].to_numpy(float)
-        lo, hi = int(np.argmin(z)), int(np.argmax(z))
-        step = (z[hi] - z[lo]) / z[lo] * 100.0
-        if not step > limit:
-            continue
-        a, b = sorted((lo, hi))                # in the order the net runs
-        la, lb = g["layer"].iat[a], g["layer"].iat[b]
+        q = "Zdiff" if is_pair else "Z0"
+        a, b = sorted((int(r.lo_at), int(r.hi_at)))       # in the order the net runs
+        za, zb = t.at[a, "z"], t.at[b, "z"]
+        la, lb = seg["layer"].iat[a], seg["layer"].iat[b]
+        step = (r.hi - r.lo) / r.lo * 100.0
         where = la if la == lb else f"{la} → {lb}"
-        label = pair_label(net, partner) if paired else net
-        fix = "width and gap" if paired else "width"
+        label = pair_label(net, partner) if is_pair else net
+        fix = "width and gap" if is_pair else "width"
         yield chk.finding(
             label, where,
-            f"{q} changes {step:.0f} % along the {'pair' if paired else 'net'}: {z[a]:.1f} ohm on {la} → "
-            f"{z[b]:.1f} ohm on {lb}; each step reflects part of the edge (match the {fix} across layers)",
-            row=int(g["row"].iat[b]), key=make_key(chk.id, ident, where), value=float(step), limit=float(limit),
+            f"{q} changes {step:.0f} % along the {'pair' if is_pair else 'net'}: {za:.1f} ohm on {la} → "
+            f"{zb:.1f} ohm on {lb}; each step reflects part of the edge (match the {fix} across layers)",
+            row=int(seg["row"].iat[b]), key=make_key(chk.id, ident, where), value=float(step), limit=float(limit),
             unit="%")
 
 

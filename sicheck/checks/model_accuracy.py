@@ -8,19 +8,20 @@ FORMULA_FIELD = Param("formula_field_pct", "number", 2.0, "%", "closed form vs f
                       "that is reported", section="impedance", hi=1e6)
 
 
-def _places(ctx):
-    """Per unique cross-section: (cross-section, result, nets label, layer, first row, geometry text)."""
+def _places(ctx, wanted):
+    """For each wanted cross-section index: (cross-section, result, nets label, layer, first row, geometry)."""
     seg = ctx.segments
-    xs_col = seg["xs"].to_numpy()
-    for i, (x, res) in enumerate(ctx.cross_sections):
-        here = seg.index[xs_col == i]
-        if not len(here):
+    at = seg.groupby("xs", sort=False).indices          # xs -> positions, one pass over the table
+    for i in wanted:
+        x, res = ctx.cross_sections[i]
+        here = at.get(i)
+        if here is None or not len(here):
             continue
-        nets_here = seg.loc[here, "net"].unique()
+        nets_here = seg["net"].iloc[here].unique()
         label = ", ".join(nets_here[:3]) + (f" and {len(nets_here) - 3} more" if len(nets_here) > 3 else "")
         first = here[0]
         geom = f"w{x.width * 1e3:.4g}mm" + (f"g{x.gap * 1e3:.4g}mm" if x.coupled else "")
-        yield x, res, label, seg.at[first, "layer"], int(seg.at[first, "row"]), geom
+        yield x, res, label, seg["layer"].iat[first], int(seg["row"].iat[first]), geom
 
 
 @check("model-accuracy", "warning")
@@ -34,7 +35,8 @@ def model_accuracy(ctx, chk):
     How to fix: review with `--solver field`, or confirm the value with the fabricator's impedance
     report.
     """
-    for x, res, label, layer, row, geom in _places(ctx):
+    wanted = [i for i, (_, res) in enumerate(ctx.cross_sections) if res.warnings]
+    for x, res, label, layer, row, geom in _places(ctx, wanted):
         for w in res.warnings:
             yield chk.finding(label, layer, f"{res.model}: {w}", row=row, key=make_key(chk.id, layer, geom))
 
@@ -51,17 +53,19 @@ def formula_vs_field(ctx, chk):
     design was sized with a closed form.
     """
     limit = ctx.param("formula_field_pct")
-    for x, res, label, layer, row, geom in _places(ctx):
-        if not res.model.startswith("field"):
-            continue
+    diffs = {}
+    for i, (x, res) in enumerate(ctx.cross_sections):
+        z_ref = res.zdiff if x.coupled else res.z0
+        z_f = res.formula_zdiff if x.coupled else res.formula_z0
+        if res.model.startswith("field") and z_f is not None and z_ref:
+            diff = (z_f - z_ref) / z_ref * 100.0
+            if abs(diff) > limit:
+                diffs[i] = diff
+    for x, res, label, layer, row, geom in _places(ctx, list(diffs)):
         what = "Zdiff" if x.coupled else "Z0"
         z_ref = res.zdiff if x.coupled else res.z0
         z_f = res.formula_zdiff if x.coupled else res.formula_z0
-        if z_f is None or not z_ref:
-            continue
         diff = (z_f - z_ref) / z_ref * 100.0
-        if abs(diff) <= limit:
-            continue
         why = "; ".join(res.formula_warnings) or "closed-form approximation"
         yield chk.finding(label, layer,
                           f"{what}: field solution {z_ref:.1f} ohm (+/-{res.uncertainty_pct:.2f} %) vs closed form "
