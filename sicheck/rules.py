@@ -34,7 +34,7 @@ CLASS_VALUES = {"rise_time": "time", "width": "length", "gap": "length", "freq":
                 "driver_ohm": "number", "load_pf": "number"}
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, init=False)
 class NetClass:
     name: str
     match: tuple[str, ...] = ()
@@ -47,6 +47,20 @@ class NetClass:
     freq: float | None = None          # where loss (and a dispersive dielectric) is evaluated
     params: dict = field(default_factory=dict, compare=False)   # per-class check parameters it sets (SI)
     origin: str = ""                   # "file, line n" where it was defined
+
+    def __init__(self, name: str, match: tuple[str, ...] = (), rise_time=None, width=None, gap=None,
+                 driver_ohm=None, load_pf=None, swing=None, freq=None, params: dict | None = None, origin: str = "",
+                 **class_params_set):
+        # per-class check parameters may also be given by name (NetClass("CLK", z0=50), replace(c, z0=45))
+        unknown = set(class_params_set) - set(class_params())
+        if unknown:
+            raise TypeError(f"NetClass got unknown parameters {sorted(unknown)}")
+        merged = dict(params or {})
+        merged.update({k: v for k, v in class_params_set.items() if v is not None})
+        for k, v in (("name", name), ("match", tuple(match)), ("rise_time", rise_time), ("width", width),
+                     ("gap", gap), ("driver_ohm", driver_ohm), ("load_pf", load_pf), ("swing", swing),
+                     ("freq", freq), ("params", merged), ("origin", origin)):
+            object.__setattr__(self, k, v)
 
     def __getattr__(self, name: str):
         # per-class check parameters read as attributes (cls.z0, cls.max_loss_db); None when not set
@@ -66,7 +80,7 @@ def _default_severity() -> dict:
     return {c.id: c.severity for c in CHECKS}
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, init=False)
 class Rules:
     name: str = "built-in"
     sources: tuple[str, ...] = ()
@@ -75,6 +89,22 @@ class Rules:
     columns: dict = field(default_factory=dict)
     classes: tuple[NetClass, ...] = ()
     notes: tuple[tuple[str, str], ...] = ()                  # (where, note) for the rules-note check
+
+    def __init__(self, name: str = "built-in", sources: tuple[str, ...] = (), settings: dict | None = None,
+                 severity: dict | None = None, columns: dict | None = None, classes: tuple = (),
+                 notes: tuple = (), **params):
+        # parameters may also be given by name (Rules(tolerance_pct=5), replace(rules, max_nets=2))
+        unknown = set(params) - set(all_params())
+        if unknown:
+            raise TypeError(f"Rules got unknown parameters {sorted(unknown)}")
+        st = _defaults()
+        st.update(settings or {})
+        st.update(params)
+        sev = _default_severity()
+        sev.update(severity or {})
+        for k, v in (("name", name), ("sources", tuple(sources)), ("settings", st), ("severity", sev),
+                     ("columns", dict(columns or {})), ("classes", tuple(classes)), ("notes", tuple(notes))):
+            object.__setattr__(self, k, v)
 
     def __getattr__(self, name: str):
         # parameters read as attributes (rules.min_feature, rules.swing)

@@ -41,3 +41,17 @@ def test_second_rules_file_keeps_the_first_files_settings(run, board, tmp_path):
     assert code == 0, err      # a 0.4 mm trace misses 50 ohm by far less than 60 %: only with a.toml's tolerance
     rules = [f["rule"] for f in json.loads(js.read_text(encoding="utf-8"))["findings"]]
     assert "z0-target" not in rules
+
+
+def test_workbook_rules_sheet_lists_every_check_and_parameter(run, board, tmp_path):
+    import openpyxl
+
+    from sicheck.checks import CHECKS, all_params
+    tr, st = board("net,layer,length,width,rise_time\nA,L1,10mm,0.2mm,1ns\n")
+    out = tmp_path / "r.xlsx"
+    code, _, err = run("review", tr, "--stackup", st, "--out", out, "--solver", "formula")
+    assert code == 0, err
+    rows = list(openpyxl.load_workbook(out, read_only=True)["Rules"].iter_rows(values_only=True))
+    items = {str(r[0]).strip() for r in rows}
+    assert {f"check {c.id}" for c in CHECKS} <= items
+    assert set(all_params()) <= {i.replace("setting ", "") for i in items}

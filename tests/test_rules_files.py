@@ -145,3 +145,27 @@ def test_old_class_name_default_is_accepted_with_a_note(tmp_path):
 def test_unmatched_nets_are_unclassified_without_any_file():
     from sicheck.rules import Rules
     assert Rules().class_for("FOO").name == UNCLASSIFIED
+
+
+def test_every_section_parameter_rejects_bad_values_by_its_declaration(tmp_path):
+    from sicheck.checks import section_params
+    for sec, params in section_params().items():
+        for name in params:
+            for bad in ("-1e12", '"abc"', "true", "[1]"):
+                p = _write(tmp_path, "r.toml", f"[{sec}]\n{name} = {bad}\n")
+                with pytest.raises(InputError) as e:
+                    load_rules(p)
+                assert (e.value.key, e.value.line) == (name, 2), (sec, name, bad)
+
+
+def test_rules_and_classes_take_parameters_by_name():
+    from dataclasses import replace
+
+    from sicheck.rules import NetClass, Rules
+    r = replace(Rules(tolerance_pct=5.0), max_nets=3)
+    assert (r.tolerance_pct, r.max_nets, r.swing) == (5.0, 3, 3.3)
+    c = replace(NetClass("CLK", match=("CLK*",), z0=50.0), tolerance_pct=7.0)
+    assert (c.z0, c.tolerance_pct, c.zdiff, c.match) == (50.0, 7.0, None, ("CLK*",))
+    assert r.value("tolerance_pct", c) == 7.0 and r.value("tolerance_pct") == 5.0
+    with pytest.raises(TypeError):
+        Rules(no_such_setting=1)

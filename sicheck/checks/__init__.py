@@ -6,6 +6,8 @@ module to the import below; see DEVELOPERS.md "Adding a check".
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 from sicheck.checks.engine import (DOC_PARTS, REGISTRY, SETTINGS, SEVERITIES, SEVERITY_CHOICES, Check, Param,
                                    ReviewContext, check, run_checks, setting)
 
@@ -25,8 +27,12 @@ def by_id(rule_id: str) -> Check:
     raise KeyError(rule_id)
 
 
+@lru_cache(maxsize=None)
 def all_params() -> dict[str, Param]:
-    """Every parameter by name (checks may share one, e.g. tolerance_pct; then it is the same declaration)."""
+    """Every parameter by name (checks may share one, e.g. tolerance_pct; then it is the same declaration).
+
+    Cached: the registry is complete once this package is imported. Callers must not modify the result.
+    """
     out: dict[str, Param] = {}
     for p in [p for c in CHECKS for p in c.params] + list(SETTINGS):
         if p.name in out and out[p.name] != p:
@@ -35,6 +41,7 @@ def all_params() -> dict[str, Param]:
     return out
 
 
+@lru_cache(maxsize=None)
 def section_params() -> dict[str, dict[str, Param]]:
     """Rules-file table -> its keys."""
     out: dict[str, dict[str, Param]] = {}
@@ -44,6 +51,7 @@ def section_params() -> dict[str, dict[str, Param]]:
     return out
 
 
+@lru_cache(maxsize=None)
 def class_params() -> dict[str, Param]:
     """Parameters a [[net_class]] may set."""
     return {n: p for n, p in all_params().items() if p.per_class}
