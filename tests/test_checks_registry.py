@@ -155,3 +155,11 @@ def test_bad_rules_type_exits_2_with_line(run, tmp_path):
     with pytest.raises(InputError):
         from sicheck.rules import load_rules
         load_rules(p)
+
+
+def test_every_subpackage_is_installed():
+    # a package missing from pyproject's list works from a checkout and fails once installed
+    listed = set(tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))["tool"]["setuptools"]["packages"])
+    for init in (ROOT / "sicheck").rglob("__init__.py"):
+        pkg = ".".join(init.parent.relative_to(ROOT).parts)
+        assert pkg in listed, f"{pkg} is not in pyproject.toml [tool.setuptools] packages"
