@@ -154,8 +154,12 @@ def pair_id(a: str, b: str) -> str:
 class ReviewContext:
     """What a check may read. Tables use SI units (see review._segment_table and review._net_table).
 
-    segments: one row per trace-list row (pairs listed on one leg appear once)
-    nets: one row per net, both legs of a pair (a partner listed only through `pair` is mirrored)
+    segments: one row per trace-list row (pairs listed on one leg appear once). Columns: row, net, pair,
+        layer, net_class, kind, length, width, gap, z0, zdiff, zodd, zeven, eps_eff, delay_per_m, delay,
+        rise_time, freq, loss_db, model, uncertainty_pct, xs, ...
+    nets: one row per net, both legs of a pair (a partner listed only through `pair` is mirrored). Columns:
+        net, net_class, pair, layers, length, delay, rise_time, td_over_tr, electrical, termination,
+        loss_db, freq, critical_length, advice, and the waveform stage's columns when it ran.
     cross_sections: (CrossSection, LineResult) per unique cross-section; segments["xs"] indexes it
     rules: the merged rule set; classes: class name -> NetClass
     """
