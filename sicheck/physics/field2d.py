@@ -16,6 +16,11 @@ Richardson extrapolation with the observed order, and a grid-convergence index
 (safety factor 1.25, Roache 1994) as the uncertainty. Levels are added until the
 uncertainty of Z is below the target. The far boundary sits at 100x the structure
 size, where the truncation error (about (size/R)^2) is below 1e-4.
+
+Conductor loss: Wheeler's incremental-inductance rule (Wheeler, Proc. IRE 30, 1942) needs
+dZ_air/dn for every conductor wall receded by n. It is the derivative of the air solution's
+discrete energy under a motion of the grid lines that carries the walls (energy_rate): exact
+for the discrete problem, no further solve, extrapolated over the same levels.
 """
 
 from __future__ import annotations
