@@ -92,6 +92,9 @@ def solve_field_all(xs_list: list[CrossSection], target_pct: float = field2d.DEF
     if workers is None and os.environ.get("SICHECK_WORKERS", "").isdigit():
         workers = int(os.environ["SICHECK_WORKERS"])
     n_workers = workers if workers is not None else min(os.cpu_count() or 1, 4)
+    # the slowest first (pairs solve four fields and their isolated line; open microstrip has the
+    # larger grid), so that no worker is left with a long job at the end
+    todo.sort(key=lambda i: (not xs_list[i].coupled, xs_list[i].kind != "microstrip"))
     if len(todo) >= 3 and n_workers > 1:
         with ProcessPoolExecutor(max_workers=n_workers) as pool:
             for i, r in zip(todo, pool.map(_solve_one, [(xs_list[i], target_pct) for i in todo])):

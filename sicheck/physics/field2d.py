@@ -418,56 +418,69 @@ def energy_rate(p: Problem, eps: np.ndarray, phi: np.ndarray, vx: np.ndarray, vy
     return float(np.sum(dax * gx * gx) + np.sum(day * gy * gy))
 
 
-def _capacitances(lay: Layout, level: int, coupled: bool, homogeneous: bool, rate: bool = False
-                  ) -> dict[str, float]:
-    """Energies of one grid level: each mode in its dielectric and in air, the loss-tangent share and,
-    with ``rate``, dW_air/dn of the signal mode (odd for a pair) under Wheeler's recession."""
-    p = discretise(lay, level)
+def _mode_energies(lay: Layout, p: Problem, name: str, odd: bool, homogeneous: bool, rate: bool) -> dict:
+    """One mode on one grid: energy in its dielectric and in air, loss-tangent share and, with ``rate``,
+    dW_air/dn under Wheeler's recession (energy_rate)."""
     air = np.ones_like(p.eps)
+    system = _System(p, odd)
+    K, rhs, c = system.matrix(p.eps)
+    lu = _factorise(K)
+    phi_f = lu.solve(rhs)
+    phi = system.potential(phi_f)
+    out = {name: system.energy(c, phi), name + "_tand": loss_tangent_share(p, phi)}
+    phi_air = phi
+    if not homogeneous:
+        # the air problem has the same grid and pattern: the dielectric factors precondition it
+        Ka, rhsa, ca = system.matrix(air)
+        phia_f = _pcg(Ka, rhsa, lu, phi_f)
+        if phia_f is None:
+            phia_f = _factorise(Ka).solve(rhsa)
+        phi_air = system.potential(phia_f)
+        out[name + "_air"] = system.energy(ca, phi_air)
+    if rate:
+        vx, vy = grid_motion(lay, p)
+        out["rate_air"] = energy_rate(p, air, phi_air, vx, vy)
+    return out
+
+
+def _capacitances(lay: Layout, levels: list[int], coupled: bool, homogeneous: bool, rate: bool = False
+                  ) -> list[dict[str, float]]:
+    """Capacitances per length of the given grid levels: each mode in its dielectric and in air
+    (F/m), the loss-tangent share and, with ``rate``, dC_air/dn of the signal mode (odd for a pair).
+
+    Every (level, mode) is an independent solve, and SuperLU releases the GIL: two threads share
+    them, the largest first.
+    """
     modes = [("even", False), ("odd", True)] if coupled else [("single", False)]
     signal = "odd" if coupled else "single"
     factor = 1.0 if coupled else 2.0     # single trace: the half domain holds half the energy
+    grids = {k: discretise(lay, k) for k in levels}
+    jobs = [(k, name, odd) for k in sorted(levels, reverse=True) for name, odd in modes]
 
-    def job(mode):
-        name, odd = mode
-        system = _System(p, odd)
-        K, rhs, c = system.matrix(p.eps)
-        lu = _factorise(K)
-        phi_f = lu.solve(rhs)
-        phi = system.potential(phi_f)
-        out = {name: system.energy(c, phi), name + "_tand": loss_tangent_share(p, phi)}
-        phi_air = phi
-        if not homogeneous:
-            # the air problem has the same grid and pattern: the dielectric factors precondition it
-            Ka, rhsa, ca = system.matrix(air)
-            phia_f = _pcg(Ka, rhsa, lu, phi_f)
-            if phia_f is None:
-                phia_f = _factorise(Ka).solve(rhsa)
-            phi_air = system.potential(phia_f)
-            out[name + "_air"] = system.energy(ca, phi_air)
-        if rate and name == signal:
-            vx, vy = grid_motion(lay, p)
-            out["rate_air"] = energy_rate(p, air, phi_air, vx, vy)
-        return out
-
-    # the two modes are independent and SuperLU releases the GIL: two threads overlap them
-    if len(modes) > 1:
+    def run(job):
+        k, name, odd = job
+        return _mode_energies(lay, grids[k], name, odd, homogeneous, rate and name == signal)
+    if len(jobs) > 1:
         with ThreadPoolExecutor(max_workers=2) as pool:
-            parts = list(pool.map(job, modes))
+            parts = list(pool.map(run, jobs))
     else:
-        parts = [job(modes[0])]
-    out = {}
-    for part in parts:
-        out.update(part)
-    if homogeneous:
-        er = float(p.eps.flat[0])
-        for name, _ in modes:
-            out[name + "_air"] = out[name] / er
-    for k in list(out):
-        if not k.endswith("_tand"):
-            out[k] *= EPS0 * factor          # energies to capacitances (and dC/dn)
-    out["cells"] = float(p.eps.size)
-    return out
+        parts = [run(jobs[0])]
+    outs = []
+    for k in levels:
+        out: dict[str, float] = {}
+        for (kj, _, _), part in zip(jobs, parts):
+            if kj == k:
+                out.update(part)
+        if homogeneous:
+            er = float(grids[k].eps.flat[0])
+            for name, _ in modes:
+                out[name + "_air"] = out[name] / er
+        for key in list(out):
+            if not key.endswith("_tand"):
+                out[key] *= EPS0 * factor          # energies to capacitances (and dC/dn)
+        out["cells"] = float(grids[k].eps.size)
+        outs.append(out)
+    return outs
 
 
 def _richardson(c0: float, c1: float, c2: float) -> tuple[float, float]:
@@ -501,7 +514,7 @@ def solve_field(xs: CrossSection, target_pct: float = DEFAULT_TARGET_PCT, max_le
     single_job = ThreadPoolExecutor(max_workers=1) if coupled else None
     single_future = (single_job.submit(solve_field, xs.single(), target_pct, max_level, False)
                      if coupled else None)
-    levels = [_capacitances(lay, k, coupled, homogeneous, loss) for k in range(3)]
+    levels = _capacitances(lay, [0, 1, 2], coupled, homogeneous, loss)
     keys = ("even", "even_air", "odd", "odd_air") if coupled else ("single", "single_air")
     signal = "odd" if coupled else "single"
 
@@ -525,7 +538,7 @@ def solve_field(xs: CrossSection, target_pct: float = DEFAULT_TARGET_PCT, max_le
                 or level >= max_level:
             break
         level += 1
-        levels.append(_capacitances(lay, level, coupled, homogeneous, loss))
+        levels += _capacitances(lay, [level], coupled, homogeneous, loss)
 
     def z_and_eps(m):
         c, ca = ext[m], ext[m + "_air"]

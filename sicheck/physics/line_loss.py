@@ -45,10 +45,12 @@ def wheeler_derivative(xs_list: list[CrossSection], solve: Callable[[list[CrossS
                        results: list[LineResult] | None = None):
     """dZ_air/dn [ohm/m] of the signal mode (Zodd for pairs) for each cross-section.
 
-    Taken from ``results`` where the solver gave it (field solver); the others by solving the
-    air-filled geometry with the walls receded by +/- n.
+    Taken from the solver's results (``results``, else ``solve(xs_list)``) where it gave it (field
+    solver); the others by solving the air-filled geometry with the walls receded by +/- n.
     """
-    known = [None if results is None else results[i].dz_air_dn for i in range(len(xs_list))]
+    if results is None:
+        results = solve(xs_list)
+    known = [r.dz_air_dn for r in results]
     todo = [i for i, d in enumerate(known) if d is None]
     plus, minus, steps = [], [], []
     for i in todo:
