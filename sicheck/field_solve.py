@@ -25,7 +25,8 @@ from sicheck.physics.line_result import LineResult
 SOLVER_VERSION = "field2d-3"
 AUTO_FIELD_LIMIT = 400      # 'auto' field-solves boards with up to this many unique cross-sections
 _FIELDS = ("z0", "eps_eff", "model", "z_even", "z_odd", "eps_even", "eps_odd", "uncertainty_pct", "solve_s",
-           "warnings", "c_matrix", "l_matrix", "levels", "tand_eff", "tand_even", "tand_odd", "dz_air_dn", "loss_uncertainty_pct")
+           "warnings", "c_matrix", "l_matrix", "levels", "tand_eff", "tand_even", "tand_odd", "dz_air_dn",
+           "loss_uncertainty_pct")
 
 
 def cache_dir() -> Path:

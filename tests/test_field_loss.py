@@ -71,7 +71,8 @@ def test_thick_wide_stripline_conductor_loss_against_cohn_thick_strip(w_over_b, 
     w, t = w_over_b * B, t_over_b * B
     r = solve_field(stripline(w, t, B, er=1.0))
     assert r.z0 == pytest.approx(cohn_thick_wide(w, t, B), rel=1e-4)       # the formula itself
-    ref = (cohn_thick_wide(w - 2 * H, t - 2 * H, B + 2 * H) - cohn_thick_wide(w + 2 * H, t + 2 * H, B - 2 * H)) / (2 * H)
+    ref = (cohn_thick_wide(w - 2 * H, t - 2 * H, B + 2 * H)
+           - cohn_thick_wide(w + 2 * H, t + 2 * H, B - 2 * H)) / (2 * H)
     f = 1e9
     a_ref = loss.conductor_alpha(f, cohn_thick_wide(w, t, B), ref)
     a = loss.conductor_alpha(f, r.z0, r.dz_air_dn)

@@ -368,9 +368,9 @@ def _dot(u: np.ndarray, v: np.ndarray) -> float:
 def _pcg(K, rhs: np.ndarray, lu, x0: np.ndarray, rtol: float = 1e-8, maxiter: int = 60):
     """Conjugate gradients preconditioned by the factors of a nearby matrix (same grid, other eps).
 
-    The permittivities of the two problems differ cell by cell by at most the largest er, so the
-    preconditioned spectrum lies within [1/er_max, er_max] and a few tens of iterations reach round-off;
-    returns None if it does not converge (the caller factorises instead).
+    Air against dielectric: the permittivities differ cell by cell by a factor from 1 to er_max, so
+    the preconditioned spectrum lies within [1/er_max, 1] and about ten iterations reach the tolerance
+    (the energy's error is its square). Returns None if it does not converge (the caller factorises).
     """
     x = x0.copy()
     r = rhs - K @ x
