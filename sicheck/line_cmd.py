@@ -234,6 +234,8 @@ def run_line(kind, width, thickness, er, height, below, above, er_below, er_abov
         rows += [(f"loss at {d['freq_ghz']:g} GHz", f"{d['loss_db_per_mm']:.5f} dB/mm (conductor "
                                                    f"{d['conductor_loss_db_per_mm']:.5f}, dielectric "
                                                    f"{d['dielectric_loss_db_per_mm']:.5f})")]
+        if "loss_uncertainty_pct" in d:
+            rows.append(("loss uncertainty", f"{d['loss_uncertainty_pct']:.2f} %"))
         if "loss_db" in d:
             rows.append(("loss over length", f"{d['loss_db']:.3f} dB"))
     if r.model.startswith("field"):

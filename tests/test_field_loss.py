@@ -113,3 +113,15 @@ def test_coupled_stripline_c_and_l_matrices_against_cohn():
     assert lm @ cm == pytest.approx(er / C0**2 * np.eye(2), rel=1e-9, abs=1e-9 * er / C0**2)
     assert lm[0, 1] > 0 and lm[0, 0] > lm[0, 1]
     assert cm[0, 0] > 4 * EPS0 * er * w / B        # at least the parallel-plate part of each strip
+
+
+def test_review_segments_carry_the_loss_uncertainty(run, board, tmp_path, monkeypatch):
+    # field solver: a number within the 2 % target; closed forms state none (null)
+    monkeypatch.setenv("SICHECK_CACHE_DIR", str(tmp_path / "cache"))
+    tr, st = board("net,layer,length,width,rise_time\nA,L3,40mm,0.15mm,200ps\n")
+    for solver, check in (("field", lambda u: 0 < u <= 2.0), ("formula", lambda u: u is None)):
+        js = tmp_path / f"{solver}.json"
+        code, _, err = run("review", tr, "--stackup", st, "--solver", solver, "--json", js)
+        assert code in (0, 1), err
+        seg = json.loads(js.read_text())["segments"][0]
+        assert check(seg["loss_uncertainty_pct"]), (solver, seg["loss_uncertainty_pct"])
