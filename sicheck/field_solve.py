@@ -22,10 +22,11 @@ from sicheck.physics.cross_section import CrossSection
 from sicheck.physics.formula import solve_formula
 from sicheck.physics.line_result import LineResult
 
-SOLVER_VERSION = "field2d-2"
+SOLVER_VERSION = "field2d-3"
 AUTO_FIELD_LIMIT = 400      # 'auto' field-solves boards with up to this many unique cross-sections
 _FIELDS = ("z0", "eps_eff", "model", "z_even", "z_odd", "eps_even", "eps_odd", "uncertainty_pct", "solve_s",
-           "warnings", "c_matrix", "l_matrix", "levels", "tand_eff", "tand_even", "tand_odd")
+           "warnings", "c_matrix", "l_matrix", "levels", "tand_eff", "tand_even", "tand_odd", "dz_air_dn",
+           "loss_uncertainty_pct")
 
 
 def cache_dir() -> Path:
@@ -92,6 +93,9 @@ def solve_field_all(xs_list: list[CrossSection], target_pct: float = field2d.DEF
     if workers is None and os.environ.get("SICHECK_WORKERS", "").isdigit():
         workers = int(os.environ["SICHECK_WORKERS"])
     n_workers = workers if workers is not None else min(os.cpu_count() or 1, 4)
+    # the slowest first (pairs solve four fields and their isolated line; open microstrip has the
+    # larger grid), so that no worker is left with a long job at the end
+    todo.sort(key=lambda i: (not xs_list[i].coupled, xs_list[i].kind != "microstrip"))
     if len(todo) >= 3 and n_workers > 1:
         with ProcessPoolExecutor(max_workers=n_workers) as pool:
             for i, r in zip(todo, pool.map(_solve_one, [(xs_list[i], target_pct) for i in todo])):

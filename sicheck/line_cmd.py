@@ -155,13 +155,18 @@ def solve_one(xs: CrossSection, solver: str) -> LineResult:
 
 def line_loss(xs: CrossSection, r: LineResult, solver: str, freq: float, rough) -> dict:
     """Loss per length of one cross-section at ``freq`` (see physics/loss.py)."""
-    from sicheck.physics.line_loss import alphas, wheeler_derivative
-    dzdn = wheeler_derivative([xs], lambda lst: [solve_one(x, solver) for x in lst])
+    from sicheck.physics.line_loss import alphas, loss_uncertainty_pct, wheeler_derivative
+    dzdn = wheeler_derivative([xs], lambda lst: [solve_one(x, solver) for x in lst], [r])
     a_c, a_d = alphas(freq, r.signal_z, r.signal_eps, r.signal_tand, dzdn, rough)
-    return {"freq_ghz": freq * 1e-9, "conductor_loss_db_per_mm": float(a_c[0]) * 1e-3,
-            "dielectric_loss_db_per_mm": float(np.ravel(a_d)[0]) * 1e-3,
-            "loss_db_per_mm": (float(a_c[0]) + float(np.ravel(a_d)[0])) * 1e-3,
-            "roughness_factor": float(np.ravel(rough.factor(freq))[0])}
+    out = {"freq_ghz": freq * 1e-9, "conductor_loss_db_per_mm": float(a_c[0]) * 1e-3,
+           "dielectric_loss_db_per_mm": float(np.ravel(a_d)[0]) * 1e-3,
+           "loss_db_per_mm": (float(a_c[0]) + float(np.ravel(a_d)[0])) * 1e-3,
+           "roughness_factor": float(np.ravel(rough.factor(freq))[0])}
+    if r.loss_uncertainty_pct is not None:
+        out["conductor_loss_uncertainty_pct"] = r.loss_uncertainty_pct
+        out["loss_uncertainty_pct"] = float(np.ravel(loss_uncertainty_pct(a_c, a_d, r.loss_uncertainty_pct,
+                                                                          r.uncertainty_pct))[0])
+    return out
 
 
 def run_line(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er, length,
@@ -229,6 +234,8 @@ def run_line(kind, width, thickness, er, height, below, above, er_below, er_abov
         rows += [(f"loss at {d['freq_ghz']:g} GHz", f"{d['loss_db_per_mm']:.5f} dB/mm (conductor "
                                                    f"{d['conductor_loss_db_per_mm']:.5f}, dielectric "
                                                    f"{d['dielectric_loss_db_per_mm']:.5f})")]
+        if "loss_uncertainty_pct" in d:
+            rows.append(("loss uncertainty", f"{d['loss_uncertainty_pct']:.2f} %"))
         if "loss_db" in d:
             rows.append(("loss over length", f"{d['loss_db']:.3f} dB"))
     if r.model.startswith("field"):

@@ -193,8 +193,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
 
 def _add_loss(seg: pd.DataFrame, stackup: Stackup, xs, results, codes, solver: Solver) -> None:
     """Conductor and dielectric loss of each segment at its net's frequency (dB)."""
-    from sicheck.physics.line_loss import Roughness, alphas, wheeler_derivative
-    dzdn = wheeler_derivative(xs, solver)[codes]
+    from sicheck.physics.line_loss import Roughness, alphas, loss_uncertainty_pct, wheeler_derivative
+    dzdn = wheeler_derivative(xs, solver, results)[codes]
     tand = np.array([r.signal_tand for r in results], dtype=float)[codes]
     a_c = np.zeros(len(seg))
     a_d = np.zeros(len(seg))
@@ -208,6 +208,8 @@ def _add_loss(seg: pd.DataFrame, stackup: Stackup, xs, results, codes, solver: S
     seg["conductor_loss_db_per_m"] = a_c
     seg["dielectric_loss_db_per_m"] = a_d
     seg["loss_db_per_m"] = a_c + a_d
+    u_c = np.array([np.nan if r.loss_uncertainty_pct is None else r.loss_uncertainty_pct for r in results])[codes]
+    seg["loss_uncertainty_pct"] = loss_uncertainty_pct(a_c, a_d, u_c, seg["uncertainty_pct"].to_numpy(float))
     seg["loss_db"] = seg["loss_db_per_m"] * seg["length"]
 
 

@@ -42,6 +42,8 @@ class LineResult:
     tand_eff: float | None = None       # capacitance-weighted loss tangent (single line)
     tand_even: float | None = None
     tand_odd: float | None = None
+    dz_air_dn: float | None = None      # field solver: Wheeler's dZ_air/dn of the signal mode, ohm/m
+    loss_uncertainty_pct: float | None = None   # field solver: relative uncertainty of the conductor loss
 
     @property
     def signal_tand(self) -> float:

@@ -43,7 +43,7 @@ def segments_json(seg) -> list[dict]:
         "conductor_loss_db_per_mm": _col(seg, "conductor_loss_db_per_m", 1e-3),
         "dielectric_loss_db_per_mm": _col(seg, "dielectric_loss_db_per_m", 1e-3),
         "loss_db_per_mm": _col(seg, "loss_db_per_m", 1e-3), "loss_db": _col(seg, "loss_db"),
-        "freq_ghz": _col(seg, "freq", 1e-9),
+        "freq_ghz": _col(seg, "freq", 1e-9), "loss_uncertainty_pct": _col(seg, "loss_uncertainty_pct"),
     }
     net, layer, pair, kind, model, row = (seg[c].tolist() for c in ("net", "layer", "pair", "kind", "model", "row"))
     out = []
@@ -57,7 +57,8 @@ def segments_json(seg) -> list[dict]:
              "uncertainty_pct": cols["uncertainty_pct"][i], "freq_ghz": cols["freq_ghz"][i],
              "conductor_loss_db_per_mm": cols["conductor_loss_db_per_mm"][i],
              "dielectric_loss_db_per_mm": cols["dielectric_loss_db_per_mm"][i],
-             "loss_db_per_mm": cols["loss_db_per_mm"][i], "loss_db": cols["loss_db"][i]}
+             "loss_db_per_mm": cols["loss_db_per_mm"][i], "loss_db": cols["loss_db"][i],
+             "loss_uncertainty_pct": cols["loss_uncertainty_pct"][i]}
         if pair[i]:
             d.update(pair=pair[i], gap_mm=cols["gap_mm"][i], zdiff_ohm=cols["zdiff_ohm"][i],
                      zodd_ohm=cols["zodd_ohm"][i], zeven_ohm=cols["zeven_ohm"][i])
