@@ -110,6 +110,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     df["rise_time"] = _class_value(df, rules, "rise_time", "rise_time")
     df["gap"] = _class_value(df.assign(gap=np.where(df["pair"] != "", df["gap"], np.nan)), rules, "gap", "gap")
     df.loc[df["pair"] == "", "gap"] = np.nan
+    given = {c: df[c].notna().to_numpy() for c in ("driver_ohm", "load_pf", "rise_time")}   # for the waveform notes
     df["driver_ohm"] = _class_value(df, rules, "driver_ohm", "driver_ohm")
     df["load_pf"] = _class_value(df, rules, "load_pf", "load_pf")
     for col, what in (("width", "a width (column 'width' or the net class's width)"),):
@@ -149,6 +150,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     results = solver(xs)
     seg = _segment_table(df, codes, xs, results)
     _add_loss(seg, stackup, xs, results, codes, solver)
+    for c, m in given.items():
+        seg[f"{c}_given"] = m
 
     # ---- partners listed only through their pair: mirror their segments for the net table
     listed = set(df["net"])
@@ -161,7 +164,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     waves: dict = {}
     if waveforms:
         from sicheck.waveform_review import simulate_nets
-        nets, waves = simulate_nets(all_seg, nets, rules)
+        nets, waves = simulate_nets(all_seg, nets, rules, xs)
     findings = _findings(seg, nets, rules, xs, results, codes)
     findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
@@ -422,9 +425,13 @@ def _findings(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs, results, 
         flagged = nets[nets["termination"] != electrical.NOT_NEEDED]
         unsimulated = int((flagged["termination_part"] == "").sum())
         if unsimulated:
-            add("waveform", f"{unsimulated} nets", "", f"the waveform check ran on the {rules.max_nets} longest of "
-                f"{len(flagged)} nets that need termination; the others keep the first-order advice "
-                "(raise [waveform] max_nets to simulate them all)", severity="info")
+            failed = flagged[flagged["waveform_assumptions"].str.startswith("not simulated")]
+            why = ([f"[waveform] max_nets = {rules.max_nets} limits the check to the longest nets"]
+                   if rules.max_nets is not None and len(flagged) > rules.max_nets else [])
+            why += [f"{r.net} could not be: {r.waveform_assumptions[len('not simulated: '):]}"
+                    for r in failed.head(3).itertuples()] + ([f"and {len(failed) - 3} more"] if len(failed) > 3 else [])
+            add("waveform", f"{unsimulated} nets", "", f"{unsimulated} of {len(flagged)} nets that need termination "
+                "were not simulated and keep the first-order advice (" + "; ".join(why) + ")", severity="info")
     for cname, labels in untargeted.items():
         shown = ", ".join(labels[:5]) + (f" and {len(labels) - 5} more" if len(labels) > 5 else "")
         add("no-target", shown, "", f"{len(labels)} transmission-line net(s) in class '{cname}' have no "

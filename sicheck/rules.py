@@ -92,7 +92,7 @@ class Rules:
     max_overshoot_pct: float = 15.0
     max_ringback_pct: float = 15.0
     settle_rise_times: float = 2.0
-    max_nets: int = 500
+    max_nets: int | None = None          # None: simulate every net that needs termination
     min_feature: float = 75e-6           # smallest width/gap a fabricator etches reliably (common practice, 3 mil)
     max_width: float = 2e-3              # widest trace sicheck proposes in `plan`
     severity: dict = field(default_factory=lambda: {c.id: c.severity for c in CHECKS})

@@ -1,4 +1,4 @@
-"""Choosing a termination by simulating each standard scheme (see transient.py).
+"""Choosing a termination by simulating each standard scheme (engine: line_network.py).
 
 Candidates, with values from IEC 60063 series:
   none        the net as it is
@@ -10,8 +10,11 @@ Candidates, with values from IEC 60063 series:
 The recommendation is the candidate that meets the limits (overshoot, ringback,
 settling) at the least static power; among equals, the one that settles first.
 Static power is the DC power in the driver and termination, averaged over the high
-and low states. Segments shorter than Tr/10 are folded into their neighbours first
-(transient.merge_short).
+and low states. The schemes are simulated in stages, each stage's candidates together in
+one vectorised run: the net as it is with the series values; then the RC values; then the
+parallel and Thevenin values. A later stage runs only when nothing so far meets the limits
+(a series part or an RC costs no static power, so nothing later could beat one that meets).
+Every segment is kept with its exact delay (and its loss, when given).
 """
 
 from __future__ import annotations
@@ -20,8 +23,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from typing import Sequence
+
 from sicheck.physics import eseries
-from sicheck.physics.transient import Load, merge_short, simulate, thevenin
+from sicheck.physics.causal_line import Line, LineLoss
+from sicheck.physics.line_network import Network, simulate_network
+from sicheck.physics.transient import Load, LoadSet, thevenin
 
 
 @dataclass(frozen=True)
@@ -89,58 +96,74 @@ def _decimate(wf, n=160):
     return wf.t[idx], wf.v_rx[idx]
 
 
-def choose(z: list[float], td: list[float], rise: float, driver_ohm: float, swing: float, load_cap: float,
-           limits: Limits, zdiff: float | None = None, keep_waves: bool = False) -> tuple[Candidate, Candidate,
-                                                                                           list[Candidate]]:
-    """(unterminated, recommended, all candidates) for one net."""
-    z, td = merge_short(z, td, rise / 10.0)
+def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: float, swing: float, load_cap: float,
+           limits: Limits, zdiff: float | None = None, keep_waves: bool = False,
+           losses: Sequence[LineLoss | None] | None = None) -> tuple[Candidate, Candidate, list[Candidate]]:
+    """(unterminated, recommended, all candidates simulated) for one net: a chain of lines, driver end first.
+
+    ``losses``: one LineLoss (or None for a lossless section) per line; None: all lossless.
+    For a pair, z are the odd-mode impedances and swing is one leg's.
+    """
+    if losses is None:
+        losses = [None] * len(z)
+    if not (len(z) == len(td) == len(losses)) or not len(z):
+        raise ValueError("need one impedance, delay and loss entry per line")
+    net, end = Network.chain([Line(float(a), float(b), l) for a, b, l in zip(z, td, losses)])
     td_total = float(sum(td))
     cands: list[Candidate] = []
 
-    def run(scheme, text, rs, load, power, **kw):
-        wf = simulate(z, td, swing, rise, rs, load)
-        c = Candidate(scheme, text, wf.metrics, power, **kw)
-        if keep_waves:
-            c.wave = _decimate(wf)
-        _evaluate(c, td_total, rise, limits)
-        cands.append(c)
-        return c
+    def stage(specs):
+        """specs: (scheme, text, r_source, Load, power, extra fields); simulated together."""
+        if not specs:
+            return []
+        rs = np.array([sp[2] for sp in specs], dtype=float)
+        res = simulate_network(net, [end], swing, rise, rs, {end: LoadSet.of([sp[3] for sp in specs])})[end]
+        out = []
+        for sp, wf in zip(specs, res):
+            c = Candidate(sp[0], sp[1], wf.metrics, sp[4], **sp[5])
+            if keep_waves:
+                c.wave = _decimate(wf)
+            _evaluate(c, td_total, rise, limits)
+            out.append(c)
+        return out
 
+    base = ("none", "unterminated", driver_ohm, Load(cap=load_cap), 0.0, {})
     if zdiff is not None:
         # odd mode: each leg sees Zodd; the differential resistor is R/2 from each leg to the centre
-        none = run("none", "unterminated", driver_ohm, Load(cap=load_cap), 0.0)
-        for r in _neighbours(zdiff):
-            run("differential", f"{r:g} ohm across the receiver", driver_ohm, Load(cap=load_cap, end_ohm=r / 2),
-                (swing * 2) ** 2 / (r + 2 * driver_ohm), end_ohm=r)
-        return none, _pick(cands, none), cands
+        specs = [base] + [("differential", f"{r:g} ohm across the receiver", driver_ohm,
+                           Load(cap=load_cap, end_ohm=r / 2), (swing * 2) ** 2 / (r + 2 * driver_ohm), {"end_ohm": r})
+                          for r in _neighbours(zdiff)]
+        cands = stage(specs)
+        return cands[0], _pick(cands, cands[0]), cands
 
-    z_drv, z_end = z[0], z[-1]
-    none = run("none", "unterminated", driver_ohm, Load(cap=load_cap), 0.0)
-    if none.meets:
-        return none, none, cands
-    zero_power = []
+    z_drv, z_end = float(z[0]), float(z[-1])
     ideal = z_drv - driver_ohm
-    if ideal >= 1.0:
-        for r in _neighbours(ideal):
-            zero_power.append(run("series", f"{r:g} ohm in series at the driver", driver_ohm + r, Load(cap=load_cap),
-                                  0.0, series_ohm=r))
-    if any(c.meets for c in zero_power):      # a series part costs no power: no need to try more
+    series = [("series", f"{r:g} ohm in series at the driver", driver_ohm + r, Load(cap=load_cap), 0.0,
+               {"series_ohm": r}) for r in (_neighbours(ideal) if ideal >= 1.0 else [])]
+    first = stage([base] + series)
+    none = first[0]
+    if none.meets:
+        return none, none, [none]
+    cands = list(first)
+    if any(c.meets for c in first[1:]):      # a series part costs no power: no need to try more
         return none, _pick(cands, none), cands
     r_end = eseries.nearest(z_end)
     c_min = 3.0 * 2.0 * td_total / r_end
-    for cval in _neighbours(c_min, "E12", 1)[1:]:
-        zero_power.append(run("rc", f"{r_end:g} ohm + {cval * 1e12:g} pF to ground at the receiver", driver_ohm,
-                              Load(cap=load_cap, end_ohm=r_end, end_cap=cval), 0.0, end_ohm=r_end, end_cap=cval))
-    if any(c.meets for c in zero_power):
+    rc = stage([("rc", f"{r_end:g} ohm + {cval * 1e12:g} pF to ground at the receiver", driver_ohm,
+                 Load(cap=load_cap, end_ohm=r_end, end_cap=cval), 0.0, {"end_ohm": r_end, "end_cap": cval})
+                for cval in _neighbours(c_min, "E12", 1)[1:]])
+    cands += rc
+    if any(c.meets for c in rc):
         return none, _pick(cands, none), cands
     vt = swing / 2.0
-    for r in _neighbours(z_end, spread=1):
-        run("parallel", f"{r:g} ohm to {vt:g} V at the receiver", driver_ohm, Load(cap=load_cap, end_ohm=r, end_volts=vt),
-            _power_parallel(swing, driver_ohm, r, vt), end_ohm=r)
     r2 = eseries.nearest(2.0 * z_end)
     req, veq = thevenin(r2, r2, swing)
-    run("thevenin", f"{r2:g} ohm to the supply and {r2:g} ohm to ground at the receiver", driver_ohm,
-        Load(cap=load_cap, end_ohm=req, end_volts=veq), _power_thevenin(swing, driver_ohm, r2, r2), end_ohm=r2)
+    cands += stage([("parallel", f"{r:g} ohm to {vt:g} V at the receiver", driver_ohm,
+                     Load(cap=load_cap, end_ohm=r, end_volts=vt), _power_parallel(swing, driver_ohm, r, vt),
+                     {"end_ohm": r}) for r in _neighbours(z_end, spread=1)]
+                   + [("thevenin", f"{r2:g} ohm to the supply and {r2:g} ohm to ground at the receiver", driver_ohm,
+                       Load(cap=load_cap, end_ohm=req, end_volts=veq), _power_thevenin(swing, driver_ohm, r2, r2),
+                       {"end_ohm": r2})])
     return none, _pick(cands, none), cands
 
 
