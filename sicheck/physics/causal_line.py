@@ -140,12 +140,44 @@ def series_and_shunt(line: Line, s):
     return z, y
 
 
+def per_delay(line: Line, s):
+    """(K, M) with gamma l = s delay K and Zc = z0 M at complex frequencies s (Re s > 0, Im s >= 0).
+
+    Z Y = (s delay)^2 (1 + Z_int/(sL)) eps(s) and Z/Y = z0^2 (1 + Z_int/(sL)) / eps(s). Both factors
+    depend only on the loss per unit delay, so sections of one cross-section share them (cache key:
+    ``shape_key``). Principal square roots: for Im s >= 0 the product s K keeps a non-negative real part.
+    """
+    lo = line.loss
+    if lo is None:
+        return 1.0, 1.0
+    l_tot = line.z0 * line.delay
+    if isinstance(lo, ConstantRG):
+        zn = 1.0 + lo.r / (s * l_tot)
+        eps = 1.0 + lo.g / (s * line.delay / line.z0)
+    else:
+        zn = 1.0 + internal_impedance(s, lo) / (s * l_tot)
+        eps = djordjevic_sarkar_eps(s, lo.tan_delta, lo.f_ref)
+    k = np.sqrt(zn * eps)
+    return k, k / eps          # = sqrt(zn / eps): eps is close to the positive real axis
+
+
+def shape_key(line: Line):
+    """Sections with equal keys have equal (K, M): same z0 and the same loss per unit delay."""
+    lo = line.loss
+    if lo is None:
+        return None
+    d = line.delay
+    if isinstance(lo, ConstantRG):
+        vals = ("rg", line.z0, lo.r / d, lo.g / d)
+    else:
+        vals = ("ds", line.z0, lo.r_ac / d, lo.r_dc / d, lo.tan_delta, lo.f_ref)
+    return tuple(float(f"{v:.12g}") if isinstance(v, float) else v for v in vals)
+
+
 def propagation(line: Line, s):
-    """(gamma l, Zc) of the section at complex frequencies s (Re s > 0): principal square roots."""
-    if line.loss is None:
-        return s * line.delay, np.full_like(s, line.z0)
-    z, y = series_and_shunt(line, s)
-    return np.sqrt(z * y), np.sqrt(z / y)
+    """(gamma l, Zc) of the section at complex frequencies s (Re s > 0, Im s >= 0)."""
+    k, m = per_delay(line, s)
+    return s * line.delay * k, line.z0 * m
 
 
 def front_delay(line: Line) -> float:

@@ -26,9 +26,9 @@ answer is exact for this network up to the sampling of the result:
    artificial happens before it.
    Delays enter as e^(-s TD): exact, no rounding to the time step.
 
-Sampling: dt = ramp/40 (the ramp's kinks are resolved to about 0.25 % of the swing, the
+Sampling: dt = ramp/32 (the ramp's kinks are resolved to about 0.3 % of the swing, the
 error of truncating the ramp's spectrum at the Nyquist frequency); the record is at least
-1.6 times the window the candidate needs to settle (bounce estimate below).
+1.5 times the window the candidate needs to settle (bounce estimate below).
 Memory: at most MAX_SAMPLES samples per simulation (a clear ValueError beyond), and
 candidates are batched so that no batch holds more than BATCH_BINS complex bins.
 """
@@ -42,17 +42,18 @@ from typing import Mapping, Sequence
 import numpy as np
 from scipy import fft as sfft
 
-from sicheck.physics.causal_line import ConstantRG, Line, dc_resistance, front_delay, propagation
+from sicheck.physics.causal_line import ConstantRG, Line, dc_resistance, front_delay, per_delay, shape_key
 from sicheck.physics.transient import (RAMP_PER_RISE, SETTLE_BAND, Load, LoadSet, Waveform, metrics_batch,
                                        ramp_voltage)
 
-SAMPLES_PER_RAMP = 40
-RECORD_FACTOR = 1.6            # record length / window kept
+SAMPLES_PER_RAMP = 32
+RECORD_FACTOR = 1.5            # record length / window kept
 WRAP_DAMPING = 1e-4            # e^(-sigma T): what wraps around from one record length later is damped by this
 MAX_SAMPLES = 1 << 22          # about four million samples: one simulation stays within a few hundred MB
 BATCH_BINS = 1 << 21           # complex frequency bins per batch (32 MB per array)
 CHUNK_BINS = 1 << 16           # frequency bins evaluated at once
 MIN_SAMPLES = 256
+SHAPE_NODES = 512              # K(s), M(s) of a lossy line: exact on this many log-spaced frequencies, interpolated between
 LEAK_S = 1e-12                 # siemens to ground at every node for the DC solve (a floating node stays at 0 V)
 
 
@@ -78,6 +79,7 @@ class Network:
 
     def __init__(self) -> None:
         self.edges: list[tuple[int, int, Line | Series]] = []
+        self._folded: dict = {}      # frequency grid -> folded two-ports (reused across candidate stages)
 
     @property
     def size(self) -> int:
@@ -90,6 +92,7 @@ class Network:
             raise TypeError(f"an edge is a Line or a Series part, not {type(element).__name__}")
         child = self.size
         self.edges.append((parent, child, element))
+        self._folded.clear()
         return child
 
     @classmethod
@@ -117,19 +120,56 @@ class Network:
 
 # ---------------------------------------------------------------- two-ports in the frequency domain
 
-def _two_port(e: Line | Series, s: np.ndarray):
-    """(a, b, c, d, g): the chain matrix [[a, b], [c, d]] / g of one edge."""
+def _two_port(e: Line | Series, s: np.ndarray, shapes: dict | None = None):
+    """(a, b, c, d, g): the chain matrix [[a, b], [c, d]] / g of one edge (shapes: cache of per_delay)."""
     if isinstance(e, Line):
-        gl, zc = propagation(e, s)
-        e1 = np.exp(-gl)
+        if e.loss is None:
+            e1 = np.exp(-e.delay * s)
+            zc = e.z0
+        else:
+            key = shape_key(e)
+            if shapes is None or key not in shapes:
+                km = _smooth_per_delay(e, s)
+                if shapes is not None:
+                    shapes[key] = km
+            else:
+                km = shapes[key]
+            e1 = np.exp(-e.delay * s * km[0])
+            zc = e.z0 * km[1]
         e2 = e1 * e1
         a = 1.0 + e2
-        return a, zc * (1.0 - e2), (1.0 - e2) / zc, a, 2.0 * e1
+        b = 1.0 - e2
+        return a, zc * b, b / zc, a, 2.0 * e1
     z = e.ohm + s * e.henry
     if e.farad is None:
         return 1.0, z, 0.0, 1.0, 1.0
     sc = s * e.farad          # scaled by sC: [[sC, sC z + 1], [0, sC]] / sC
     return sc, sc * z + 1.0, 0.0, sc, sc
+
+
+def _smooth_per_delay(e: Line, s: np.ndarray):
+    """per_delay(e, s) on a grid s = sigma + j w (w ascending from 0 or above).
+
+    K and M vary smoothly and slowly with frequency (the oscillation is all in e^(-s delay K)), so
+    on long grids they are evaluated exactly at SHAPE_NODES log-spaced frequencies (and the grid's
+    first two) and interpolated between them linearly in log w (power laws such as the skin effect stay near linear); the waveform moves by
+    less than 1e-4 of the swing (tests/test_transient.py).
+    """
+    if len(s) <= 4 * SHAPE_NODES:
+        return per_delay(e, s)
+    w = s.imag
+    start = 1 if w[0] == 0.0 else 0
+    nodes = np.geomspace(w[start], w[-1], SHAPE_NODES)
+    nodes[0], nodes[-1] = w[start], w[-1]
+    kc, mc = per_delay(e, s.real[0] + 1j * nodes)
+    x, xn = np.log(w[start:]), np.log(nodes)       # power laws (skin effect, DC resistance) are near linear in log w
+    k = np.empty(len(s), dtype=complex)
+    m = np.empty(len(s), dtype=complex)
+    k[start:] = np.interp(x, xn, kc.real) + 1j * np.interp(x, xn, kc.imag)
+    m[start:] = np.interp(x, xn, mc.real) + 1j * np.interp(x, xn, mc.imag)
+    if start:
+        k[0], m[0] = (v[0] for v in per_delay(e, s[:1]))
+    return k, m
 
 
 def _cascade(p, q):
@@ -138,17 +178,18 @@ def _cascade(p, q):
     return (a1 * a2 + b1 * c2, a1 * b2 + b1 * d2, c1 * a2 + d1 * c2, c1 * b2 + d1 * d2, g1 * g2)
 
 
-def _transfer(net: Network, s: np.ndarray, r_source: np.ndarray, loads: Mapping[int, LoadSet],
-              wanted: Sequence[int]) -> dict[int, np.ndarray]:
-    """V(node)/V(source) at complex frequencies s for each wanted node: (candidates, len(s))."""
+def _fold(net: Network, s: np.ndarray, keep: set):
+    """Edge two-ports at s, with runs of edges that have nothing attached between them multiplied into one.
+
+    Returns (two-port per remaining child node, children, parent); independent of the candidates.
+    """
     parent = {c: p for p, c, _ in net.edges}
     children: dict[int, list[int]] = {n: [] for n in range(net.size)}
     tp = {}
+    shapes: dict = {}
     for p, c, e in net.edges:
         children[p].append(c)
-        tp[c] = _two_port(e, s)
-    keep = set(loads) | set(wanted) | {0}
-    # fold runs of edges with nothing attached between them into one two-port
+        tp[c] = _two_port(e, s, shapes)
     for x in range(net.size - 1, 0, -1):
         if x in keep or len(children[x]) != 1:
             continue
@@ -159,6 +200,25 @@ def _transfer(net: Network, s: np.ndarray, r_source: np.ndarray, loads: Mapping[
         children[px] = [y if k == x else k for k in children[px]]
         del tp[x]
         children[x] = []
+    return tp, children, parent
+
+
+def _transfer(net: Network, s: np.ndarray, r_source: np.ndarray, loads: Mapping[int, LoadSet],
+              wanted: Sequence[int], grid_key=None) -> dict[int, np.ndarray]:
+    """V(node)/V(source) at complex frequencies s for each wanted node: (candidates, len(s)).
+
+    grid_key: a hashable name of the grid s, to reuse the folded two-ports between calls.
+    """
+    keep = set(loads) | set(wanted) | {0}
+    key = None if grid_key is None else (grid_key, frozenset(keep))
+    if key is not None and key in net._folded:
+        tp, children, parent = net._folded[key]
+    else:
+        tp, children, parent = _fold(net, s, keep)
+        if key is not None:
+            if len(net._folded) >= 4:
+                net._folded.pop(next(iter(net._folded)))
+            net._folded[key] = (tp, children, parent)
     y_in: dict[int, np.ndarray] = {}
     ratio: dict[int, np.ndarray] = {}
     live = [0] + sorted(tp)
@@ -254,9 +314,10 @@ def _dc(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSet], swing:
 def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSet], ramp: float) -> np.ndarray:
     """Time each candidate needs to be simulated (s): enough round trips and time constants to settle.
 
-    Bounces decay at least as fast as the larger of the source reflection and 0.5 per round trip
-    (the load end is taken as fully reflecting); a reflection of gamma^k falls below a quarter of
-    the settling band after k = ln(band/4)/ln(gamma) trips (plus 4, at least 8, at most 400).
+    Bounces decay by the product of the source and far-end reflections per round trip (taken as at
+    least 0.3, for the steps along the net); a reflection of gamma^k falls below a quarter of the
+    settling band after k = ln(band/4)/ln(gamma) trips (plus 2, at least 4, at most 400). Pass or
+    fail needs far less: the settling limit is about one round trip after the flight.
     """
     lines = net.lines()
     total = sum(x.delay for x in lines) or ramp
@@ -275,16 +336,37 @@ def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSe
             break
         rs_eff = rs_eff + e.ohm
         node = c
-    gamma = np.maximum(np.abs((rs_eff - z1) / (rs_eff + z1)), 0.5)
-    trips = np.clip(np.log(SETTLE_BAND / 4.0) / np.log(gamma) + 4.0, 8.0, 400.0)
+    # the far end: a resistive termination reflects (R - Z)/(R + Z); an open end or a capacitor fully
+    z_end = _last_line(net).z0 if lines else z_min
+    g_end = np.ones(len(rs_eff))
+    for ls in loads.values():
+        r = np.broadcast_to(ls.end_ohm, g_end.shape)
+        has = ~np.isnan(r)
+        rr = np.where(has, r, 1.0)
+        g_end = np.where(has, np.abs((rr - z_end) / (rr + z_end)), g_end)
+    gamma = np.maximum(np.abs((rs_eff - z1) / (rs_eff + z1)) * g_end, 0.3)
+    trips = np.clip(np.log(SETTLE_BAND / 4.0) / np.log(gamma) + 2.0, 4.0, 400.0)
     tau = np.zeros(len(rs_eff))
+    tau_end = np.zeros(len(rs_eff))
     for ls in loads.values():
         cap = np.broadcast_to(ls.cap, tau.shape)
         tau = np.maximum(tau, cap * np.minimum(z_min, rs_eff))
+        # an RC termination's capacitor charges, once the line has settled into a wire, through its
+        # resistor and the driver: e^-6 of the step is a twentieth of the settling band
         rc = ~np.isnan(ls.end_cap) & ~np.isnan(ls.end_ohm)
-        tau_rc = np.where(rc, np.where(rc, ls.end_cap, 0.0) * (np.where(rc, ls.end_ohm, 0.0) + z_min), 0.0)
-        tau = np.maximum(tau, np.broadcast_to(tau_rc, tau.shape))
-    return ramp + trips * 2.0 * total + 12.0 * tau + 4.0 * ramp
+        ce = np.broadcast_to(np.where(rc, ls.end_cap, 0.0), tau.shape)
+        ro = np.broadcast_to(np.where(rc, ls.end_ohm, 0.0), tau.shape)
+        tau_end = np.maximum(tau_end, ce * (ro + np.maximum(rs_eff, z_min)))
+    return ramp + trips * 2.0 * total + np.maximum(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp
+
+
+def _last_line(net: Network) -> Line:
+    """The line nearest the deepest node along the first branch (the far end of a chain)."""
+    last = None
+    for _, _, e in net.edges:
+        if isinstance(e, Line):
+            last = e
+    return last
 
 
 def record_size(t_end: float, dt: float) -> int:
@@ -297,16 +379,18 @@ def record_size(t_end: float, dt: float) -> int:
     return need
 
 
-def record_groups(needs: np.ndarray, spread: float = 1.3) -> list[tuple[int, np.ndarray]]:
-    """Candidates grouped on shared records: (record size, members); sizes within `spread` share one."""
-    order = np.argsort(needs)
-    groups, start = [], 0
-    for i in range(1, len(order) + 1):
-        if i == len(order) or needs[order[i]] > spread * needs[order[start]]:
-            members = np.sort(order[start:i])
-            groups.append((sfft.next_fast_len(int(needs[order[i - 1]]), real=True), members))
-            start = i
-    return groups
+def record_ladder(need: int) -> int:
+    """The smallest size 2^k x (1, 1.25, 1.5 or 1.75) >= need: fast FFT sizes at most 25 % above the need,
+    few enough that candidates of different stages share a record (and its two-ports)."""
+    bits = int(need).bit_length()
+    sizes = sorted(((1 << j) * m) // 4 for j in range(max(2, bits - 2), bits + 2) for m in (4, 5, 6, 7))
+    return next(n for n in sizes if n >= need)
+
+
+def record_groups(needs: np.ndarray) -> list[tuple[int, np.ndarray]]:
+    """Candidates grouped on shared records: (record size, members)."""
+    sizes = np.array([record_ladder(int(n)) for n in needs])
+    return [(int(n), np.nonzero(sizes == n)[0]) for n in np.unique(sizes)]
 
 
 # ---------------------------------------------------------------- the simulation
@@ -317,7 +401,7 @@ def simulate_network(net: Network, receivers: Sequence[int], swing: float, rise:
     """Each receiver's waveform for each candidate (r_source[i] with row i of every LoadSet).
 
     r_source: the driver's resistance per candidate (ohm, > 0); a LoadSet with one row applies to
-    all candidates. Returns {receiver: [Waveform per candidate]}; with ``with_source`` each
+    all candidates. t_end: the window (one value, or one per candidate); default settle_window. Returns {receiver: [Waveform per candidate]}; with ``with_source`` each
     Waveform also carries the driver-node voltage.
     """
     if rise <= 0 or swing == 0:
@@ -336,7 +420,8 @@ def simulate_network(net: Network, receivers: Sequence[int], swing: float, rise:
             raise ValueError(f"no node {r} in the network")
     ramp = rise * RAMP_PER_RISE
     dt = ramp / samples_per_ramp
-    ends = np.full(m, float(t_end)) if t_end is not None else settle_window(net, r_source, loads, ramp)
+    ends = (np.broadcast_to(np.asarray(t_end, dtype=float), (m,)) if t_end is not None
+            else settle_window(net, r_source, loads, ramp))
     needs = np.array([record_size(te, dt) for te in ends])
     wanted = list(dict.fromkeys(list(receivers) + ([0] if with_source else [])))
     v_low, v_high = _dc(net, r_source, loads, swing)
@@ -382,7 +467,7 @@ def _run(net, wanted, swing, ramp, dt, n_rec, r_source, loads, v_low, v_high):
     for k0 in range(0, k_bins, CHUNK_BINS):
         s = sigma + 1j * w[k0:k0 + CHUNK_BINS]
         ramp_s = swing * -np.expm1(-s * ramp) / (ramp * s * s)
-        h = _transfer(net, s, r_source, loads, wanted)
+        h = _transfer(net, s, r_source, loads, wanted, grid_key=(n_rec, dt, k0))
         for x in wanted:
             spec[x][:, k0:k0 + CHUNK_BINS] = (h[x] - h0[x][:, None] * np.exp(-s * t0[x])) * ramp_s
     n_keep = int(math.floor(n_rec / RECORD_FACTOR)) + 1

@@ -145,6 +145,7 @@ def metrics_batch(t: np.ndarray, v: np.ndarray, v_final, ramp: float) -> list[di
             "settle_ns": float(settle[k]) * 1e9,
             "flight_ns": float(flight[k]) * 1e9,
             "settled_in_window": bool(settled[k]),
+            "window_ns": float(t[-1]) * 1e9,
         })
     return out
 
