@@ -1,4 +1,9 @@
-"""Time-domain response of a net: a chain of ideal lines, a driver and a receiver load.
+"""TEST REFERENCE ONLY: the method-of-characteristics engine sicheck used before physics/line_network.py.
+
+Kept unchanged (apart from this note) so the tests can compare the new engine with it on lossless
+chains; nothing in sicheck imports it.
+
+Time-domain response of a net: a chain of ideal lines, a driver and a receiver load.
 
 Method of characteristics (Bergeron's method; H. W. Dommel, "Digital computer solution
 of electromagnetic transients in single- and multiphase networks", IEEE Trans. PAS

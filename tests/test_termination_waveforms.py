@@ -178,3 +178,20 @@ def test_review_simulates_every_flagged_net_with_loss(run, board, tmp_path):
     simulated = [n for n in d["nets"] if n["recommended_termination"]]
     assert len(simulated) == 5 and min(n["length_mm"] for n in simulated) == pytest.approx(87.0, abs=0.01)
     assert any(f["rule"] == "waveform" and "max_nets = 5" in f["message"] for f in d["findings"])
+
+
+def test_review_reports_a_net_it_cannot_simulate(run, board, tmp_path, monkeypatch):
+    # A simulation that would need more samples than allowed is refused with a message; the net keeps its
+    # first-order advice and the review says which and why (no crash, no memory blow-up).
+    from sicheck.physics import line_network
+    monkeypatch.setattr(line_network, "MAX_SAMPLES", 300)
+    tr, st = board(TRACES)
+    js = tmp_path / "r.json"
+    code, stdout, err = run("review", tr, "--stackup", st, "--solver", "formula", "--json", js)
+    assert code in (0, 1), err
+    d = json.loads(js.read_text())
+    clk = {n["net"]: n for n in d["nets"]}["CLK"]
+    assert clk["recommended_termination"] is None and clk["assumptions"].startswith("not simulated: ")
+    assert "time samples" in clk["assumptions"]
+    msgs = [f["message"] for f in d["findings"] if f["rule"] == "waveform"]
+    assert any("were not simulated" in m and "CLK could not be" in m for m in msgs)

@@ -356,3 +356,41 @@ def test_too_many_samples_is_a_clear_error():
         simulate_chain(lossless([50.0], [10e-9]), 1.0, 1e-15, 25.0, Load())
     # the limit keeps one simulation within a few hundred MB
     assert line_network.MAX_SAMPLES * 16 * 8 < 600e6
+
+
+# ---------------------------------------------------------------- invariants (hypothesis)
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as hst  # noqa: E402
+
+CHAINS = hst.lists(hst.tuples(hst.floats(30.0, 90.0), hst.floats(5e-12, 1e-9)), min_size=1, max_size=5)
+
+
+@settings(max_examples=25, deadline=None)
+@given(chain=CHAINS, rs=hst.floats(5.0, 100.0), rise=hst.floats(50e-12, 2e-9), cap=hst.floats(0.0, 5e-12),
+       end=hst.one_of(hst.none(), hst.floats(20.0, 200.0)), vt=hst.floats(0.0, 3.3),
+       db=hst.floats(0.0, 6.0), rdc=hst.floats(0.0, 5.0))
+def test_invariants(chain, rs, rise, cap, end, vt, db, rdc):
+    lines = [Line(z, td, None if db == 0 else loss_from_db(z, td, db * td / 1e-9, 1e9, 0.5, rdc * td / 1e-9))
+             for z, td in chain]
+    load = Load(cap=cap, end_ohm=end, end_volts=vt if end else 0.0)
+    wf = simulate_chain(lines, 3.3, rise, rs, load)
+    r_line = sum(x.loss.r_dc if x.loss else 0.0 for x in lines)
+    # DC state: the resistive divider between driver, lines and termination (exact)
+    if end is None:
+        expect = 3.3
+    else:
+        expect = (3.3 / (rs + r_line) + vt / end) / (1 / (rs + r_line) + 1 / end)
+    assert wf.v_final == pytest.approx(expect, rel=1e-6, abs=1e-9)
+    # causality: before the edge's front can arrive the receiver holds its initial DC state
+    t_front = sum(front_delay(x) for x in lines)
+    v0 = wf.v_rx[0]
+    early = wf.t < t_front - 2 * (wf.t[1] - wf.t[0])
+    assert np.all(np.abs(wf.v_rx[early] - v0) < 0.005 * 3.3)
+    # and it settles in its window to the DC state (the window is sized for it; a heavily lossy line's
+    # skin-effect tail may still be approaching it, from below)
+    if db == 0:
+        assert wf.metrics["settled_in_window"]
+        assert wf.v_rx[-1] == pytest.approx(wf.v_final, abs=0.05 * abs(wf.v_final) + 1e-3)
+    else:
+        assert abs(wf.v_rx[-1] - wf.v_final) < 0.15 * abs(wf.v_final - v0) + 1e-3

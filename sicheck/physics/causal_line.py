@@ -115,7 +115,7 @@ def djordjevic_sarkar_eps(s, tan_delta: float, f_ref: float):
 def internal_impedance(s, loss: LineLoss):
     """Causal conductor impedance of the section (see module doc) at complex frequency s."""
     w_ref = 2.0 * PI * loss.f_ref
-    if loss.r_dc > 0.0:
+    if loss.r_dc > 0.0 and loss.r_ac < 1e6 * loss.r_dc:     # (a DC resistance a millionth of R(f_ref): skin only)
         q = loss.r_ac / loss.r_dc
         if q <= 1.0:            # no skin effect yet at f_ref: the resistance stays at its DC value
             return np.full_like(s, loss.r_dc)

@@ -42,7 +42,7 @@ from typing import Mapping, Sequence
 import numpy as np
 from scipy import fft as sfft
 
-from sicheck.physics.causal_line import ConstantRG, Line, dc_resistance, front_delay, per_delay, shape_key
+from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, dc_resistance, front_delay, per_delay, shape_key
 from sicheck.physics.transient import (RAMP_PER_RISE, SETTLE_BAND, Load, LoadSet, Waveform, metrics_batch,
                                        ramp_voltage)
 
@@ -54,6 +54,7 @@ BATCH_BINS = 1 << 21           # complex frequency bins per batch (32 MB per arr
 CHUNK_BINS = 1 << 16           # frequency bins evaluated at once
 MIN_SAMPLES = 256
 SHAPE_NODES = 512              # K(s), M(s) of a lossy line: exact on this many log-spaced frequencies, interpolated between
+SHORT_OHM = 1e-6               # below a micro-ohm a DC path is a short (the nodes are merged)
 LEAK_S = 1e-12                 # siemens to ground at every node for the DC solve (a floating node stays at 0 V)
 
 
@@ -265,7 +266,7 @@ def _dc(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSet], swing:
             r = None if e.farad is not None else e.ohm
         if r is None:
             continue
-        if r == 0.0:
+        if r < SHORT_OHM:
             rep[find(c)] = find(p)
             if g_line:
                 shunts.append((p, g_line))
@@ -357,7 +358,11 @@ def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSe
         ce = np.broadcast_to(np.where(rc, ls.end_cap, 0.0), tau.shape)
         ro = np.broadcast_to(np.where(rc, ls.end_ohm, 0.0), tau.shape)
         tau_end = np.maximum(tau_end, ce * (ro + np.maximum(rs_eff, z_min)))
-    return ramp + trips * 2.0 * total + np.maximum(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp
+    # loss adds a slow tail (the skin effect's step response approaches its end like 1/sqrt(t)):
+    # more time in proportion to the lines' attenuation at their reference frequencies
+    atten = sum(x.loss.r_ac / (2.0 * x.z0) + math.pi * x.loss.f_ref * x.delay * x.loss.tan_delta
+                for x in lines if isinstance(x.loss, LineLoss))
+    return ramp + trips * 2.0 * total * (1.0 + 2.0 * atten) + np.maximum(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp
 
 
 def _last_line(net: Network) -> Line:
