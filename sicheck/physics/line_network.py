@@ -362,7 +362,7 @@ def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSe
     # more time in proportion to the lines' attenuation at their reference frequencies
     atten = sum(x.loss.r_ac / (2.0 * x.z0) + math.pi * x.loss.f_ref * x.delay * x.loss.tan_delta
                 for x in lines if isinstance(x.loss, LineLoss))
-    return ramp + trips * 2.0 * total * (1.0 + 2.0 * atten) + np.maximum(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp
+    return ramp + trips * 2.0 * total * (1.0 + min(atten, 2.0)) + np.maximum(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp
 
 
 def _last_line(net: Network) -> Line:

@@ -18,9 +18,7 @@ HERE = Path(__file__).resolve().parent
 sys.path[:0] = [str(HERE.parent.parent), str(HERE.parent)]
 
 from sicheck.physics.causal_line import LineLoss  # noqa: E402
-from sicheck.physics.line_network import RECORD_FACTOR, SAMPLES_PER_RAMP  # noqa: E402
 from sicheck.physics.termination_choice import Limits, choose  # noqa: E402
-from sicheck.physics.transient import RAMP_PER_RISE  # noqa: E402
 
 
 def best_of(fn, repeat=5, number=1):
@@ -33,9 +31,26 @@ def best_of(fn, repeat=5, number=1):
     return best
 
 
-def fft_floor(n_samples: int, candidates: int) -> float:
-    spec = np.ones((candidates, n_samples // 2 + 1), dtype=complex)
-    return best_of(lambda: sfft.irfft(spec, n=n_samples, axis=-1), repeat=7, number=5)
+def recorded_irffts(fn):
+    """Run fn, noting the shape and size of every inverse FFT the engine does: (fn's result, notes)."""
+    from sicheck.physics import line_network
+    done = []
+    real = sfft.irfft
+
+    def counting(x, n=None, axis=-1):
+        done.append((x.shape, n))
+        return real(x, n=n, axis=axis)
+    line_network.sfft.irfft = counting
+    try:
+        return fn(), done
+    finally:
+        line_network.sfft.irfft = real
+
+
+def irfft_floor(done, repeat=7) -> float:
+    """Time of exactly those inverse FFTs, alone."""
+    arrays = [(np.ones(shape, dtype=complex), n) for shape, n in done]
+    return best_of(lambda: [sfft.irfft(a, n=n, axis=-1) for a, n in arrays], repeat=repeat)
 
 
 def old_engine_choice(z, td, rise, drv, swing, cap, limits) -> float:
@@ -63,11 +78,10 @@ def one_net() -> None:
         t = best_of(lambda: choose(z, td, rise, drv, swing, cap, limits, losses=losses), repeat=7, number=5)
         print(f"one 5-segment net ({label}, shortest segment 0.5 ps), termination choice with {len(cands)} "
               f"candidates: {t * 1e3:.2f} ms -> {rec.text}")
-    ramp = rise * RAMP_PER_RISE
-    n = int(RECORD_FACTOR * (ramp + 8 * 2 * sum(td) + 12 * cap * 20 + 4 * ramp) / (ramp / SAMPLES_PER_RAMP))
-    fl = fft_floor(sfft.next_fast_len(n, real=True), len(cands))
-    print(f"  floor: one inverse FFT of that record ({n} samples) for {len(cands)} candidates: {fl * 1e3:.3f} ms "
-          f"(ratio {t / fl:.1f})")
+        (_, _, _), done = recorded_irffts(lambda: choose(z, td, rise, drv, swing, cap, limits, losses=losses))
+        fl = irfft_floor(done)
+        print(f"  floor: its {len(done)} inverse FFTs alone ({', '.join(f'{n} samples x {sh[0]}' for sh, n in done)}): "
+              f"{fl * 1e3:.3f} ms (ratio {t / fl:.1f})")
     old = old_engine_choice(z, td, rise, drv, swing, cap, limits)
     print(f"  reference: the former method-of-characteristics chooser on the same net (short segments folded, "
           f"6 candidates): {old * 1e3:.1f} ms")
@@ -92,28 +106,19 @@ def thousand_nets() -> None:
                            r_dc=r * t / 1e-9) for (zi, a, r), t in zip(pick, td)]
         nets.append((z, list(td), rise, drv, losses))
     limits = Limits()
-    from sicheck.physics import line_network
-    done = []
-    real_irfft = sfft.irfft
+    sizes, counts = [], {}
 
-    def counting_irfft(x, n=None, axis=-1):
-        done.append((x.shape, n))
-        return real_irfft(x, n=n, axis=axis)
-    line_network.sfft.irfft = counting_irfft
-    try:
+    def run_all():
         t0 = time.perf_counter()
-        sizes, counts = [], {}
         for z, td, rise, drv, losses in nets:
             _, rec, cands = choose(z, td, rise, drv, 3.3, 2e-12, limits, losses=losses, keep_waves=True)
             counts[rec.scheme] = counts.get(rec.scheme, 0) + 1
             sizes.append(len(cands))
-        total = time.perf_counter() - t0
-    finally:
-        line_network.sfft.irfft = real_irfft
+        return time.perf_counter() - t0
+    total, done = recorded_irffts(run_all)
     print(f"1000 flagged nets (3-5 segments, 150 ps-3 ns edges, lossy), every candidate: {total:.2f} s "
           f"({total:.2f} ms per net; {sum(sizes)} simulations; chosen: {counts})")
-    arrays = [(np.ones(shape, dtype=complex), n) for shape, n in done]
-    fl = best_of(lambda: [real_irfft(a, n=n, axis=-1) for a, n in arrays], repeat=3)
+    fl = irfft_floor(done, repeat=3)
     print(f"  floor: the same run's {len(done)} inverse FFTs alone: {fl:.3f} s (ratio {total / fl:.1f})")
 
 
