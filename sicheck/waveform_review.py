@@ -141,7 +141,7 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         loss_db = float(np.nansum(arr["length"][ix] * (arr["conductor_loss_db_per_m"][ix]
                                                        + arr["dielectric_loss_db_per_m"][ix])))
         used = {
-            "engine": "frequency domain (exact for the modelled chain of lines)",
+            "engine": "frequency domain: the chain of lines solved with exact delays (a model of the net: an estimate)",
             "source": f"linear ramp 0-100 % in {rise / 0.8 * 1e12:.4g} ps (Tr/0.8) behind the driver resistance",
             "mode": "odd mode of the pair: one leg, half the swing, Zodd per segment" if pair else "single-ended",
             "segments": int(len(ix)),

@@ -49,7 +49,7 @@ from sicheck.physics.transient import (RAMP_PER_RISE, SETTLE_BAND, Load, LoadSet
 SAMPLES_PER_RAMP = 32
 RECORD_FACTOR = 1.5            # record length / window kept
 WRAP_DAMPING = 1e-4            # e^(-sigma T): what wraps around from one record length later is damped by this
-MAX_SAMPLES = 1 << 22          # about four million samples: one simulation stays within a few hundred MB
+MAX_SAMPLES = 3 << 20          # about three million samples: one simulation stays within about 350 MB
 BATCH_BINS = 1 << 21           # complex frequency bins per batch (32 MB per array)
 CHUNK_BINS = 1 << 16           # frequency bins evaluated at once
 MIN_SAMPLES = 256
