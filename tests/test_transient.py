@@ -122,8 +122,8 @@ NGSPICE = shutil.which("ngspice")
 needs_ngspice = pytest.mark.skipif(NGSPICE is None, reason="ngspice is not installed (.ci/run installs it)")
 
 
-def ngspice_run(tmp_path, body, swing, ramp, t_end, step):
-    """Run a netlist whose driver node is `src` (PWL ramp) and receiver node `rx`; returns (t, v(rx))."""
+def ngspice_run(tmp_path, body, swing, ramp, t_end, step, probe="rx"):
+    """Run a netlist whose driver node is `src` (PWL ramp); returns (t, v(probe))."""
     cir = tmp_path / "c.cir"
     out = tmp_path / "out.txt"
     cir.write_text(f"""* sicheck comparison
@@ -132,7 +132,7 @@ V1 src 0 PWL(0 0 {ramp:.6e} {swing})
 .tran {step:.4e} {t_end:.4e} 0 {step:.4e}
 .control
 run
-wrdata {out} v(rx)
+wrdata {out} v({probe})
 quit
 .endc
 .end
@@ -244,6 +244,35 @@ def test_lossy_series_r_against_ngspice_ltra(tmp_path):
     assert err.max() < 0.01 * swing
     ref = receiver_metrics(t_ref, v_ref, wf.v_final, ramp)
     assert wf.metrics["v_max"] == pytest.approx(ref["v_max"], abs=0.005 * swing)
+
+
+@needs_ngspice
+@pytest.mark.parametrize("probe", ["rx1", "rx2"])
+def test_tree_and_series_capacitor_against_ngspice(tmp_path, probe):
+    # Reference: ngspice, lossless T elements. A T: a 40 mm trunk (250 ps) to a branch point, one branch of
+    # 190 ps to a 3 pF receiver, the other through a 100 nF series capacitor and 120 ps of line to a
+    # receiver terminated 100 ohm to ground (an AC-coupled input): each receiver's waveform within 1 %.
+    net = Network()
+    tee = net.add(0, Line(55.0, 250e-12))
+    rx1 = net.add(tee, Line(60.0, 190e-12))
+    cap = net.add(tee, Series(farad=100e-9))
+    rx2 = net.add(cap, Line(50.0, 120e-12))
+    loads = {rx1: LoadSet.of([Load(cap=3e-12)]), rx2: LoadSet.of([Load(cap=1e-12, end_ohm=100.0)])}
+    swing, rise, t_end = 1.8, 0.2e-9, 12e-9
+    res = simulate_network(net, [rx1, rx2], swing, rise, [25.0], loads, t_end=t_end)
+    wf = res[rx1 if probe == "rx1" else rx2][0]
+    body = """R1 src a 25
+T1 a 0 tee 0 Z0=55 TD=250p
+T2 tee 0 rx1 0 Z0=60 TD=190p
+C1 rx1 0 3p
+Cs tee c 100n
+T3 c 0 rx2 0 Z0=50 TD=120p
+Rt rx2 0 100
+C2 rx2 0 1p"""
+    t_ref, v_ref = ngspice_run(tmp_path, body, swing, rise / 0.8, t_end, rise / 0.8 / 400, probe=probe)
+    keep = t_ref <= 0.95 * t_end
+    assert np.abs(np.interp(t_ref[keep], wf.t, wf.v_rx) - v_ref[keep]).max() < 0.01 * swing
+    assert wf.v_final == pytest.approx(swing if probe == "rx1" else 0.0, abs=1e-6)   # DC: C open
 
 
 def test_dc_end_state_is_the_resistive_divider():
