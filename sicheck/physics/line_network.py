@@ -53,7 +53,7 @@ MAX_SAMPLES = 3 << 20          # about three million samples: one simulation sta
 BATCH_BINS = 1 << 21           # complex frequency bins per batch (32 MB per array)
 CHUNK_BINS = 1 << 16           # frequency bins evaluated at once
 MIN_SAMPLES = 256
-SHAPE_NODES = 512              # K(s), M(s) of a lossy line: exact on this many log-spaced frequencies, interpolated between
+SHAPE_NODES = 512              # K(s), M(s) of a lossy line: exact at this many frequencies, interpolated between
 SHORT_OHM = 1e-6               # below a micro-ohm a DC path is a short (the nodes are merged)
 LEAK_S = 1e-12                 # siemens to ground at every node for the DC solve (a floating node stays at 0 V)
 
@@ -153,8 +153,8 @@ def _smooth_per_delay(e: Line, s: np.ndarray):
 
     K and M vary smoothly and slowly with frequency (the oscillation is all in e^(-s delay K)), so
     on long grids they are evaluated exactly at SHAPE_NODES log-spaced frequencies (and the grid's
-    first two) and interpolated between them linearly in log w (power laws such as the skin effect stay near linear); the waveform moves by
-    less than 1e-4 of the swing (tests/test_transient.py).
+    first two) and interpolated between them linearly in log w (power laws such as the skin effect
+    stay near linear); the waveform moves by less than 1e-4 of the swing (tests/test_transient.py).
     """
     if len(s) <= 4 * SHAPE_NODES:
         return per_delay(e, s)
@@ -406,7 +406,8 @@ def simulate_network(net: Network, receivers: Sequence[int], swing: float, rise:
     """Each receiver's waveform for each candidate (r_source[i] with row i of every LoadSet).
 
     r_source: the driver's resistance per candidate (ohm, > 0); a LoadSet with one row applies to
-    all candidates. t_end: the window (one value, or one per candidate); default settle_window. Returns {receiver: [Waveform per candidate]}; with ``with_source`` each
+    all candidates. t_end: the window (one value, or one per candidate); default settle_window.
+    Returns {receiver: [Waveform per candidate]}; with ``with_source`` each
     Waveform also carries the driver-node voltage.
     """
     if rise <= 0 or swing == 0:
