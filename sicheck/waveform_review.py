@@ -87,8 +87,9 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
              for c in ("driver_ohm", "load_pf", "rise_time")}
     done_pair: dict[frozenset, int] = {}
     copy_cols = (scheme, part, power, meets, notes, violations, lossy, inputs)
+    rows = {i: r for i, r in zip(nets.index, nets.to_dict("records"))}
     for i in order:
-        r = nets.loc[i]
+        r = rows[i]
         net, pair = r["net"], r["pair"]
         if pair:
             key = frozenset((net, pair))

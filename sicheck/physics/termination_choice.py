@@ -19,6 +19,7 @@ Every segment is kept with its exact delay (and its loss, when given).
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -53,14 +54,15 @@ class Candidate:
     wave: tuple | None = None      # (t, v) decimated, for charts
 
 
-def _neighbours(value: float, series: str = "E24", spread: int = 1) -> list[float]:
+@functools.lru_cache(maxsize=4096)
+def _neighbours(value: float, series: str = "E24", spread: int = 1) -> tuple[float, ...]:
     mant = eseries.SERIES[series]
     base = eseries.nearest(value, series)
     decade = int(np.floor(np.log10(base) + 1e-12))
     all_vals = [m * 10.0**d for d in (decade - 1, decade, decade + 1) for m in mant]
     all_vals = sorted(set(round(v, 12 - decade) for v in all_vals))
     i = min(range(len(all_vals)), key=lambda k: abs(all_vals[k] - base))
-    return [all_vals[j] for j in range(max(0, i - spread), min(len(all_vals), i + spread + 1))]
+    return tuple(all_vals[j] for j in range(max(0, i - spread), min(len(all_vals), i + spread + 1)))
 
 
 def _power_parallel(swing, rs, r, vt):
@@ -163,7 +165,7 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
                 Load(cap=load_cap, end_ohm=req, end_volts=veq), _power_thevenin(swing, driver_ohm, r2, r2),
                 {"end_ohm": r2})])
     # the first and last stages share one window, so the last reuses the first's line two-ports
-    shared = max(window([base] + series), window(ends))
+    shared = window([base] + series + ends)
     first = stage([base] + series, shared)
     none = first[0]
     if none.meets:
