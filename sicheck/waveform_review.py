@@ -17,6 +17,7 @@ is copper's resistivity over the trace's cross-section (the plane's share neglec
 from __future__ import annotations
 
 import math
+import os
 
 import numpy as np
 import pandas as pd
@@ -60,6 +61,44 @@ def _source(given: bool, cls, attr: str, key: str) -> str:
     return f"{RULES_SRC} {key}"
 
 
+POOL_MIN_NETS = 400      # below this a process pool costs more than it saves
+
+
+def _choose_one(args):
+    """One net's termination choice: (before, after) candidates, or the reason it cannot be simulated."""
+    z, td, rise, drv, swing, cap, limits, zd, losses = args
+    try:
+        before, after, _ = choose(z, td, rise, drv, swing, cap, limits, zdiff=zd, keep_waves=True, losses=losses)
+    except ValueError as e:
+        return str(e)
+    return before, after
+
+
+def _choose_chunk(jobs):
+    return [(i, _choose_one(a)) for i, a in jobs]
+
+
+def workers() -> int:
+    """Processes for the waveform stage: $SICHECK_WORKERS, else the CPUs (at most 4), as for the field solver."""
+    env = os.environ.get("SICHECK_WORKERS", "")
+    return int(env) if env.isdigit() and int(env) > 0 else min(os.cpu_count() or 1, 4)
+
+
+def run_jobs(jobs: list) -> list:
+    """[(index, result)] for each job; the nets are independent, so large boards use a process pool."""
+    n = workers()
+    if len(jobs) < POOL_MIN_NETS or n < 2:
+        return _choose_chunk(jobs)
+    from concurrent.futures import ProcessPoolExecutor
+    size = max(50, len(jobs) // (8 * n))
+    chunks = [jobs[k:k + size] for k in range(0, len(jobs), size)]
+    out: list = []
+    with ProcessPoolExecutor(max_workers=n) as pool:
+        for part in pool.map(_choose_chunk, chunks):
+            out.extend(part)
+    return out
+
+
 def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list | None = None
                   ) -> tuple[pd.DataFrame, dict]:
     classes = {c.name: c for c in rules.classes}
@@ -86,6 +125,9 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
     given = {c: (seg[f"{c}_given"].to_numpy(bool) if f"{c}_given" in seg.columns else np.zeros(len(seg), bool))
              for c in ("driver_ohm", "load_pf", "rise_time")}
     done_pair: dict[frozenset, int] = {}
+    partners: list[tuple[int, int]] = []
+    jobs: list = []
+    pending: dict = {}
     copy_cols = (scheme, part, power, meets, notes, violations, lossy, inputs)
     rows = {i: r for i, r in zip(nets.index, nets.to_dict("records"))}
     for i in order:
@@ -93,12 +135,8 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         net, pair = r["net"], r["pair"]
         if pair:
             key = frozenset((net, pair))
-            if key in done_pair:      # the partner leg: same result
-                j = done_pair[key]
-                for c in cols:
-                    cols[c][i] = cols[c][j]
-                for a in copy_cols:
-                    a[i] = a[j]
+            if key in done_pair:      # the partner leg: same result (filled in below)
+                partners.append((i, done_pair[key]))
                 continue
             done_pair[key] = i
         ix = pos[net]
@@ -164,13 +202,16 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                                "impedance from the DC resistance (copper resistivity over the trace section), "
                                "dielectric as a Djordjevic-Sarkar wideband loss tangent"},
         }
-        try:
-            before, after, _ = choose(z, td, rise, drv, leg_swing, cap * 1e-12, limits, zdiff=zd, keep_waves=True,
-                                      losses=losses)
-        except ValueError as e:
-            notes[i] = f"not simulated: {e}"
-            inputs[i] = used
+        jobs.append((i, (z, td, rise, drv, leg_swing, cap * 1e-12, limits, zd, losses)))
+        pending[i] = (net, used, has_loss, loss_db, float(arr["freq"][ix][0]), assumed)
+
+    for i, result in run_jobs(jobs):
+        net, used, has_loss, loss_db, f0, assumed = pending[i]
+        inputs[i] = used
+        if isinstance(result, str):
+            notes[i] = f"not simulated: {result}"
             continue
+        before, after = result
         for k in METRIC_KEYS:
             cols[f"before_{k}"][i] = before.metrics[k]
             cols[f"after_{k}"][i] = after.metrics[k]
@@ -180,11 +221,15 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         meets[i] = after.meets
         violations[i] = "; ".join(after.violations)
         lossy[i] = has_loss
-        inputs[i] = used
-        loss_note = (f"simulated with loss ({loss_db:.2f} dB at {arr['freq'][ix][0] * 1e-9:.3g} GHz)" if has_loss
+        loss_note = (f"simulated with loss ({loss_db:.2f} dB at {f0 * 1e-9:.3g} GHz)" if has_loss
                      else "simulated lossless (no loss data)")
         notes[i] = loss_note + ("; assumed " + ", ".join(assumed) + f" ({RULES_SRC})" if assumed else "")
         waves[net] = (before.wave, after.wave, before.metrics["v_final"] if before.wave else None)
+    for i, j in partners:
+        for c in cols:
+            cols[c][i] = cols[c][j]
+        for a in copy_cols:
+            a[i] = a[j]
     out = nets.copy()
     for c, v in cols.items():
         out[c] = v

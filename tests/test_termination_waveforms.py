@@ -195,3 +195,22 @@ def test_review_reports_a_net_it_cannot_simulate(run, board, tmp_path, monkeypat
     assert "time samples" in clk["assumptions"]
     msgs = [f["message"] for f in d["findings"] if f["rule"] == "waveform"]
     assert any("were not simulated" in m and "CLK could not be" in m for m in msgs)
+
+
+def test_process_pool_gives_the_same_review(run, board, tmp_path, monkeypatch):
+    # Large boards spread the nets over processes; the answers must not depend on it.
+    from sicheck import waveform_review
+    rows = ["net,layer,length,width,rise_time,driver_ohm,pair,gap"]
+    rows += [f"S{i},L3,{60 + 7 * i}mm,0.15mm,{200 + 50 * i}ps,{10 + 5 * i},," for i in range(8)]
+    rows += ["P_P,L3,120mm,0.1mm,200ps,,P_N,0.15mm"]
+    tr, st = board("\n".join(rows) + "\n")
+    out = {}
+    for label, n_workers, pool_min in (("serial", "1", 10 ** 6), ("pool", "2", 1)):
+        monkeypatch.setenv("SICHECK_WORKERS", n_workers)
+        monkeypatch.setattr(waveform_review, "POOL_MIN_NETS", pool_min)
+        js = tmp_path / f"{label}.json"
+        code, _, err = run("review", tr, "--stackup", st, "--solver", "formula", "--json", js)
+        assert code in (0, 1), err
+        out[label] = {n["net"]: n for n in json.loads(js.read_text())["nets"]}
+    assert out["serial"] == out["pool"]
+    assert all(n["recommended_termination"] for n in out["pool"].values())

@@ -1,6 +1,6 @@
 """Benchmark: the waveform engine per net, for 1 000 flagged nets, and the demo board's waveform stage.
 
-Run: python tests/bench/bench_waveform.py. Prints figures, each next to a floor measured in the same
+Run: python tests/bench/bench_waveform.py [--board-nets 25000]. Prints figures, each next to a floor measured in the same
 run; asserts nothing. Floors: one inverse FFT of the same record for all candidates (the engine's
 irreducible work), and the method of characteristics that sicheck used before (tests/moc_reference.py).
 """
@@ -143,8 +143,8 @@ def demo_board() -> None:
           f"rest of the review {base:.2f} s ({(full - base) / max(flagged, 1) * 1e3:.1f} ms per net)")
 
 
-def board_review() -> None:
-    """A synthetic board of 1 000 nets of 3-5 segments on four layers, every one needing termination."""
+def board_review(n_nets: int = 1000) -> None:
+    """A synthetic board of n_nets nets of 3-5 segments on four layers, every one needing termination."""
     import tempfile
 
     from sicheck.resources import demo_dir
@@ -154,7 +154,7 @@ def board_review() -> None:
     from sicheck.traces import read_traces
     rng = np.random.default_rng(11)
     rows = ["net,layer,length,width,rise_time,driver_ohm"]
-    for i in range(1000):
+    for i in range(n_nets):
         rise = float(rng.choice([150, 300, 500, 1000, 3000]))
         k = int(rng.integers(3, 6))
         total = max(0.6 * rise / 6.5, 20.0) * rng.uniform(1.0, 3.0)       # mm; about 6.5 ps/mm
@@ -177,11 +177,16 @@ def board_review() -> None:
     flagged = int((nets["termination"] != "not-needed").sum())
     simulated = int((nets["termination_part"] != "").sum())
     lossy = int((nets["waveform_loss"] == True).sum())  # noqa: E712
-    print(f"synthetic board, {len(rv.segments)} segments (closed forms): waveform stage {full - base:.2f} s for "
+    from sicheck.waveform_review import workers
+    print(f"synthetic board, {len(rv.segments)} segments (closed forms, {workers()} worker processes): waveform "
+          f"stage {full - base:.2f} s for "
           f"{simulated} of {flagged} flagged nets ({lossy} with loss) next to the rest of the review {base:.2f} s")
 
 
 def main() -> None:
+    if "--board-nets" in sys.argv:          # only the synthetic board, at the size given
+        board_review(int(sys.argv[sys.argv.index("--board-nets") + 1]))
+        return
     one_net()
     thousand_nets()
     board_review()
