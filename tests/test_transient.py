@@ -412,11 +412,12 @@ def test_invariants(chain, rs, rise, cap, end, vt, db, rdc):
     else:
         expect = (3.3 / (rs + r_line) + vt / end) / (1 / (rs + r_line) + 1 / end)
     assert wf.v_final == pytest.approx(expect, rel=1e-6, abs=1e-9)
-    # causality: before the edge's front can arrive the receiver holds its initial DC state
+    # causality: before the edge's front can arrive the receiver holds its initial DC state (numerical level
+    # stated in README: 0.1 % of the swing up to two samples before the front)
     t_front = sum(front_delay(x) for x in lines)
     v0 = wf.v_rx[0]
     early = wf.t < t_front - 2 * (wf.t[1] - wf.t[0])
-    assert np.all(np.abs(wf.v_rx[early] - v0) < 0.005 * 3.3)
+    assert np.all(np.abs(wf.v_rx[early] - v0) < 0.001 * 3.3)
     # and it settles in its window to the DC state (the window is sized for it; a heavily lossy line's
     # skin-effect tail may still be approaching it, from below)
     if db == 0:
