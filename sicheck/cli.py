@@ -172,11 +172,18 @@ def wave(
                                                                     "receiver to ground."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object on standard output."),
     plot: Optional[Path] = typer.Option(None, "--plot", help="Draw the waveforms (PNG)."),
+    loss: Optional[list[str]] = typer.Option(None, "--loss", help="A line's total insertion loss at a frequency, "
+                                                                 "DB@FREQ (e.g. 4dB@1GHz); one per --z0."),
+    dielectric_share: Optional[list[str]] = typer.Option(None, "--dielectric-share",
+                                                         help="Part of that loss that is dielectric, 0-1 (once for "
+                                                              "all lines or once per line; default 0.5)."),
+    rdc: Optional[list[str]] = typer.Option(None, "--rdc", help="A line's DC resistance, ohm (once for all lines or "
+                                                               "once per line; default 0: skin effect only)."),
 ):
-    """Receiver waveform and its metrics for one line driven by a ramp."""
+    """Receiver waveform and its metrics for one line (or a chain) driven by a ramp, lossless or lossy."""
     from sicheck.wave_cmd import run_wave
     run_wave(z0, delay, driver_ohm, swing, rise, series_ohm, load_pf, end_ohm, end_volts, end_cap, as_json, plot,
-             end_up, end_down)
+             end_up, end_down, loss, dielectric_share, rdc)
 
 
 def main(argv: list[str] | None = None) -> None:

@@ -130,6 +130,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     df["rise_time"] = _class_value(df, rules, "rise_time", "rise_time")
     df["gap"] = _class_value(df.assign(gap=np.where(df["pair"] != "", df["gap"], np.nan)), rules, "gap", "gap")
     df.loc[df["pair"] == "", "gap"] = np.nan
+    given = {c: df[c].notna().to_numpy() for c in ("driver_ohm", "load_pf", "rise_time")}   # for the waveform notes
     df["driver_ohm"] = _class_value(df, rules, "driver_ohm", "driver_ohm")
     df["load_pf"] = _class_value(df, rules, "load_pf", "load_pf")
     for col, what in (("width", "a width (column 'width' or the net class's width)"),):
@@ -169,6 +170,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     results = solver(xs)
     seg = _segment_table(df, codes, xs, results)
     _add_loss(seg, stackup, xs, results, codes, solver)
+    for c, m in given.items():
+        seg[f"{c}_given"] = m
 
     # ---- partners listed only through their pair: mirror their segments for the net table
     listed = set(df["net"])
@@ -181,7 +184,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     waves: dict = {}
     if waveforms:
         from sicheck.waveform_review import simulate_nets
-        nets, waves = simulate_nets(all_seg, nets, rules)
+        nets, waves = simulate_nets(all_seg, nets, rules, xs)
     ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
                         cross_sections=list(zip(xs, results)))
     findings = run_checks(ctx)

@@ -1,78 +1,217 @@
-"""The waveform stage of a review: simulate each net that needs termination.
+"""The waveform stage of a review: simulate every net that needs termination, with loss.
 
-For every net classified `recommended` or `required` (the longest first, up to the
-rules' max_nets), the net's own chain of segments (each with its Z and delay) is
-simulated unterminated and with each standard scheme; the chosen part and its
-before/after receiver metrics are added to the nets table.
+For every net classified `recommended` or `required` (all of them unless the rules set
+[waveform] max_nets, then the longest first), the net's own chain of segments (each with
+its Z, exact delay and loss) is simulated unterminated and with each standard scheme
+(physics/termination_choice.py on the frequency-domain engine physics/line_network.py);
+the chosen part and its before/after receiver metrics are added to the nets table,
+together with every value the simulation used and where it came from.
+
+Loss per segment comes from the review's own loss columns at the net's frequency f0:
+conductor attenuation alpha_c (skin effect and roughness, Wheeler's rule) gives the
+segment's series resistance at f0, R = 2 Z alpha_c length; dielectric attenuation alpha_d
+gives its effective loss tangent, tan d = alpha_d length / (pi f0 delay); the DC resistance
+is copper's resistivity over the trace's cross-section (the plane's share neglected).
 """
 
 from __future__ import annotations
 
+import math
+import os
+
 import numpy as np
 import pandas as pd
 
+from sicheck.physics.causal_line import LineLoss
+from sicheck.physics.loss import NP_TO_DB, RHO_COPPER
 from sicheck.physics.termination_choice import Limits, choose
 from sicheck.rules import Rules
 
 METRIC_KEYS = ("overshoot_pct", "ringback_pct", "settle_ns", "flight_ns")
 CHARTS = 12      # waveforms kept for the workbook: the worst nets by unterminated overshoot
+RULES_SRC = "rules [waveform]"
 
 
-def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules) -> tuple[pd.DataFrame, dict]:
+def _trace_area(xs) -> float:
+    """Copper cross-section of one trace (m^2): a trapezoid for an etched trace."""
+    top = xs.top_width if xs.top_width is not None else xs.width
+    return xs.thickness * 0.5 * (xs.width + top)
+
+
+def segment_losses(z, delay, length, freq, a_c_db, a_d_db, area) -> list[LineLoss | None]:
+    """One LineLoss per segment from the review's loss columns (see module doc); None where lossless."""
+    out = []
+    for zi, td, ln, f, ac, ad, ar in zip(z, delay, length, freq, a_c_db, a_d_db, area):
+        ac = 0.0 if not np.isfinite(ac) else ac / NP_TO_DB
+        ad = 0.0 if not np.isfinite(ad) else ad / NP_TO_DB
+        r_dc = RHO_COPPER * ln / ar if (ar and np.isfinite(ar) and ar > 0) else 0.0
+        if ac == 0.0 and ad == 0.0 and r_dc == 0.0:
+            out.append(None)
+            continue
+        out.append(LineLoss(f_ref=float(f), r_ac=2.0 * zi * ac * ln, tan_delta=min(ad * ln / (math.pi * f * td), 0.5),
+                            r_dc=r_dc))
+    return out
+
+
+def _source(given: bool, cls, attr: str, key: str) -> str:
+    if given:
+        return "trace list"
+    if cls is not None and getattr(cls, attr, None) is not None:
+        return f"net class '{cls.name}'"
+    return f"{RULES_SRC} {key}"
+
+
+POOL_MIN_NETS = 400      # below this a process pool costs more than it saves
+
+
+def _choose_one(args):
+    """One net's termination choice: (before, after) candidates, or the reason it cannot be simulated."""
+    z, td, rise, drv, swing, cap, limits, zd, losses = args
+    try:
+        before, after, _ = choose(z, td, rise, drv, swing, cap, limits, zdiff=zd, keep_waves=True, losses=losses)
+    except ValueError as e:
+        return str(e)
+    return before, after
+
+
+def _choose_chunk(jobs):
+    return [(i, _choose_one(a)) for i, a in jobs]
+
+
+def workers() -> int:
+    """Processes for the waveform stage: $SICHECK_WORKERS, else the CPUs (at most 4), as for the field solver."""
+    env = os.environ.get("SICHECK_WORKERS", "")
+    return int(env) if env.isdigit() and int(env) > 0 else min(os.cpu_count() or 1, 4)
+
+
+def run_jobs(jobs: list) -> list:
+    """[(index, result)] for each job; the nets are independent, so large boards use a process pool."""
+    n = workers()
+    if len(jobs) < POOL_MIN_NETS or n < 2:
+        return _choose_chunk(jobs)
+    from concurrent.futures import ProcessPoolExecutor
+    size = max(50, len(jobs) // (8 * n))
+    chunks = [jobs[k:k + size] for k in range(0, len(jobs), size)]
+    out: list = []
+    with ProcessPoolExecutor(max_workers=n) as pool:
+        for part in pool.map(_choose_chunk, chunks):
+            out.extend(part)
+    return out
+
+
+def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list | None = None
+                  ) -> tuple[pd.DataFrame, dict]:
     classes = {c.name: c for c in rules.classes}
-    cols = {f"{w}_{k}": np.full(len(nets), np.nan) for w in ("before", "after") for k in METRIC_KEYS}
-    scheme = np.full(len(nets), "", dtype=object)
-    part = np.full(len(nets), "", dtype=object)
-    power = np.full(len(nets), np.nan)
-    meets = np.full(len(nets), None, dtype=object)
-    notes = np.full(len(nets), "", dtype=object)
-    violations = np.full(len(nets), "", dtype=object)
+    n = len(nets)
+    cols = {f"{w}_{k}": np.full(n, np.nan) for w in ("before", "after") for k in METRIC_KEYS}
+    scheme = np.full(n, "", dtype=object)
+    part = np.full(n, "", dtype=object)
+    power = np.full(n, np.nan)
+    meets = np.full(n, None, dtype=object)
+    notes = np.full(n, "", dtype=object)
+    violations = np.full(n, "", dtype=object)
+    lossy = np.full(n, None, dtype=object)
+    inputs = np.full(n, None, dtype=object)
     waves: dict[str, tuple] = {}
 
     flagged = nets.index[nets["termination"] != "not-needed"]
-    order = nets.loc[flagged].sort_values("delay", ascending=False).index[:rules.max_nets]
-    by_net = {n: g for n, g in seg.groupby("net", sort=False)}
+    order = nets.loc[flagged].sort_values("delay", ascending=False).index
+    if rules.max_nets is not None:
+        order = order[:rules.max_nets]
+    area = (np.array([_trace_area(x) for x in xs], dtype=float) if xs is not None else None)
+    pos = {net: np.asarray(ix) for net, ix in seg.groupby("net", sort=False).indices.items()}
+    arr = {c: seg[c].to_numpy() for c in ("z0", "zodd", "delay", "length", "freq", "conductor_loss_db_per_m",
+                                          "dielectric_loss_db_per_m", "xs", "rise_time")}
+    given = {c: (seg[f"{c}_given"].to_numpy(bool) if f"{c}_given" in seg.columns else np.zeros(len(seg), bool))
+             for c in ("driver_ohm", "load_pf", "rise_time")}
     done_pair: dict[frozenset, int] = {}
+    partners: list[tuple[int, int]] = []
+    jobs: list = []
+    pending: dict = {}
+    copy_cols = (scheme, part, power, meets, notes, violations, lossy, inputs)
+    rows = {i: r for i, r in zip(nets.index, nets.to_dict("records"))}
     for i in order:
-        r = nets.loc[i]
-        net = r["net"]
-        pair = r["pair"]
+        r = rows[i]
+        net, pair = r["net"], r["pair"]
         if pair:
             key = frozenset((net, pair))
-            if key in done_pair:      # the partner leg: same result
-                j = done_pair[key]
-                for c in cols:
-                    cols[c][i] = cols[c][j]
-                scheme[i], part[i], power[i], meets[i] = scheme[j], part[j], power[j], meets[j]
-                notes[i], violations[i] = notes[j], violations[j]
+            if key in done_pair:      # the partner leg: same result (filled in below)
+                partners.append((i, done_pair[key]))
                 continue
             done_pair[key] = i
-        g = by_net[net]
-        z = g["zodd"].tolist() if pair else g["z0"].tolist()
-        td = g["delay"].tolist()
+        ix = pos[net]
+        z = arr["zodd" if pair else "z0"][ix].astype(float)
+        td = arr["delay"][ix].astype(float)
+        losses = segment_losses(z, td, arr["length"][ix], arr["freq"][ix], arr["conductor_loss_db_per_m"][ix],
+                                arr["dielectric_loss_db_per_m"][ix],
+                                area[arr["xs"][ix].astype(int)] if area is not None else [None] * len(ix))
         cls = classes.get(r["net_class"])
         assumed = []
-        drv = r["driver_ohm"]
+        drv = float(r["driver_ohm"])
+        drv_src = _source(bool(given["driver_ohm"][ix[0]]), cls, "driver_ohm", "driver_ohm")
         if np.isnan(drv):
             drv = rules.driver_ohm
             assumed.append(f"driver {drv:g} ohm")
-        cap = r["load_pf"]
+        cap = float(r["load_pf"])
+        cap_src = _source(bool(given["load_pf"][ix[0]]), cls, "load_pf", "load_pf")
         if np.isnan(cap):
             cap = rules.load_pf
             assumed.append(f"load {cap:g} pF")
-        swing = (cls.swing if cls and cls.swing else None)
+        swing = cls.swing if cls and cls.swing else None
+        swing_src = f"net class '{cls.name}'" if swing is not None else f"{RULES_SRC} swing"
         if swing is None:
             swing = rules.swing
-        limits = Limits(
-            max_overshoot_pct=(cls.max_overshoot_pct if cls and cls.max_overshoot_pct is not None
-                               else rules.max_overshoot_pct),
-            max_ringback_pct=(cls.max_ringback_pct if cls and cls.max_ringback_pct is not None
-                              else rules.max_ringback_pct),
-            max_settle_ns=cls.max_settle_ns if cls else None,
-            settle_rise_times=rules.settle_rise_times)
+        rise = float(r["rise_time"])
+        rise_rows = arr["rise_time"][ix] == rise
+        rise_src = "trace list" if np.any(given["rise_time"][ix] & rise_rows) else f"net class '{r['net_class']}'"
+
+        def pick(attr, default):
+            v = getattr(cls, attr, None) if cls else None
+            return (v, f"net class '{cls.name}'") if v is not None else (default, f"{RULES_SRC} {attr}")
+
+        over, over_src = pick("max_overshoot_pct", rules.max_overshoot_pct)
+        ring, ring_src = pick("max_ringback_pct", rules.max_ringback_pct)
+        settle = cls.max_settle_ns if cls else None
+        limits = Limits(max_overshoot_pct=over, max_ringback_pct=ring, max_settle_ns=settle,
+                        settle_rise_times=rules.settle_rise_times)
+        has_loss = any(lo is not None for lo in losses)
         zd = float(r["z_driver_end"]) if pair else None
-        before, after, _ = choose(z, td, float(r["rise_time"]), float(drv), swing / (2.0 if pair else 1.0),
-                                  float(cap) * 1e-12, limits, zdiff=zd, keep_waves=True)
+        leg_swing = swing / (2.0 if pair else 1.0)
+        loss_db = float(np.nansum(arr["length"][ix] * (arr["conductor_loss_db_per_m"][ix]
+                                                       + arr["dielectric_loss_db_per_m"][ix])))
+        used = {
+            "engine": "frequency domain: the chain of lines solved with exact delays (a model of the net: an estimate)",
+            "source": f"linear ramp 0-100 % in {rise / 0.8 * 1e12:.4g} ps (Tr/0.8) behind the driver resistance",
+            "mode": "odd mode of the pair: one leg, half the swing, Zodd per segment" if pair else "single-ended",
+            "segments": int(len(ix)),
+            "delay_ps": {"value": float(td.sum() * 1e12), "source": "segments (field solver or closed form)"},
+            "driver_ohm": {"value": drv, "source": drv_src},
+            "load_pf": {"value": cap, "source": cap_src},
+            "swing_v": {"value": swing, "source": swing_src},
+            "rise_time_ps": {"value": rise * 1e12, "source": rise_src + " (fastest edge on the net's rows)"},
+            "max_overshoot_pct": {"value": over, "source": over_src},
+            "max_ringback_pct": {"value": ring, "source": ring_src},
+            "max_settle_ns": ({"value": settle, "source": f"net class '{cls.name}'"} if settle is not None else
+                              {"value": None, "source": f"flight + ramp + {rules.settle_rise_times:g} x Tr "
+                                                        f"({RULES_SRC} settle_rise_times)"}),
+            "loss": {"included": has_loss, "freq_ghz": float(arr["freq"][ix][0] * 1e-9), "insertion_loss_db": loss_db,
+                     "conductor_db": float(np.nansum(arr["length"][ix] * arr["conductor_loss_db_per_m"][ix])),
+                     "dielectric_db": float(np.nansum(arr["length"][ix] * arr["dielectric_loss_db_per_m"][ix])),
+                     "dc_resistance_ohm": float(sum(lo.r_dc for lo in losses if lo is not None)),
+                     "source": "segment loss columns at the net's frequency: conductor as a causal skin-effect "
+                               "impedance from the DC resistance (copper resistivity over the trace section), "
+                               "dielectric as a Djordjevic-Sarkar wideband loss tangent"},
+        }
+        jobs.append((i, (z, td, rise, drv, leg_swing, cap * 1e-12, limits, zd, losses)))
+        pending[i] = (net, used, has_loss, loss_db, float(arr["freq"][ix][0]), assumed)
+
+    for i, result in run_jobs(jobs):
+        net, used, has_loss, loss_db, f0, assumed = pending[i]
+        inputs[i] = used
+        if isinstance(result, str):
+            notes[i] = f"not simulated: {result}"
+            continue
+        before, after = result
         for k in METRIC_KEYS:
             cols[f"before_{k}"][i] = before.metrics[k]
             cols[f"after_{k}"][i] = after.metrics[k]
@@ -81,8 +220,16 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules) -> tuple[
         power[i] = after.power_w
         meets[i] = after.meets
         violations[i] = "; ".join(after.violations)
-        notes[i] = ("assumed " + ", ".join(assumed) + " (rules [waveform])") if assumed else ""
+        lossy[i] = has_loss
+        loss_note = (f"simulated with loss ({loss_db:.2f} dB at {f0 * 1e-9:.3g} GHz)" if has_loss
+                     else "simulated lossless (no loss data)")
+        notes[i] = loss_note + ("; assumed " + ", ".join(assumed) + f" ({RULES_SRC})" if assumed else "")
         waves[net] = (before.wave, after.wave, before.metrics["v_final"] if before.wave else None)
+    for i, j in partners:
+        for c in cols:
+            cols[c][i] = cols[c][j]
+        for a in copy_cols:
+            a[i] = a[j]
     out = nets.copy()
     for c, v in cols.items():
         out[c] = v
@@ -92,6 +239,8 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules) -> tuple[
     out["waveform_meets_limits"] = meets
     out["waveform_violations"] = violations
     out["waveform_assumptions"] = notes
+    out["waveform_loss"] = lossy
+    out["waveform_inputs"] = inputs
     worst = out.loc[order].sort_values("before_overshoot_pct", ascending=False)
     keep, seen = [], set()
     for net, pair in zip(worst["net"], worst["pair"]):

@@ -47,7 +47,8 @@ def test_wave_json(run):
     for key in ("v_final", "v_max", "overshoot_pct", "ringback", "settle_ns", "flight_ns"):
         assert key in d
     # series-matched (15 + 35 = 50 ohm) into an open end: a clean full step at the receiver
-    assert d["overshoot_pct"] == pytest.approx(0.0, abs=0.01)
+    # (within the engine's sampling error at the ramp's kinks, 0.25 % of the swing; see line_network.py)
+    assert d["overshoot_pct"] == pytest.approx(0.0, abs=0.3)
     assert d["v_final"] == pytest.approx(3.3)
     assert d["flight_ns"] == pytest.approx(1.0, abs=0.02)
 
@@ -101,3 +102,115 @@ def test_wave_thevenin_equals_its_equivalent(run):
     b = json.loads(run(*base, "--end-ohm", "50", "--end-volts", "1.65V")[1])
     assert a["v_final"] == pytest.approx(b["v_final"]) and a["v_max"] == pytest.approx(b["v_max"])
     assert a["v_final"] == pytest.approx((3.3 / 15 + 1.65 / 50) / (1 / 15 + 1 / 50))   # DC divider
+
+
+WAVE = ["wave", "--z0", "50", "--delay", "1ns", "--driver-ohm", "15", "--swing", "3.3V", "--rise", "0.3ns",
+        "--series-ohm", "35", "--json"]
+
+
+def test_wave_loss_options(run):
+    lossless = json.loads(run(*WAVE)[1])
+    assert lossless["loss_included"] is False
+    code, out, err = run(*WAVE, "--loss", "4dB@1GHz")
+    assert code == 0, err
+    lossy = json.loads(out)
+    assert lossy["loss_included"] is True
+    line = lossy["lines"][0]
+    assert line["dielectric_share"] == 0.5 and line["rdc_ohm"] == 0.0
+    # low-loss line (any transmission-line text): 2 dB of conductor loss is R = 2 Z0 alpha l; 2 dB of
+    # dielectric loss is tan d = alpha l / (pi f TD)
+    np_half = 2.0 / (20.0 / 2.302585092994046)
+    assert line["r_ac_ohm"] == pytest.approx(2 * 50 * np_half, rel=1e-9)
+    assert line["tan_delta"] == pytest.approx(np_half / (3.141592653589793 * 1e9 * 1e-9), rel=1e-9)
+    # a lossy line slows and rounds the edge: later 50 % point, later settling, no overshoot beyond the lossless one
+    assert lossy["flight_ns"] > lossless["flight_ns"]
+    assert lossy["settle_ns"] > lossless["settle_ns"]
+    assert lossy["v_max"] <= lossless["v_max"] + 1e-3
+    # a DC resistance with a resistive end: the divider (exact at DC)
+    code, out, err = run(*WAVE, "--loss", "4dB@1GHz", "--rdc", "5", "--end-ohm", "100")
+    assert json.loads(out)["v_final"] == pytest.approx(3.3 * 100 / (15 + 35 + 5 + 100), rel=1e-6)
+
+
+def test_wave_loss_per_line_and_errors(run):
+    chain = ["wave", "--z0", "50", "--delay", "0.5ns", "--z0", "60", "--delay", "0.3ns", "--driver-ohm", "25",
+             "--swing", "1.8", "--rise", "200ps", "--json"]
+    code, out, err = run(*chain, "--loss", "2dB@2GHz", "--loss", "1dB@2GHz", "--dielectric-share", "0.3",
+                         "--dielectric-share", "0.7", "--rdc", "1")
+    assert code == 0, err
+    lines = json.loads(out)["lines"]
+    assert [l["dielectric_share"] for l in lines] == [0.3, 0.7] and [l["rdc_ohm"] for l in lines] == [1.0, 1.0]
+    code, out, err = run(*chain, "--loss", "2dB@2GHz")
+    assert code == 2 and "one --loss per --z0" in err
+    code, out, err = run(*chain, "--loss", "2dB", "--loss", "1dB@2GHz")
+    assert code == 2 and "DB@FREQ" in err
+    code, out, err = run(*chain, "--loss", "2dB@2GHz", "--loss", "1dB@2GHz", "--dielectric-share", "1.5")
+    assert code == 2 and "between 0 and 1" in err
+    code, out, err = run(*chain, "--rdc", "1")
+    assert code == 2 and "--loss" in err
+    code, out, err = run(*WAVE[:-1], "--rise", "1fs")
+    assert code == 2 and "1 ps" in err
+
+
+def test_review_simulates_every_flagged_net_with_loss(run, board, tmp_path):
+    rows = ["net,layer,length,width,rise_time,driver_ohm"]
+    rows += [f"D{i},L3,{80 + i}mm,0.15mm,300ps,{'' if i % 2 else 20}" for i in range(12)]
+    tr, st, rl = board("\n".join(rows) + "\n", rules="[waveform]\nmax_nets = 5\n")
+    js = tmp_path / "r.json"
+    code, stdout, err = run("review", tr, "--stackup", st, "--solver", "formula", "--json", js)
+    nets = json.loads(js.read_text())["nets"]
+    assert all(n["recommended_termination"] for n in nets)          # every one, no 500-net cap by default
+    for n in nets:
+        assert n["loss_included"] is True and "simulated with loss" in n["assumptions"]
+        sim = n["simulation"]
+        assert sim["loss"]["included"] and sim["loss"]["insertion_loss_db"] == pytest.approx(n["loss_db"], rel=1e-3)
+        assert sim["loss"]["dc_resistance_ohm"] > 0
+        assert sim["rise_time_ps"]["value"] == pytest.approx(300.0)
+        assert sim["rise_time_ps"]["source"].startswith("trace list")
+        i = int(n["net"][1:])
+        if i % 2:
+            assert sim["driver_ohm"] == {"value": 25.0, "source": "rules [waveform] driver_ohm"}
+        else:
+            assert sim["driver_ohm"] == {"value": 20.0, "source": "trace list"}
+        assert sim["load_pf"]["source"] == "rules [waveform] load_pf"
+    # the old max_nets key is still accepted and, when given, limits the check (the longest first)
+    code, stdout, err = run("review", tr, "--stackup", st, "--solver", "formula", "--json", js, "--rules", rl)
+    d = json.loads(js.read_text())
+    simulated = [n for n in d["nets"] if n["recommended_termination"]]
+    assert len(simulated) == 5 and min(n["length_mm"] for n in simulated) == pytest.approx(87.0, abs=0.01)
+    assert any(f["rule"] == "waveform" and "max_nets = 5" in f["message"] for f in d["findings"])
+
+
+def test_review_reports_a_net_it_cannot_simulate(run, board, tmp_path, monkeypatch):
+    # A simulation that would need more samples than allowed is refused with a message; the net keeps its
+    # first-order advice and the review says which and why (no crash, no memory blow-up).
+    from sicheck.physics import line_network
+    monkeypatch.setattr(line_network, "MAX_SAMPLES", 300)
+    tr, st = board(TRACES)
+    js = tmp_path / "r.json"
+    code, stdout, err = run("review", tr, "--stackup", st, "--solver", "formula", "--json", js)
+    assert code in (0, 1), err
+    d = json.loads(js.read_text())
+    clk = {n["net"]: n for n in d["nets"]}["CLK"]
+    assert clk["recommended_termination"] is None and clk["assumptions"].startswith("not simulated: ")
+    assert "time samples" in clk["assumptions"]
+    msgs = [f["message"] for f in d["findings"] if f["rule"] == "waveform"]
+    assert any("were not simulated" in m and "CLK could not be" in m for m in msgs)
+
+
+def test_process_pool_gives_the_same_review(run, board, tmp_path, monkeypatch):
+    # Large boards spread the nets over processes; the answers must not depend on it.
+    from sicheck import waveform_review
+    rows = ["net,layer,length,width,rise_time,driver_ohm,pair,gap"]
+    rows += [f"S{i},L3,{60 + 7 * i}mm,0.15mm,{200 + 50 * i}ps,{10 + 5 * i},," for i in range(8)]
+    rows += ["P_P,L3,120mm,0.1mm,200ps,,P_N,0.15mm"]
+    tr, st = board("\n".join(rows) + "\n")
+    out = {}
+    for label, n_workers, pool_min in (("serial", "1", 10 ** 6), ("pool", "2", 1)):
+        monkeypatch.setenv("SICHECK_WORKERS", n_workers)
+        monkeypatch.setattr(waveform_review, "POOL_MIN_NETS", pool_min)
+        js = tmp_path / f"{label}.json"
+        code, _, err = run("review", tr, "--stackup", st, "--solver", "formula", "--json", js)
+        assert code in (0, 1), err
+        out[label] = {n["net"]: n for n in json.loads(js.read_text())["nets"]}
+    assert out["serial"] == out["pool"]
+    assert all(n["recommended_termination"] for n in out["pool"].values())

@@ -22,7 +22,7 @@ PARAMS = (
           section="waveform", hi=1e6),
     Param("max_settle_ns", "number", None, "ns", "latest settling time accepted for the class", per_class=True,
           lo_open=False, hi=1e4),
-    Param("max_nets", "int", 500, "nets", "simulate at most this many nets (the longest first); the rest keep "
+    Param("max_nets", "int", None, "nets", "simulate at most this many nets (the longest first; unset: every net); the rest keep "
           "the first-order advice", section="waveform", hi=1e6),
 )
 
@@ -54,7 +54,12 @@ def waveform(ctx, chk):
     unsimulated = int((flagged["termination_part"] == "").sum())
     if unsimulated:
         n_max = ctx.param("max_nets")
-        yield chk.finding(f"{unsimulated} nets", "", f"the waveform check ran on the {n_max} longest of "
-                          f"{len(flagged)} nets that need termination; the others keep the first-order advice "
-                          "(raise [waveform] max_nets to simulate them all)", key=make_key(chk.id, "not-simulated"),
-                          value=float(unsimulated), limit=float(n_max), unit="nets", severity="info")
+        failed = flagged[flagged["waveform_assumptions"].astype(str).str.startswith("not simulated")]
+        why = ([f"[waveform] max_nets = {n_max} limits the check to the longest nets"]
+               if n_max is not None and len(flagged) > n_max else [])
+        why += [f"{r.net} could not be: {r.waveform_assumptions[len('not simulated: '):]}"
+                for r in failed.head(3).itertuples()] + ([f"and {len(failed) - 3} more"] if len(failed) > 3 else [])
+        yield chk.finding(f"{unsimulated} nets", "", f"{unsimulated} of {len(flagged)} nets that need termination "
+                          "were not simulated and keep the first-order advice (" + "; ".join(why) + ")",
+                          key=make_key(chk.id, "not-simulated"), value=float(unsimulated),
+                          limit=None if n_max is None else float(n_max), unit="nets", severity="info")

@@ -1,4 +1,4 @@
-"""Choosing a termination by simulating each standard scheme (see transient.py).
+"""Choosing a termination by simulating each standard scheme (engine: line_network.py).
 
 Candidates, with values from IEC 60063 series:
   none        the net as it is
@@ -10,18 +10,26 @@ Candidates, with values from IEC 60063 series:
 The recommendation is the candidate that meets the limits (overshoot, ringback,
 settling) at the least static power; among equals, the one that settles first.
 Static power is the DC power in the driver and termination, averaged over the high
-and low states. Segments shorter than Tr/10 are folded into their neighbours first
-(transient.merge_short).
+and low states. The schemes are simulated in stages, each stage's candidates together in
+one vectorised run: the net as it is with the series values; then the RC values; then the
+parallel and Thevenin values. A later stage runs only when nothing so far meets the limits
+(a series part or an RC costs no static power, so nothing later could beat one that meets).
+Every segment is kept with its exact delay (and its loss, when given).
 """
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from typing import Sequence
+
 from sicheck.physics import eseries
-from sicheck.physics.transient import Load, merge_short, simulate, thevenin
+from sicheck.physics.causal_line import Line, LineLoss
+from sicheck.physics.line_network import Network, settle_window, simulate_network
+from sicheck.physics.transient import RAMP_PER_RISE, Load, LoadSet, thevenin
 
 
 @dataclass(frozen=True)
@@ -46,14 +54,15 @@ class Candidate:
     wave: tuple | None = None      # (t, v) decimated, for charts
 
 
-def _neighbours(value: float, series: str = "E24", spread: int = 1) -> list[float]:
+@functools.lru_cache(maxsize=4096)
+def _neighbours(value: float, series: str = "E24", spread: int = 1) -> tuple[float, ...]:
     mant = eseries.SERIES[series]
     base = eseries.nearest(value, series)
     decade = int(np.floor(np.log10(base) + 1e-12))
     all_vals = [m * 10.0**d for d in (decade - 1, decade, decade + 1) for m in mant]
     all_vals = sorted(set(round(v, 12 - decade) for v in all_vals))
     i = min(range(len(all_vals)), key=lambda k: abs(all_vals[k] - base))
-    return [all_vals[j] for j in range(max(0, i - spread), min(len(all_vals), i + spread + 1))]
+    return tuple(all_vals[j] for j in range(max(0, i - spread), min(len(all_vals), i + spread + 1)))
 
 
 def _power_parallel(swing, rs, r, vt):
@@ -68,17 +77,23 @@ def _power_thevenin(swing, rs, r1, r2):
     return 0.5 * tot
 
 
+def _settle_limit_ns(td_total: float, rise: float, limits: Limits) -> float:
+    if limits.max_settle_ns is not None:
+        return limits.max_settle_ns
+    return (td_total + rise / 0.8 + limits.settle_rise_times * rise) * 1e9
+
+
 def _evaluate(c: Candidate, td_total: float, rise: float, limits: Limits) -> None:
     m = c.metrics
-    settle_limit = limits.max_settle_ns
-    if settle_limit is None:
-        settle_limit = (td_total + rise / 0.8 + limits.settle_rise_times * rise) * 1e9
+    settle_limit = _settle_limit_ns(td_total, rise, limits)
     v = []
     if m["overshoot_pct"] > limits.max_overshoot_pct:
         v.append(f"overshoot {m['overshoot_pct']:.0f} % > {limits.max_overshoot_pct:g} %")
     if m["ringback_pct"] > limits.max_ringback_pct:
         v.append(f"ringback {m['ringback_pct']:.0f} % > {limits.max_ringback_pct:g} %")
-    if m["settle_ns"] > settle_limit or not m["settled_in_window"]:
+    if not m["settled_in_window"]:
+        v.append(f"not settled within the {m['window_ns']:.2f} ns simulated (limit {settle_limit:.2f} ns)")
+    elif m["settle_ns"] > settle_limit:
         v.append(f"settles at {m['settle_ns']:.2f} ns > {settle_limit:.2f} ns")
     c.violations = v
     c.meets = not v
@@ -89,58 +104,88 @@ def _decimate(wf, n=160):
     return wf.t[idx], wf.v_rx[idx]
 
 
-def choose(z: list[float], td: list[float], rise: float, driver_ohm: float, swing: float, load_cap: float,
-           limits: Limits, zdiff: float | None = None, keep_waves: bool = False) -> tuple[Candidate, Candidate,
-                                                                                           list[Candidate]]:
-    """(unterminated, recommended, all candidates) for one net."""
-    z, td = merge_short(z, td, rise / 10.0)
+def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: float, swing: float, load_cap: float,
+           limits: Limits, zdiff: float | None = None, keep_waves: bool = False,
+           losses: Sequence[LineLoss | None] | None = None) -> tuple[Candidate, Candidate, list[Candidate]]:
+    """(unterminated, recommended, all candidates simulated) for one net: a chain of lines, driver end first.
+
+    ``losses``: one LineLoss (or None for a lossless section) per line; None: all lossless.
+    For a pair, z are the odd-mode impedances and swing is one leg's.
+    """
+    if losses is None:
+        losses = [None] * len(z)
+    if not (len(z) == len(td) == len(losses)) or not len(z):
+        raise ValueError("need one impedance, delay and loss entry per line")
+    net, end = Network.chain([Line(float(a), float(b), l) for a, b, l in zip(z, td, losses)])
     td_total = float(sum(td))
     cands: list[Candidate] = []
 
-    def run(scheme, text, rs, load, power, **kw):
-        wf = simulate(z, td, swing, rise, rs, load)
-        c = Candidate(scheme, text, wf.metrics, power, **kw)
-        if keep_waves:
-            c.wave = _decimate(wf)
-        _evaluate(c, td_total, rise, limits)
-        cands.append(c)
-        return c
+    ramp = rise * RAMP_PER_RISE
 
+    def window(specs):
+        rs = np.array([sp[2] for sp in specs], dtype=float)
+        return float(settle_window(net, rs, {end: LoadSet.of([sp[3] for sp in specs])}, ramp).max())
+
+    def stage(specs, t_end=None):
+        """specs: (scheme, text, r_source, Load, power, extra fields); simulated together."""
+        if not specs:
+            return []
+        rs = np.array([sp[2] for sp in specs], dtype=float)
+        res = simulate_network(net, [end], swing, rise, rs, {end: LoadSet.of([sp[3] for sp in specs])},
+                               t_end=t_end)[end]
+        out = []
+        for sp, wf in zip(specs, res):
+            c = Candidate(sp[0], sp[1], wf.metrics, sp[4], **sp[5])
+            if keep_waves:
+                c.wave = _decimate(wf)
+            _evaluate(c, td_total, rise, limits)
+            out.append(c)
+        return out
+
+    base = ("none", "unterminated", driver_ohm, Load(cap=load_cap), 0.0, {})
     if zdiff is not None:
         # odd mode: each leg sees Zodd; the differential resistor is R/2 from each leg to the centre
-        none = run("none", "unterminated", driver_ohm, Load(cap=load_cap), 0.0)
-        for r in _neighbours(zdiff):
-            run("differential", f"{r:g} ohm across the receiver", driver_ohm, Load(cap=load_cap, end_ohm=r / 2),
-                (swing * 2) ** 2 / (r + 2 * driver_ohm), end_ohm=r)
-        return none, _pick(cands, none), cands
+        specs = [base] + [("differential", f"{r:g} ohm across the receiver", driver_ohm,
+                           Load(cap=load_cap, end_ohm=r / 2), (swing * 2) ** 2 / (r + 2 * driver_ohm), {"end_ohm": r})
+                          for r in _neighbours(zdiff)]
+        cands = stage(specs)
+        return cands[0], _pick(cands, cands[0]), cands
 
-    z_drv, z_end = z[0], z[-1]
-    none = run("none", "unterminated", driver_ohm, Load(cap=load_cap), 0.0)
-    if none.meets:
-        return none, none, cands
-    zero_power = []
+    z_drv, z_end = float(z[0]), float(z[-1])
     ideal = z_drv - driver_ohm
-    if ideal >= 1.0:
-        for r in _neighbours(ideal):
-            zero_power.append(run("series", f"{r:g} ohm in series at the driver", driver_ohm + r, Load(cap=load_cap),
-                                  0.0, series_ohm=r))
-    if any(c.meets for c in zero_power):      # a series part costs no power: no need to try more
+    series = [("series", f"{r:g} ohm in series at the driver", driver_ohm + r, Load(cap=load_cap), 0.0,
+               {"series_ohm": r}) for r in (_neighbours(ideal) if ideal >= 1.0 else [])]
+    vt = swing / 2.0
+    r2 = eseries.nearest(2.0 * z_end)
+    req, veq = thevenin(r2, r2, swing)
+    ends = ([("parallel", f"{r:g} ohm to {vt:g} V at the receiver", driver_ohm,
+              Load(cap=load_cap, end_ohm=r, end_volts=vt), _power_parallel(swing, driver_ohm, r, vt),
+              {"end_ohm": r}) for r in _neighbours(z_end, spread=1)]
+            + [("thevenin", f"{r2:g} ohm to the supply and {r2:g} ohm to ground at the receiver", driver_ohm,
+                Load(cap=load_cap, end_ohm=req, end_volts=veq), _power_thevenin(swing, driver_ohm, r2, r2),
+                {"end_ohm": r2})])
+    # the first and last stages share one window, so the last reuses the first's line two-ports
+    shared = window([base] + series + ends)
+    first = stage([base] + series, shared)
+    none = first[0]
+    if none.meets:
+        return none, none, [none]
+    cands = list(first)
+    if any(c.meets for c in first[1:]):      # a series part costs no power: no need to try more
         return none, _pick(cands, none), cands
     r_end = eseries.nearest(z_end)
     c_min = 3.0 * 2.0 * td_total / r_end
-    for cval in _neighbours(c_min, "E12", 1)[1:]:
-        zero_power.append(run("rc", f"{r_end:g} ohm + {cval * 1e12:g} pF to ground at the receiver", driver_ohm,
-                              Load(cap=load_cap, end_ohm=r_end, end_cap=cval), 0.0, end_ohm=r_end, end_cap=cval))
-    if any(c.meets for c in zero_power):
+    rc_specs = [("rc", f"{r_end:g} ohm + {cval * 1e12:g} pF to ground at the receiver", driver_ohm,
+                 Load(cap=load_cap, end_ohm=r_end, end_cap=cval), 0.0, {"end_ohm": r_end, "end_cap": cval})
+                for cval in _neighbours(c_min, "E12", 1)[1:]]
+    # An RC's capacitor charges for several of its time constants; pass or fail is decided by the
+    # settling limit, so the window stops at four times it (a later settling is reported as not
+    # settled within the window) and both values share it.
+    rc = stage(rc_specs, min(window(rc_specs), 4e-9 * _settle_limit_ns(td_total, rise, limits)))
+    cands += rc
+    if any(c.meets for c in rc):
         return none, _pick(cands, none), cands
-    vt = swing / 2.0
-    for r in _neighbours(z_end, spread=1):
-        run("parallel", f"{r:g} ohm to {vt:g} V at the receiver", driver_ohm, Load(cap=load_cap, end_ohm=r, end_volts=vt),
-            _power_parallel(swing, driver_ohm, r, vt), end_ohm=r)
-    r2 = eseries.nearest(2.0 * z_end)
-    req, veq = thevenin(r2, r2, swing)
-    run("thevenin", f"{r2:g} ohm to the supply and {r2:g} ohm to ground at the receiver", driver_ohm,
-        Load(cap=load_cap, end_ohm=req, end_volts=veq), _power_thevenin(swing, driver_ohm, r2, r2), end_ohm=r2)
+    cands += stage(ends, shared)
     return none, _pick(cands, none), cands
 
 
@@ -150,5 +195,6 @@ def _pick(cands: list[Candidate], none: Candidate) -> Candidate:
         return min(ok, key=lambda c: (round(c.power_w, 6), c.metrics["settle_ns"]))
     # nothing meets the limits: the terminated candidate with the fewest and mildest violations
     terminated = [c for c in cands if c.scheme != "none"] or [none]
-    return min(terminated, key=lambda c: (len(c.violations), c.metrics["overshoot_pct"] + c.metrics["ringback_pct"]
-                                          + c.metrics["settle_ns"]))
+    # (an undershoot, v_max below v_final, counts as no overshoot: it is not a merit)
+    return min(terminated, key=lambda c: (len(c.violations), max(c.metrics["overshoot_pct"], 0.0)
+                                          + c.metrics["ringback_pct"] + c.metrics["settle_ns"]))

@@ -99,8 +99,15 @@ def nets_json(nets) -> list[dict]:
             d["termination_power_mw"] = _num(r.termination_power_w * 1e3, 4)
             if r.waveform_assumptions:
                 d["assumptions"] = r.waveform_assumptions
+            d["loss_included"] = bool(r.waveform_loss)
         else:
             d["recommended_termination"] = None
+            note = getattr(r, "waveform_assumptions", "")
+            if isinstance(note, str) and note:
+                d["assumptions"] = note
+        inputs = getattr(r, "waveform_inputs", None)
+        if isinstance(inputs, dict):
+            d["simulation"] = inputs      # every value the waveform simulation used, with its source
     return out
 
 

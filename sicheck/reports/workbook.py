@@ -338,7 +338,7 @@ def _waveforms(wb: Workbook, rv: Review):
     row = 1
     charts = []
     note = WriteOnlyCell(ws, value="Receiver voltage of the nets with the largest unterminated overshoot, "
-                                   "without and with the simulated termination (method of characteristics).")
+                                   "without and with the simulated termination (frequency-domain simulation, with loss).")
     note.font = BOLD
     ws.append([note])
     row += 1
