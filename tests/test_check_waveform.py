@@ -37,4 +37,4 @@ def test_waveform_off():
 
 def test_waveform_param_max_nets_in_note():
     note = _run(_ctx(True, rules(max_nets=1)))[0]
-    assert "ran on the 1 longest of 2 nets" in note.message and note.limit == 1 and note.value == 1
+    assert "1 of 2 nets that need termination were not simulated" in note.message and "max_nets = 1" in note.message and note.limit == 1 and note.value == 1

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import pandas as pd
+
 from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label
 from sicheck.checks.length import lines_longest_first, simulated
 from sicheck.checks.loss import first_rows
@@ -54,7 +56,8 @@ def waveform(ctx, chk):
     unsimulated = int((flagged["termination_part"] == "").sum())
     if unsimulated:
         n_max = ctx.param("max_nets")
-        failed = flagged[flagged["waveform_assumptions"].astype(str).str.startswith("not simulated")]
+        notes = flagged["waveform_assumptions"] if "waveform_assumptions" in flagged else pd.Series("", index=flagged.index)
+        failed = flagged[notes.astype(str).str.startswith("not simulated")]
         why = ([f"[waveform] max_nets = {n_max} limits the check to the longest nets"]
                if n_max is not None and len(flagged) > n_max else [])
         why += [f"{r.net} could not be: {r.waveform_assumptions[len('not simulated: '):]}"
