@@ -62,7 +62,7 @@ def _microstrip(xs: list[CrossSection]) -> list[LineResult]:
         r = out[i]
         r.warnings += microstrip.validity_warnings(w[i], h[i], t[i], er[i])
         if x.coupled:
-            r.warnings += coupled_microstrip.validity_warnings(w[i], h[i], s[i], er[i])
+            r.warnings += coupled_microstrip.validity_warnings(w[i], h[i], s[i], er[i], t[i])
         if len(x.below) > 1 and len({st.er for st in x.below}) > 1:
             r.warnings.append("stratified substrate: closed form uses one equivalent er (series average)")
         if len(x.above) > 1 or (x.above and not x.above[0].conformal):
