@@ -126,6 +126,22 @@ def kirschning_jansen(w, h, t, s, er):
     return 1.0 / (C0 * np.sqrt(ce * cea)), 1.0 / (C0 * np.sqrt(co * coa)), ce / cea, co / coa
 
 
+def lined_gap(z_odd, eps_odd, t, s, c, er_c):
+    """Odd mode of a pair whose gap side walls carry a conformal mask of thickness c (er_c).
+
+    The side-wall plate 2 eps0 t / s of ``jansen_thickness_increments`` becomes mask, air and
+    mask in series, 2 eps0 t / (s - 2c + 2c / er_c) (the gap is full of mask when 2c >= s);
+    the difference is added to the mode's capacitance, not to its capacitance in air.
+    Returns (z_odd, eps_odd).
+    """
+    z_odd, eps_odd, t, s, c, er_c = (np.asarray(x, dtype=float) for x in (z_odd, eps_odd, t, s, c, er_c))
+    lining = np.minimum(2.0 * c, s)
+    extra = 2.0 * EPS0 * t * (1.0 / (s - lining + lining / er_c) - 1.0 / s)
+    cap, cap_air = _caps(z_odd, eps_odd)
+    cap = cap + extra
+    return 1.0 / (C0 * np.sqrt(cap * cap_air)), cap / cap_air
+
+
 def validity_warnings(w, h, s, er, t=0.0) -> list[str]:
     out = []
     u, g, th = float(w) / float(h), float(s) / float(h), float(t) / float(h)
