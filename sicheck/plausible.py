@@ -35,7 +35,7 @@ RANGES: dict[str, Range] = {
                        lo_open=True),
     "huray_radius": Range(0.0, 10e-6, "m", "snowball radii are about 0.1-1 um", lo_open=True),
     "huray_ratio": Range(0.0, 50.0, "", "ball surface per flat area is about 1-15", lo_open=True),
-    "frequency": Range(1e3, 1e12, "Hz", "1 kHz to 1 THz"),
+    "frequency": Range(1e3, 1e12, "Hz", "the span of the wideband dielectric model (Djordjevic-Sarkar poles)"),
     # trace list and command-line geometry
     "length": Range(0.0, 3.0, "m", "a routed segment on a board is shorter than 3 m", lo_open=True),
     "width": Range(10e-6, 25e-3, "m", "10 um (finer than any board process) to 25 mm"),

@@ -102,3 +102,10 @@ def test_range_check_accepts_exactly_its_interval(q, x):
     assert (msg is None) == inside
     if msg is not None:
         assert isinstance(msg, str) and msg
+
+
+def test_readme_range_table_matches_the_code():
+    from pathlib import Path
+    readme = (Path(__file__).parent.parent / "README.md").read_text(encoding="utf-8")
+    for q, lo, hi, why in plausible.describe():
+        assert f"| {q} | {lo} | {hi} | {why} |" in readme, q
