@@ -160,5 +160,6 @@ def validity_warnings(w, h, s, er, t=0.0) -> list[str]:
         if outside:
             rng = ", ".join(f"{k} {a:g}..{b:g}" for k, (a, b) in THICK_RANGE.items())
             out.append(f"strip-thickness correction for the pair used outside the range where it was checked "
-                       f"against the field solver ({', '.join(outside)}; checked: {rng}; Zdiff within 1.5 % there; use the field solver)")
+                       f"against the field solver ({', '.join(outside)}; checked: {rng}; Zdiff within 1.5 % "
+                       "there; use the field solver)")
     return out
