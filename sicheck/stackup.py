@@ -213,11 +213,14 @@ def parse_stackup(data: dict, raw: str, src: str) -> Stackup:
     names: set[str] = set()
     unnamed: list[int] = []
     for i, lr in enumerate(layers_raw):
-        start = block_starts[i] if i < len(block_starts) else 0
-        end = block_ends[i] if i < len(block_ends) else len(text_lines)
+        if i < len(block_starts):
+            start, end = block_starts[i], block_ends[i]
+        else:   # an inline array (layers = [...]): point at its key
+            start = (_key_line(text_lines, 0, head_end, "layers") or 1) - 1
+            end = len(text_lines)
 
         def fail(msg, key=None, _s=start, _e=end, _i=i):
-            line = _key_line(text_lines, _s, _e, key) if key else _s + 1
+            line = (_key_line(text_lines, _s, _e, key) if key else None) or _s + 1
             raise InputError(f"layer {_i + 1}: {msg}", file=src, line=line, key=key)
 
         if not isinstance(lr, dict):

@@ -66,3 +66,11 @@ def test_named_dielectrics_keep_their_names(tmp_path):
     p = tmp_path / "s.toml"
     p.write_text(FOUR_LAYER.replace('kind = "core"', 'kind = "core"\nname = "core 2"', 1), encoding="utf-8")
     assert "core 2" in [l.name for l in load_stackup(p).layers]
+
+
+def test_inline_layers_that_are_not_tables_point_at_the_key(tmp_path):
+    p = tmp_path / "s.toml"
+    p.write_text('name = "x"\n\nlayers = [1, 2]\n', encoding="utf-8")
+    with pytest.raises(InputError) as ei:
+        load_stackup(p)
+    assert ei.value.line == 3 and "table" in ei.value.message
