@@ -23,6 +23,8 @@ from sicheck.physics.formula import solve_formula
 H = 0.2e-3
 SWEEP = [(u, g, th, 4.0) for u in (0.4, 2.0) for g in (0.25, 0.8, 2.6) for th in (0.1, 0.25)]
 SWEEP += [(1.2, 0.4, 0.2, 2.8), (0.8, 1.2, 0.12, 8.0)]
+# corners of the checked range, and wide gaps (no warning there: the pair tends to two single lines)
+SWEEP += [(0.3, 0.2, 0.3, 10.0), (0.3, 3.0, 0.3, 2.0), (3.0, 6.0, 0.3, 4.0), (0.3, 8.0, 0.3, 10.0)]
 
 
 @pytest.mark.parametrize("u,g,th,er", SWEEP)
