@@ -13,7 +13,8 @@ skin effect", Proc. IRE 30, 1942): R = (Rs / mu0) dL/dn, with dL/dn the change o
 line's inductance when every conductor wall recedes by n. With L = Z0_air / c,
 alpha_c = Rs / (2 Z0 eta0) * dZ0_air/dn [Np/m], evaluated by a central difference.
 Dielectric loss: G = omega sum_i tan(d_i) C_i with C_i the part of the capacitance in
-dielectric i (field solver) or the quasi-TEM filling factor (closed forms):
+dielectric i (field solver) or the quasi-TEM filling factors of the substrate and of a cover
+(closed forms, covered_microstrip_tand_eff):
 alpha_d = G Z0 / 2 = pi f sqrt(eps_eff) tan(d_eff) / c [Np/m].
 Both are low-loss (first-order) results. 1 Np = 20/ln(10) dB = 8.686 dB.
 """
