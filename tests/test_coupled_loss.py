@@ -113,4 +113,4 @@ def test_field_path_counts_the_mask_loss(run):
 def test_mask_loss_tangent_needs_a_mask(run):
     code, _, err = run("line", "microstrip", "--width", "5mil", "--height", "5mil", "--thickness", "1.4mil",
                        "--er", "4", "--mask-loss-tangent", "0.02")
-    assert code == 2 and "--mask-loss-tangent" in err
+    assert code == 2 and "--mask-loss-tangent needs a mask" in err
