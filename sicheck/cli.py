@@ -115,6 +115,8 @@ def line(
     freq: Optional[str] = typer.Option(None, "--freq", help="Frequency for loss per length, e.g. 5GHz (--er and "
                                                             "--loss-tangent are taken as they are there)."),
     loss_tangent: Optional[float] = typer.Option(None, "--loss-tangent", help="Loss tangent of the dielectric."),
+    mask_loss_tangent: Optional[float] = typer.Option(None, "--mask-loss-tangent",
+                                                      help="Loss tangent of the solder mask (default 0)."),
     roughness: Optional[str] = typer.Option(None, "--roughness", help="RMS copper roughness (Hammerstad-Jensen)."),
     huray_radius: Optional[str] = typer.Option(None, "--huray-radius", help="Huray model: copper ball radius."),
     huray_ratio: Optional[float] = typer.Option(None, "--huray-ratio", help="Huray model: ball surface per flat "
@@ -126,7 +128,8 @@ def line(
     from sicheck.line_cmd import run_line
     run_line(kind.value, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er,
              length, solver, units, as_json, etch_factor=etch_factor, top_width=top_width, plot=plot, freq=freq,
-             loss_tangent=loss_tangent, roughness=roughness, huray_radius=huray_radius, huray_ratio=huray_ratio)
+             loss_tangent=loss_tangent, roughness=roughness, huray_radius=huray_radius, huray_ratio=huray_ratio,
+             mask_loss_tangent=mask_loss_tangent)
 
 
 @app.command()

@@ -8,13 +8,14 @@ from dataclasses import replace
 
 import numpy as np
 
+from sicheck import plausible
 from sicheck.errors import InputError
 from sicheck.physics.cross_section import CrossSection, Stratum
 from sicheck.physics.line_result import LineResult, per_length
 from sicheck.units import UnitError, option_frequency, parse_quantity
 
 
-def _len(value: str | None, option: str, units: str) -> float | None:
+def _len(value: str | None, option: str, units: str, quantity: str = "height") -> float | None:
     if value is None:
         return None
     try:
@@ -23,12 +24,20 @@ def _len(value: str | None, option: str, units: str) -> float | None:
         raise InputError(f"{option}: {e}") from None
     if not v > 0:
         raise InputError(f"{option} must be positive (got {value})")
+    if bad := plausible.check(quantity, v):
+        raise InputError(f"{option} {value}: {bad}")
     return v
 
 
 def _er(value: float | None, option: str) -> float | None:
-    if value is not None and not 1.0 <= value <= 100.0:
-        raise InputError(f"{option} must be from 1 to 100 (got {value:g})")
+    if value is not None and (bad := plausible.check("er", value)):
+        raise InputError(f"{option}: {bad}")
+    return value
+
+
+def _tand(value: float | None, option: str) -> float | None:
+    if value is not None and (bad := plausible.check("loss_tangent", value)):
+        raise InputError(f"{option}: {bad}")
     return value
 
 
@@ -47,7 +56,7 @@ def build_cross_section(kind, width, thickness, er, height, below, above, er_bel
             raise InputError("--etch-factor leaves no top face: the undercut exceeds half the width")
         xs = replace(xs, top_width=tw)
     if top_width is not None:
-        tw = _len(top_width, "--top-width", units)
+        tw = _len(top_width, "--top-width", units, "width")
         if tw > xs.width:
             raise InputError("--top-width is wider than --width (the bottom face)")
         xs = replace(xs, top_width=tw)
@@ -59,18 +68,20 @@ def _build(kind, width, thickness, er, height, below, above, er_below, er_above,
     from sicheck.units import LENGTH
     if units not in LENGTH:
         raise InputError(f"--units must be a length unit such as mm, um, mil or in (got '{units}')")
-    w = _len(width, "--width", units)
+    w = _len(width, "--width", units, "width")
     try:
         t = parse_quantity(thickness, "length", units)
     except UnitError as e:
         raise InputError(f"--thickness: {e}") from None
     if t < 0:
         raise InputError("--thickness must not be negative")
+    if t > 0 and (bad := plausible.check("copper_thickness", t)):
+        raise InputError(f"--thickness {thickness}: {bad} (0 means an infinitely thin strip)")
     h = _len(height, "--height", units)
     b = _len(below, "--below", units)
     a = _len(above, "--above", units)
-    s = _len(gap, "--gap", units)
-    m = _len(mask, "--mask", units)
+    s = _len(gap, "--gap", units, "gap")
+    m = _len(mask, "--mask", units, "mask_thickness")
     e_dflt = _er(er, "--er")
     e_b = _er(er_below, "--er-below") or e_dflt
     e_a = _er(er_above, "--er-above") or e_dflt
@@ -171,29 +182,35 @@ def line_loss(xs: CrossSection, r: LineResult, solver: str, freq: float, rough) 
 
 def run_line(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er, length,
              solver, units, as_json, etch_factor=None, top_width=None, plot=None, freq=None, loss_tangent=None,
-             roughness=None, huray_radius=None, huray_ratio=None) -> None:
+             roughness=None, huray_radius=None, huray_ratio=None, mask_loss_tangent=None) -> None:
     xs = build_cross_section(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask,
                              mask_er, units, etch_factor, top_width)
+    _tand(loss_tangent, "--loss-tangent")
+    _tand(mask_loss_tangent, "--mask-loss-tangent")
+    if mask_loss_tangent is not None and not any(s.conformal for s in xs.above):
+        raise InputError("--mask-loss-tangent needs a mask (--mask and --mask-er)")
     if loss_tangent is not None:
-        if not 0 <= loss_tangent < 1:
-            raise InputError("--loss-tangent must be from 0 to 1")
         xs = replace(xs, below=tuple(replace(s, loss_tangent=loss_tangent) for s in xs.below),
                      above=tuple(s if s.conformal else replace(s, loss_tangent=loss_tangent) for s in xs.above))
+    if mask_loss_tangent is not None:
+        xs = replace(xs, above=tuple(replace(s, loss_tangent=mask_loss_tangent) if s.conformal else s
+                                     for s in xs.above))
     f_hz = None if freq is None else option_frequency(freq, "--freq")
     from sicheck.physics.line_loss import Roughness
     if (huray_radius is None) != (huray_ratio is None):
         raise InputError("Huray's model needs both --huray-radius and --huray-ratio")
-    if huray_ratio is not None and not 0 < huray_ratio < 100:
-        raise InputError("--huray-ratio must be a positive number (ball surface per flat area)")
+    if huray_ratio is not None and (bad := plausible.check("huray_ratio", huray_ratio)):
+        raise InputError(f"--huray-ratio (ball surface per flat area): {bad}")
     if roughness is not None and huray_radius is not None:
         raise InputError("give --roughness or the Huray options, not both")
-    rough = Roughness(rms=_len(roughness, "--roughness", units) if roughness else None,
-                      huray_radius=_len(huray_radius, "--huray-radius", units) if huray_radius else None,
+    rough = Roughness(rms=_len(roughness, "--roughness", units, "roughness") if roughness else None,
+                      huray_radius=_len(huray_radius, "--huray-radius", units, "huray_radius")
+                      if huray_radius else None,
                       huray_ratio=huray_ratio)
     if plot is not None:
         from sicheck.reports.atomic import refuse_inputs
         refuse_inputs(plot, [], "--plot")
-    ln = _len(length, "--length", units)
+    ln = _len(length, "--length", units, "length")
     r = solve_one(xs, solver)
     d = line_dict(xs, r, ln, units)
     if f_hz is not None:

@@ -92,18 +92,79 @@ def _formula_width(st, layer, target, what, rule, min_feature, h_scale) -> float
     return None
 
 
+def _zdiff_at(st, layer, solver, w, gap) -> float:
+    return float(solver([st.cross_section(layer, w, gap)])[0].zdiff)
+
+
+def gap_that_reaches(st: Stackup, layer: str, target: float, solver: Solver, min_feature: float,
+                     max_width: float, h_scale: float) -> tuple[float, float] | None:
+    """The smallest fixed gap with which a width from min_feature to max_width gives Zdiff = target.
+
+    Zdiff grows with the gap at any width and falls with the width at any gap, so the gap is
+    found by bisection (in log gap) on Zdiff at the narrowest width, with the chosen solver, and
+    the width then by ``synthesise``. None when no gap from min_feature to 10 h does it.
+    """
+    w_lo, w_hi = min_feature, max_width
+    g_lo, g_hi = min_feature, max(10.0 * h_scale, 4.0 * min_feature)
+    if _zdiff_at(st, layer, solver, w_lo, g_hi) < target:
+        return None                      # even the narrowest pair, loosely coupled, stays below the target
+    if _zdiff_at(st, layer, solver, w_lo, g_lo) < target:
+        for _ in range(10):
+            g_mid = math.sqrt(g_lo * g_hi)
+            if _zdiff_at(st, layer, solver, w_lo, g_mid) >= target:
+                g_hi = g_mid
+            else:
+                g_lo = g_mid
+        gap = math.ceil(g_hi * 1e6) * 1e-6          # whole micrometres, rounded towards reaching it
+    else:
+        gap = g_lo
+        if _zdiff_at(st, layer, solver, w_hi, gap) > target:
+            return None                  # the target needs a pair wider than max_width at any gap
+    t = synthesise(st, layer, target, "zdiff", solver, GapRule("fixed", gap), min_feature, max_width, suggest=False)
+    return None if t.width is None else (gap, t.width)
+
+
+def _unreachable(res: Target, st, layer, target, what, solver, rule, min_feature, max_width, h_scale,
+                 why: str) -> Target:
+    """Mark a target as not reached: no geometry is reported, the note says why and what would work."""
+    res.width = res.gap = res.achieved = res.error_pct = None
+    res.uncertainty_pct = res.eps_eff = res.delay_per_m = None
+    name = "Zdiff" if what == "zdiff" else "Z0"
+    msg = f"{name} {target:g} ohm cannot be reached on {layer}"
+    if what == "zdiff":
+        msg += f" with {rule.describe()}"
+    msg += f": {why}"
+    if what == "zdiff":
+        found = gap_that_reaches(st, layer, target, solver, min_feature, max_width, h_scale)
+        if found is not None:
+            g, w = found
+            msg += (f". A fixed gap of {g * 1e3:.3f} mm reaches it with width {w * 1e3:.4f} mm "
+                    f"(--gap-rule fixed:{g * 1e3:.3f}mm)")
+        else:
+            msg += (f". No gap from {min_feature * 1e3:g} to {10 * h_scale * 1e3:.3g} mm reaches it with a width "
+                    f"from {min_feature * 1e3:g} to {max_width * 1e3:g} mm: change the stackup or the target")
+    res.notes.append(msg)
+    return res
+
+
 def synthesise(st: Stackup, layer: str, target: float, what: str, solver: Solver, rule: GapRule,
-               min_feature: float, max_width: float) -> Target:
+               min_feature: float, max_width: float, suggest: bool = True) -> Target:
+    """Width (and gap) giving ``target``; when it cannot be reached, width is None and a note says why."""
     g = st.geometry(layer)
     h_scale = min(sum(s.thickness for s in g.below), sum(s.thickness for s in g.above) or 1.0)
     res = Target(layer=layer, kind=g.kind, what=what, target=target)
+    w_min = max(0.02 * h_scale, 0.5 * min_feature)
+    w_max = 30.0 * h_scale
+
+    def fail(why: str) -> Target:
+        if not suggest:
+            res.width = None
+            return res
+        return _unreachable(res, st, layer, target, what, solver, rule, min_feature, max_width, h_scale, why)
+
     w = _formula_width(st, layer, target, what, rule, min_feature, h_scale)
     if w is None:
-        hint = " (try another --gap-rule, e.g. fixed:<wider gap>)" if what == "zdiff" else ""
-        res.notes.append(f"no width from {0.5 * min_feature * 1e3:g} mm up gives {'Zdiff' if what == 'zdiff' else 'Z0'} "
-                         f"{target:g} ohm on {layer} with {rule.describe() if what == 'zdiff' else 'this stackup'}"
-                         f"{hint}")
-        return res
+        return fail(f"no width from {w_min * 1e3:.4g} to {w_max * 1e3:.4g} mm gives it (closed form)")
     pts: list[tuple[float, float]] = []
     r = None
     for step in range(MAX_STEPS):
@@ -121,19 +182,26 @@ def synthesise(st: Stackup, layer: str, target: float, what: str, solver: Solver
                                                              _make(st, layer, w * 1.02, what, rule, min_feature)]))
             slope = (math.log(z2) - math.log(z1)) / (math.log(1.02) - math.log(0.98))
         if not slope < 0:
-            res.notes.append("the impedance stops changing with width here (for a pair with gap = width, the side "
-                             "walls' coupling caps Zdiff): the target is out of reach; try a wider fixed gap")
-            break
-        w = math.exp(pts[-1][0] + (math.log(target) - pts[-1][1]) / slope)
+            break       # the impedance stops falling with width (a pair with gap = width: the side walls' coupling)
+        w_next = math.exp(pts[-1][0] + (math.log(target) - pts[-1][1]) / slope)
+        if not w_min <= w_next <= w_max:
+            break       # the solver would leave the widths where the target can lie
+        w = w_next
+    z = _z_of(r, what)
+    err = (z / target - 1.0) * 100.0
+    if abs(err) > 0.5:
+        best = min(pts, key=lambda p: abs(p[1] - math.log(target)))
+        why = f"the solver's closest was {math.exp(best[1]):.1f} ohm at width {math.exp(best[0]) * 1e3:.4f} mm"
+        if what == "zdiff" and rule.kind != "fixed":
+            why += " (as the gap narrows with the width, the side walls' coupling caps Zdiff)"
+        return fail(why)
     res.width = w
     res.gap = rule.gap_for(w, min_feature) if what == "zdiff" else None
-    res.achieved = _z_of(r, what)
-    res.error_pct = (res.achieved / target - 1.0) * 100.0
+    res.achieved = z
+    res.error_pct = err
     res.uncertainty_pct = r.uncertainty_pct
     res.eps_eff = r.signal_eps
     res.delay_per_m = float(per_length(r.signal_z, r.signal_eps)[2])
-    if abs(res.error_pct) > 0.5:
-        res.notes.append(f"reached {res.achieved:.2f} ohm ({res.error_pct:+.2f} %), outside 0.5 % of the target")
     if w < min_feature:
         res.notes.append(f"width {w * 1e3:.4f} mm is below the minimum feature {min_feature * 1e3:g} mm")
     if res.gap is not None and res.gap < min_feature * (1 - 1e-9):

@@ -6,6 +6,7 @@ import json
 import sys
 from pathlib import Path
 
+from sicheck import plausible
 from sicheck.errors import InputError
 from sicheck.units import UnitError, option_frequency, parse_quantity
 
@@ -49,8 +50,8 @@ def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str
     if not z0 and not zdiff:
         raise InputError("give at least one --z0 or --zdiff target")
     for v, opt in [(v, "--z0") for v in z0] + [(v, "--zdiff") for v in zdiff]:
-        if not 5.0 <= v <= 500.0:
-            raise InputError(f"{opt} {v:g} ohm is outside 5..500 ohm")
+        if bad := plausible.check("impedance", v):
+            raise InputError(f"{opt} {v:g} ohm: {bad}")
     rule = parse_gap_rule(gap_rule)
     f_hz = [option_frequency(f, "--freq") for f in freqs or ["1GHz"]]
     if solver not in ("field", "formula"):

@@ -13,6 +13,7 @@ import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
+from sicheck import plausible
 from sicheck.errors import InputError
 from sicheck.physics.cross_section import CrossSection, Stratum
 from sicheck.units import COPPER_OZ, UnitError, parse_quantity
@@ -26,7 +27,6 @@ LAYER_KEYS = {
     "dielectric": {"type", "name", "thickness", "er", "loss_tangent", "kind", "freq"},
 }
 BARE_UNITS = ("mm", "um", "mil", "in")
-MAX_LAYER_THICKNESS = 10e-3   # 10 mm: thicker than any board layer
 
 
 @dataclass(frozen=True)
@@ -201,17 +201,26 @@ def parse_stackup(data: dict, raw: str, src: str) -> Stackup:
         raise InputError(f"units must be one of {', '.join(BARE_UNITS)}", file=src,
                          line=_key_line(text_lines, 0, head_end, "units"), key="units")
     layers_raw = data.get("layers")
-    if not isinstance(layers_raw, list) or not layers_raw:
-        raise InputError("no [[layers]] given", file=src)
+    if "layers" in data and not isinstance(layers_raw, list):
+        raise InputError(f"layers must be a list of [[layers]] tables, one per layer, top to bottom "
+                         f"(got {type(layers_raw).__name__} {layers_raw!r:.40})", file=src,
+                         line=_key_line(text_lines, 0, head_end, "layers"), key="layers")
+    if not layers_raw:
+        raise InputError("no [[layers]] given: list the layers top to bottom, each as a [[layers]] table",
+                         file=src, line=_key_line(text_lines, 0, head_end, "layers"), key="layers")
 
     layers: list[Layer] = []
     names: set[str] = set()
+    unnamed: list[int] = []
     for i, lr in enumerate(layers_raw):
-        start = block_starts[i] if i < len(block_starts) else 0
-        end = block_ends[i] if i < len(block_ends) else len(text_lines)
+        if i < len(block_starts):
+            start, end = block_starts[i], block_ends[i]
+        else:   # an inline array (layers = [...]): point at its key
+            start = (_key_line(text_lines, 0, head_end, "layers") or 1) - 1
+            end = len(text_lines)
 
         def fail(msg, key=None, _s=start, _e=end, _i=i):
-            line = _key_line(text_lines, _s, _e, key) if key else _s + 1
+            line = (_key_line(text_lines, _s, _e, key) if key else None) or _s + 1
             raise InputError(f"layer {_i + 1}: {msg}", file=src, line=line, key=key)
 
         if not isinstance(lr, dict):
@@ -230,17 +239,21 @@ def parse_stackup(data: dict, raw: str, src: str) -> Stackup:
             if name.lower() in names:
                 fail(f"layer name '{name}' is used twice", "name")
             names.add(name.lower())
-        label = name or f"{ltype} {i + 1}"
+        label = name if name is not None and str(name).strip() else f"{ltype} {i + 1}"
+        if name is None or not str(name).strip():
+            unnamed.append(i)
 
         # thickness
         if "thickness" in lr and "copper" in lr:
             fail("give either thickness or copper, not both", "copper")
         if "copper" in lr:
+            th_key = "copper"
             m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+)\s*oz\s*", str(lr["copper"]))
             if not m:
                 fail(f"copper must be a weight such as '1oz' or '0.5oz' (got {lr['copper']!r})", "copper")
             thickness = float(m.group(1)) * COPPER_OZ
         elif "thickness" in lr:
+            th_key = "thickness"
             try:
                 thickness = parse_quantity(lr["thickness"], "length", units)
             except UnitError as e:
@@ -249,21 +262,28 @@ def parse_stackup(data: dict, raw: str, src: str) -> Stackup:
         else:
             fail("missing thickness" + (" or copper" if ltype in ("signal", "plane") else ""))
         if not thickness > 0:
-            fail(f"thickness must be positive (got {lr.get('thickness')!r})", "thickness")
-        if thickness > MAX_LAYER_THICKNESS:
-            fail(f"thickness {thickness * 1e3:g} mm is not a plausible layer", "thickness")
+            fail(f"{th_key} must be positive (got {lr[th_key]!r})", th_key)
+        quantity = {"signal": "copper_thickness", "plane": "copper_thickness", "mask": "mask_thickness",
+                    "dielectric": "dielectric_thickness"}[ltype]
+        bad = plausible.check(quantity, thickness)
+        if bad:
+            fail(f"{th_key} {lr[th_key]!r}: {bad}", th_key)
 
         er = None
         tand = 0.0
         if ltype in ("mask", "dielectric"):
             if "er" not in lr:
-                fail(f"{ltype} '{label}' needs er (relative permittivity)")
+                fail(f"this {ltype} layer needs er (relative permittivity)")
             er = lr["er"]
-            if isinstance(er, bool) or not isinstance(er, (int, float)) or not 1.0 <= er <= 100.0:
-                fail(f"er must be a number from 1 to 100 (got {er!r})", "er")
+            if isinstance(er, bool) or not isinstance(er, (int, float)):
+                fail(f"er must be a number (got {er!r})", "er")
+            if bad := plausible.check("er", er):
+                fail(f"er {bad}", "er")
             tand = lr.get("loss_tangent", 0.0)
-            if isinstance(tand, bool) or not isinstance(tand, (int, float)) or not 0.0 <= tand < 1.0:
-                fail(f"loss_tangent must be a number from 0 to 1 (got {tand!r})", "loss_tangent")
+            if isinstance(tand, bool) or not isinstance(tand, (int, float)):
+                fail(f"loss_tangent must be a number (got {tand!r})", "loss_tangent")
+            if bad := plausible.check("loss_tangent", tand):
+                fail(f"loss_tangent {bad}", "loss_tangent")
         kind = lr.get("kind")
         if kind is not None and kind not in ("core", "prepreg"):
             fail("kind must be 'core' or 'prepreg'", "kind")
@@ -276,8 +296,8 @@ def parse_stackup(data: dict, raw: str, src: str) -> Stackup:
                 freq = parse_quantity(lr["freq"], "frequency")
             except UnitError as e:
                 fail(f"freq: {e}", "freq")
-            if not 1e3 < freq < 1e12:
-                fail("freq must be between 1 kHz and 1 THz", "freq")
+            if bad := plausible.check("frequency", freq):
+                fail(f"freq {bad}", "freq")
         rough = {}
         for key in ("roughness", "huray_radius"):
             if key in lr:
@@ -285,12 +305,14 @@ def parse_stackup(data: dict, raw: str, src: str) -> Stackup:
                     rough[key] = parse_quantity(lr[key], "length", units)
                 except UnitError as e:
                     fail(f"{key}: {e}", key)
-                if not 0 < rough[key] < 50e-6:
-                    fail(f"{key} must be between 0 and 50 um", key)
+                if bad := plausible.check(key, rough[key]):
+                    fail(f"{key} {bad}", key)
         if "huray_ratio" in lr:
             hr = lr["huray_ratio"]
-            if isinstance(hr, bool) or not isinstance(hr, (int, float)) or not 0 < hr < 100:
-                fail("huray_ratio must be a positive number (ball surface per flat area)", "huray_ratio")
+            if isinstance(hr, bool) or not isinstance(hr, (int, float)):
+                fail("huray_ratio must be a number (ball surface per flat area)", "huray_ratio")
+            if bad := plausible.check("huray_ratio", hr):
+                fail(f"huray_ratio {bad}", "huray_ratio")
             rough["huray_ratio"] = float(hr)
         if ("huray_radius" in rough) != ("huray_ratio" in rough):
             fail("Huray's model needs both huray_radius and huray_ratio", "huray_radius")
@@ -300,9 +322,46 @@ def parse_stackup(data: dict, raw: str, src: str) -> Stackup:
                             roughness=rough.get("roughness"), huray_radius=rough.get("huray_radius"),
                             huray_ratio=rough.get("huray_ratio")))
 
+    layers = _name_by_place(layers, unnamed)
     st = Stackup(name=str(data.get("name") or Path(src).stem), layers=tuple(layers), source=src)
     _check_structure(st, src)
     return st
+
+
+def _name_by_place(layers: list[Layer], unnamed: list[int]) -> list[Layer]:
+    """Name each unnamed dielectric by where it sits: 'prepreg TOP–GND2', 'mask over TOP'.
+
+    The word is the layer's kind (core/prepreg) when given, else 'dielectric'; the names are
+    the nearest copper layers above and below. Two unnamed layers in the same place get #1, #2.
+    """
+    from dataclasses import replace
+    out = list(layers)
+    for i in unnamed:
+        l = layers[i]
+        if l.copper:
+            continue
+        up = next((layers[j].name for j in range(i - 1, -1, -1) if layers[j].copper), None)
+        dn = next((layers[j].name for j in range(i + 1, len(layers)) if layers[j].copper), None)
+        word = "mask" if l.type == "mask" else (l.kind or "dielectric")
+        if up and dn:
+            place = f"{up}\u2013{dn}"
+        elif dn:
+            place = f"over {dn}"
+        elif up:
+            place = f"under {up}"
+        else:
+            place = f"layer {i + 1}"
+        out[i] = replace(l, name=f"{word} {place}")
+    counts: dict[str, int] = {}
+    for i in unnamed:
+        counts[out[i].name] = counts.get(out[i].name, 0) + 1
+    seen: dict[str, int] = {}
+    for i in unnamed:
+        n = out[i].name
+        if counts[n] > 1:
+            seen[n] = seen.get(n, 0) + 1
+            out[i] = replace(out[i], name=f"{n} #{seen[n]}")
+    return out
 
 
 def _check_structure(st: Stackup, src: str) -> None:

@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from sicheck import plausible
 from sicheck.errors import InputError
 from sicheck.units import QUANTITY_RE, UnitError, dimension_of, unit_factor
 
@@ -31,15 +32,6 @@ COLUMNS = {
     "net_class": (None, None, False),
     "driver_ohm": ("resistance", "ohm", False),
     "load_pf": ("capacitance", "pF", False),
-}
-# Plausible ranges in SI (inclusive upper bound); outside them a value is rejected as absurd.
-RANGES = {
-    "length": (0.0, 10.0, "m"),
-    "width": (0.0, 25e-3, "m"),
-    "gap": (0.0, 25e-3, "m"),
-    "rise_time": (0.0, 1e-3, "s"),
-    "driver_ohm": (-1e-12, 1e4, "ohm"),
-    "load_pf": (-1e-30, 1e-7, "F"),
 }
 _HEADER_UNIT = re.compile(r"^(.*?)[\s_]*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
 
@@ -99,7 +91,11 @@ def _read_csv(path: Path) -> tuple[pd.DataFrame, str]:
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as e:
-        raise InputError(f"not UTF-8 text (byte {e.start}); save the export as UTF-8 CSV", file=src) from None
+        line = raw[:e.start].count(b"\n") + 1
+        raise InputError(f"this line is not UTF-8 text (byte 0x{raw[e.start]:02x}; the file looks like a "
+                         "Latin-1 or Windows-1252 export). Re-save it as UTF-8: in a spreadsheet choose "
+                         "'CSV UTF-8' when saving, or convert it, e.g. iconv -f cp1252 -t utf-8 old.csv > new.csv",
+                         file=src, line=line) from None
     if "\x00" in text:
         raise InputError("file contains NUL bytes; is it really a CSV file?", file=src)
     lines = text.splitlines()
@@ -247,17 +243,18 @@ def _numeric_column(cells: pd.Series, rows: pd.Series, canon: str, header_label:
                 i = int(np.argmax(mask))
                 raise InputError(str(e), file=src, row=int(rows.iloc[i]), column=header_label) from None
     out = values * factors
-    lo, hi, si = RANGES[canon]
     nonfinite = ~empty.to_numpy() & ~np.isfinite(out)
     if nonfinite.any():
         i = int(np.argmax(nonfinite))
         raise InputError(f"'{text.iloc[i]}' is not a finite number", file=src, row=int(rows.iloc[i]),
                          column=header_label)
-    outside = ~empty.to_numpy() & ~((out > lo) & (out <= hi))
+    rg = plausible.RANGES[canon]
+    low = (out <= rg.lo) if rg.lo_open else (out < rg.lo)
+    outside = ~empty.to_numpy() & (low | (out > rg.hi))
     if outside.any():
         i = int(np.argmax(outside))
-        what = "must be positive" if out[i] <= lo else f"is implausibly large (limit {hi:g} {si})"
-        raise InputError(f"'{text.iloc[i]}' {what}", file=src, row=int(rows.iloc[i]), column=header_label)
+        raise InputError(f"'{text.iloc[i]}': {plausible.check(canon, out[i])}", file=src,
+                         row=int(rows.iloc[i]), column=header_label)
     out[empty.to_numpy()] = np.nan
     return out
 

@@ -119,6 +119,7 @@ def option_frequency(text: str, option: str) -> float:
         f = parse_quantity(text, "frequency")
     except UnitError as e:
         raise InputError(f"{option}: {e}") from None
-    if not 1e3 <= f <= 1e12:
-        raise InputError(f"{option} must be between 1 kHz and 1 THz (got {text})")
+    from sicheck import plausible
+    if bad := plausible.check("frequency", f):
+        raise InputError(f"{option} {text}: {bad}")
     return f

@@ -40,36 +40,59 @@ def _microstrip(xs: list[CrossSection]) -> list[LineResult]:
     e_single = np.where(covered, covered_eps_eff(e_bare, er, er_c, c, w, h), e_bare)
     z_single = z_bare * np.sqrt(e_bare / e_single)
     tand = np.array([series_tand(x.below) for x in xs])
-    td_single = loss.microstrip_tand_eff(er, e_bare, tand)
+    tand_c = np.array([series_tand(x.above) for x in xs])
+    # each material's share of the field (filling factors), the cover's from the covered eps_eff
+    td_single = loss.covered_microstrip_tand_eff(e_bare, e_single, er, tand, er_c, tand_c)
     out = [LineResult(z0=float(z_single[i]), eps_eff=float(e_single[i]), tand_eff=float(td_single[i]),
                       model="hammerstad-jensen" + ("+cover" if covered[i] else "")) for i in range(len(xs))]
     pair = ~np.isnan(s)
+    zo_bare = np.full(len(xs), np.nan)
     if pair.any():
         idx = np.nonzero(pair)[0]
         ze, zo, ee, eo = coupled_microstrip.kirschning_jansen(w[idx], h[idx], t[idx], s[idx], er[idx])
-        # The cover raises each mode's permittivity like the single line's; scale by it.
-        k = (e_single / e_bare)[idx]
-        ee_c, eo_c = ee * k, eo * k
+        # The cover fills part of each mode's upper region: the same partial-capacitance form as the
+        # single line, with the mode's own substrate filling factor (the odd mode has more field above).
+        cov = covered[idx]
+        ee_c = np.where(cov, covered_eps_eff(ee, er[idx], er_c[idx], c[idx], w[idx], h[idx]), ee)
+        eo_c = np.where(cov, covered_eps_eff(eo, er[idx], er_c[idx], c[idx], w[idx], h[idx]), eo)
+        zo_c = zo * np.sqrt(eo / eo_c)
+        # A conformal mask also lines the facing side walls of the gap, which the cover fit (zero
+        # thickness) does not see: the odd mode's side-wall plate (coupled_microstrip) then holds
+        # mask, air and mask in series.
+        conf = np.array([bool(xs[i].above) and xs[i].above[0].conformal for i in idx])
+        zo_c, eo_c = np.where(conf, coupled_microstrip.lined_gap(zo_c, eo_c, t[idx], s[idx], c[idx], er_c[idx]),
+                              (zo_c, eo_c))
+        zo_bare[idx] = zo
         for j, i in enumerate(idx):
             r = out[i]
             r.z_even = float(ze[j] * np.sqrt(ee[j] / ee_c[j]))
-            r.z_odd = float(zo[j] * np.sqrt(eo[j] / eo_c[j]))
+            r.z_odd = float(zo_c[j])
             r.eps_even, r.eps_odd = float(ee_c[j]), float(eo_c[j])
-            r.tand_even = float(loss.microstrip_tand_eff(er[i], ee[j], tand[i]))
-            r.tand_odd = float(loss.microstrip_tand_eff(er[i], eo[j], tand[i]))
+            r.tand_even = float(loss.covered_microstrip_tand_eff(ee[j], ee_c[j], er[i], tand[i], er_c[i],
+                                                                 tand_c[i]))
+            r.tand_odd = float(loss.covered_microstrip_tand_eff(eo[j], eo_c[j], er[i], tand[i], er_c[i],
+                                                                tand_c[i]))
             r.model = "kirschning-jansen" + ("+cover" if covered[i] else "")
     for i, x in enumerate(xs):
         r = out[i]
         r.warnings += microstrip.validity_warnings(w[i], h[i], t[i], er[i])
         if x.coupled:
-            r.warnings += coupled_microstrip.validity_warnings(w[i], h[i], s[i], er[i])
+            r.warnings += coupled_microstrip.validity_warnings(w[i], h[i], s[i], er[i], t[i])
         if len(x.below) > 1 and len({st.er for st in x.below}) > 1:
             r.warnings.append("stratified substrate: closed form uses one equivalent er (series average)")
         if len(x.above) > 1 or (x.above and not x.above[0].conformal):
             r.warnings.append("embedded/multi-layer cover: closed-form cover correction is approximate")
         elif x.above and not (cover.FIT_RANGE["w/h"][0] <= w[i] / h[i] <= cover.FIT_RANGE["w/h"][1]
                               and cover.FIT_RANGE["c/h"][0] <= c[i] / h[i] <= cover.FIT_RANGE["c/h"][1]):
-            r.warnings.append("mask correction used outside the range it was fitted on")
+            # say how much the mask moves the impedance, so that a mismatch larger than that is not
+            # put down to the mask
+            if x.coupled:
+                what, moved = "Zdiff", r.z_odd / zo_bare[i] - 1.0
+            else:
+                what, moved = "Z0", z_single[i] / z_bare[i] - 1.0
+            r.warnings.append(f"mask correction (it moves {what} by {moved * 100:+.1f} %) used outside the range "
+                              f"it was fitted on (w/h {cover.FIT_RANGE['w/h'][0]:g}..{cover.FIT_RANGE['w/h'][1]:g}, "
+                              f"mask/h {cover.FIT_RANGE['c/h'][0]:g}..{cover.FIT_RANGE['c/h'][1]:g})")
     return out
 
 

@@ -13,7 +13,8 @@ skin effect", Proc. IRE 30, 1942): R = (Rs / mu0) dL/dn, with dL/dn the change o
 line's inductance when every conductor wall recedes by n. With L = Z0_air / c,
 alpha_c = Rs / (2 Z0 eta0) * dZ0_air/dn [Np/m], evaluated by a central difference.
 Dielectric loss: G = omega sum_i tan(d_i) C_i with C_i the part of the capacitance in
-dielectric i (field solver) or the quasi-TEM filling factor (closed forms):
+dielectric i (field solver) or the quasi-TEM filling factors of the substrate and of a cover
+(closed forms, covered_microstrip_tand_eff):
 alpha_d = G Z0 / 2 = pi f sqrt(eps_eff) tan(d_eff) / c [Np/m].
 Both are low-loss (first-order) results. 1 Np = 20/ln(10) dB = 8.686 dB.
 """
@@ -55,6 +56,31 @@ def huray_roughness(f, radius, area_ratio, rho=RHO_COPPER):
 def dielectric_alpha(f, eps_eff, tand_eff):
     """alpha_d [Np/m] = pi f sqrt(eps_eff) tand_eff / c."""
     return PI * np.asarray(f, dtype=float) * np.sqrt(eps_eff) * np.asarray(tand_eff, dtype=float) / C0
+
+
+def microstrip_filling(eps_eff, er):
+    """Substrate filling factor of a bare microstrip (quasi-TEM): q = (eps_eff - 1)/(er - 1)."""
+    eps_eff, er = np.asarray(eps_eff, dtype=float), np.asarray(er, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(er > 1.0, (eps_eff - 1.0) / (er - 1.0), 0.0)
+
+
+def covered_microstrip_tand_eff(eps_bare, eps_covered, er, tand, er_cover, tand_cover):
+    """Effective loss tangent of a microstrip (or one mode of a pair) under a cover.
+
+    Partial filling: eps_eff = 1 + q_s (er - 1) + q_c (er_c - 1), q_s the bare line's
+    substrate filling factor and q_c the cover's, taken from the covered eps_eff; then
+    tand_eff = (q_s er tand + q_c er_c tand_c) / eps_eff (the low-loss perturbation result,
+    e.g. Pozar ch. 3 for one dielectric). With no cover (eps_covered = eps_bare) this is
+    microstrip_tand_eff.
+    """
+    eps_bare, eps_covered, er, tand, er_cover, tand_cover = (
+        np.asarray(x, dtype=float) for x in (eps_bare, eps_covered, er, tand, er_cover, tand_cover))
+    q_s = microstrip_filling(eps_bare, er)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        q_c = np.where(er_cover > 1.0, (eps_covered - 1.0 - q_s * (er - 1.0)) / (er_cover - 1.0), 0.0)
+    q_c = np.clip(q_c, 0.0, 1.0)
+    return (q_s * er * tand + q_c * er_cover * tand_cover) / eps_covered
 
 
 def microstrip_tand_eff(er, eps_eff, tand):
