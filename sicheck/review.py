@@ -245,6 +245,16 @@ def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataF
     return seg
 
 
+def _layer_paths(seg: pd.DataFrame, nets: pd.Index) -> np.ndarray:
+    """Each net's layers in the order its segments visit them ("TOP > IN3")."""
+    dd = seg[["net", "layer"]].drop_duplicates()
+    paths: dict[str, str] = {}
+    for net, layer in zip(dd["net"].to_numpy(), dd["layer"].to_numpy()):
+        p = paths.get(net)
+        paths[net] = layer if p is None else f"{p} > {layer}"
+    return np.array([paths[n] for n in nets], dtype=object)
+
+
 def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     g = seg.groupby("net", sort=False)
     first = g.first()
@@ -253,7 +263,7 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
         "net_class": first["net_class"].to_numpy(),
         "pair": first["pair"].to_numpy(),
         "segments": g.size().to_numpy(),
-        "layers": g["layer"].agg(lambda s: " > ".join(dict.fromkeys(s))).to_numpy(),
+        "layers": _layer_paths(seg, first.index),
         "length": g["length"].sum().to_numpy(),
         "delay": g["delay"].sum().to_numpy(),
         "loss_db": g["loss_db"].sum().to_numpy(),
@@ -366,11 +376,13 @@ def _findings(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs, results, 
     g = tmp.groupby("net", sort=False)["z"]
     stats = pd.DataFrame({"lo": g.min(), "hi": g.max(), "lo_at": g.idxmin(), "hi_at": g.idxmax()})
     stats = stats[(stats["hi"] - stats["lo"]) / stats["lo"] * 100.0 > rules.z_step_pct]
-    for net, r in stats.iterrows():
-        lo_l, hi_l = tmp["layer"].iat[int(r.lo_at)], tmp["layer"].iat[int(r.hi_at)]
-        step = (r.hi - r.lo) / r.lo * 100.0
+    seg_layer = tmp["layer"].to_numpy()
+    for net, lo, hi, lo_at, hi_at in zip(stats.index, stats["lo"].to_numpy(), stats["hi"].to_numpy(),
+                                         stats["lo_at"].to_numpy(), stats["hi_at"].to_numpy()):
+        lo_l, hi_l = seg_layer[int(lo_at)], seg_layer[int(hi_at)]
+        step = (hi - lo) / lo * 100.0
         add("z-step", net, f"{lo_l}/{hi_l}",
-            f"impedance changes {step:.0f} % along the net ({r.lo:.1f} ohm on {lo_l} to {r.hi:.1f} ohm on "
+            f"impedance changes {step:.0f} % along the net ({lo:.1f} ohm on {lo_l} to {hi:.1f} ohm on "
             f"{hi_l}): each step reflects part of the edge")
 
     budget = {c.name: c.max_loss_db for c in rules.classes if c.max_loss_db is not None}
