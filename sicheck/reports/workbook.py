@@ -3,8 +3,8 @@
 Every text cell goes through one text-only path (`Book.text` / `_Sheet.row`): it is
 stored as a string, never a formula; text starting with = + - @ also gets the quote
 prefix so that editing the cell keeps it text; control characters are replaced and
-over-long text is cut at the spreadsheet limit. Chart titles built from user text are
-references to such a text cell, never literal strings that the writer could parse.
+over-long text is cut at the spreadsheet limit. Charts carry no user text: the text cell
+above each chart names it.
 Every sheet is set up to print: landscape, fitted to the page width, header rows repeated.
 """
 
@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 import re
+import textwrap
 from datetime import date
 from pathlib import Path
 
@@ -70,6 +71,7 @@ class Book:
             ws.repeat_rows(0, repeat_rows - 1)
         if repeat_cols and pages_wide > 1:
             ws.repeat_columns(0, repeat_cols - 1)
+            ws.print_across()            # a row's parts on consecutive pages, not after all the rows
         if grid:
             ws.hide_gridlines(0)          # gridlines on screen and on paper
         return ws
@@ -83,6 +85,18 @@ class Book:
 
     def close(self):
         self.wb.close()
+
+
+LINE_PT = 15.0                        # height of one line of 11 pt text
+
+
+def text_lines(text: str, width: float) -> int:
+    """Lines a wrapped text takes in a column ``width`` characters wide (a little pessimistic: word breaks).
+
+    Rows are given this height explicitly: spreadsheet programs do not all fit row heights on opening.
+    """
+    per_line = max(1.0, width * 1.2 - 2.0)
+    return sum(max(1, math.ceil(len(part) / per_line)) for part in text.split("\n"))
 
 
 def _longest(values) -> int:
@@ -132,11 +146,16 @@ class _Sheet:
             self._col_props.append(props)
             self.ws.set_column(j, j, w, book.fmt(**props))
         self.ws.freeze_panes(header_row, 0)
+        self.widths = widths
+        self.wrap_cols = [j for j, wrap in enumerate(wraps) if wrap]
         self.header_row = header_row
         self.rows = header_row - 1          # zero-based index of the last row written
 
     def header(self):
         r = self.header_row - 1
+        lines = max(len(textwrap.wrap(name, max(1, int(w) - 1), break_long_words=False)) or 1
+                    for (name, _, _), w in zip(self.columns, self.widths))
+        self.ws.set_row(r, LINE_PT * lines)
         for j, (name, _, _) in enumerate(self.columns):
             self.book.text(self.ws, r, j, name, bold=True, font_color="#FFFFFF", bg_color=HEADER_FILL,
                            text_wrap=True, valign="top")
@@ -146,6 +165,13 @@ class _Sheet:
         r = self.rows
         ws = self.ws
         book = self.book
+        lines = 1
+        for j in self.wrap_cols:
+            v = values[j] if j < len(values) else None
+            if isinstance(v, str) and len(v) > self.widths[j] - 3:
+                lines = max(lines, text_lines(v, self.widths[j]))
+        if lines > 1:
+            ws.set_row(r, LINE_PT * min(lines, 27))         # 409 pt is the largest row height
         for j, v in enumerate(values):
             if v is None:
                 continue
@@ -187,6 +213,8 @@ def key_value_sheet(book: Book, name: str, title: str, rows: list[tuple[str, obj
             book.text(ws, r, 0, k, bold=True, valign="top")
         if isinstance(v, str):
             if v:
+                if len(v) > widths[1] - 3:
+                    ws.set_row(r, LINE_PT * min(text_lines(v, widths[1]), 27))
                 book.text(ws, r, 1, v, text_wrap=True, valign="top", align="left")
         elif isinstance(v, (bool, np.bool_)):
             ws.write_boolean(r, 1, bool(v))
@@ -238,7 +266,7 @@ def _findings(book: Book, rv: Review):
     # the message wraps in a column a page can hold, so a printed row reads without a second page
     cols = [("ID", None, 7), ("Severity", None, 9), ("Rule", None, 16), ("Net", None, 18), ("Layer", None, 10),
             ("Finding", None, -70), ("Trace row", "0", 7), ("Disposition", None, 12), ("Reviewer", None, 12),
-            ("Comment", None, -30)]
+            ("Comment", None, -24)]
     fs = rv.findings
     sh = _Sheet(book, "Findings", cols, fit={3: [f.net for f in fs], 4: [f.layer for f in fs]})
     n = max(len(fs), 1)
@@ -264,7 +292,8 @@ def _nets(book: Book, rv: Review):
             ("Settled before [ns]", "0.00", 9), ("Settled after [ns]", "0.00", 9), ("Flight time [ns]", "0.000", 8),
             ("Termination power [mW]", "0.0", 10), ("Meets limits", None, 7), ("First-order advice", None, -50)]
     nets = rv.nets
-    sh = _Sheet(book, "Nets", cols, fit={0: nets["net"], 1: nets["net_class"], 2: nets["pair"], 3: nets["layers"]})
+    sh = _Sheet(book, "Nets", cols, fit={0: nets["net"], 1: nets["net_class"], 2: nets["pair"], 3: nets["layers"],
+                                         9: nets["electrical"], 10: nets["termination"]})
     sh.header()
     fills = {"required": SEVERITY_FILL["warning"], "recommended": SEVERITY_FILL["info"]}
     n = len(nets)
@@ -376,49 +405,61 @@ def _rules(wb: Book, rv: Review):
 
 
 CHART_POINTS = 120
+CHART_ROWS = 17           # rows from one chart's title to the next: the chart (7.5 cm) and a gap
+DATA_COL = 12             # the charts' data sit to the right (column M on), outside the printed area
 
 
 def _waveforms(book: Book, rv: Review):
-    """Before/after receiver waveforms of the worst nets, each with a native scatter chart."""
+    """Before/after receiver waveforms of the worst nets: native scatter charts stacked down the sheet (the
+    part that prints), their data in columns to the right (three per net)."""
     ws = book.sheet("Waveforms", grid=False)
-    for col, width in enumerate((22, 11, 13, 13)):
-        ws.set_column(col, col, width)
+    ws.set_column(0, DATA_COL - 2, 8.43)
     nets = rv.nets.set_index("net")
-    book.text(ws, 0, 0, "Receiver voltage of the nets with the largest unterminated overshoot, without and with "
-                        "the simulated termination.", bold=True)
     num = book.fmt(num_format="0.000")
-    row = 1
+    blocks = []
     for net, (before, after, _) in rv.waves.items():
         if before is None or after is None:
             continue
-        title_row = row
-        book.text(ws, title_row, 0, f"{net}: {nets.loc[net, 'termination_part']}", bold=True)
-        for c, h in enumerate(("t [ns]", "unterminated [V]", "terminated [V]"), start=1):
-            book.text(ws, row + 1, c, h, bold=True)
-        first = row + 2
         t_b, v_b = before
         t_a, v_a = after
-        t_common = np.linspace(0.0, max(t_b[-1], t_a[-1]), CHART_POINTS)
-        vb = np.interp(t_common, t_b, v_b)
-        va = np.interp(t_common, t_a, v_a)
-        for k in range(CHART_POINTS):
-            ws.write_number(first + k, 1, float(t_common[k] * 1e9), num)
-            ws.write_number(first + k, 2, float(vb[k]), num)
-            ws.write_number(first + k, 3, float(va[k]), num)
-        last = first + CHART_POINTS - 1
+        t = np.linspace(0.0, max(t_b[-1], t_a[-1]), CHART_POINTS)
+        blocks.append((net, f"{net}: {nets.loc[net, 'termination_part']}",
+                       np.column_stack([t * 1e9, np.interp(t, t_b, v_b), np.interp(t, t_a, v_a)]).tolist()))
+    title_rows = {1 + k * CHART_ROWS: k for k in range(len(blocks))}
+    last = max([1 + len(blocks) * CHART_ROWS, 3 + CHART_POINTS])
+    # constant-memory mode writes row by row: titles (left) and data blocks (right) interleave
+    for r in range(last):
+        if r == 0:
+            book.text(ws, 0, 0, "Receiver voltage of the nets with the largest unterminated overshoot, without "
+                                "and with the simulated termination (data from column M on).", bold=True)
+        if r in title_rows:
+            book.text(ws, r, 0, blocks[title_rows[r]][1], bold=True)
+        for k, (net, _, data) in enumerate(blocks):
+            c = DATA_COL + 4 * k
+            if r == 1:
+                book.text(ws, r, c, net, bold=True)
+            elif r == 2:
+                for j, h in enumerate(("t [ns]", "unterminated [V]", "terminated [V]")):
+                    book.text(ws, r, c + j, h, bold=True)
+            elif 3 <= r < 3 + CHART_POINTS:
+                for j, v in enumerate(data[r - 3]):
+                    ws.write_number(r, c + j, v, num)
+    for k, (net, _, _) in enumerate(blocks):
+        c = DATA_COL + 4 * k
+        row = 1 + k * CHART_ROWS
         ch = book.wb.add_chart({"type": "scatter", "subtype": "straight"})
-        # the title refers to the text cell above: a net's name is never parsed as chart text or a formula
-        ch.set_title({"name": ["Waveforms", title_row, 0], "name_font": {"size": 11}})
-        for col, name, colour in ((2, "unterminated", "#C8553D"), (3, "terminated", "#2E6FAD")):
-            ch.add_series({"name": name, "categories": ["Waveforms", first, 1, last, 1],
-                           "values": ["Waveforms", first, col, last, col],
+        # no chart title: the text cell above the chart names it, so a net's name never becomes chart text
+        ch.set_title({"none": True})
+        for j, name, colour in ((1, "unterminated", "#C8553D"), (2, "terminated", "#2E6FAD")):
+            ch.add_series({"name": name, "categories": ["Waveforms", 3, c, 2 + CHART_POINTS, c],
+                           "values": ["Waveforms", 3, c + j, 2 + CHART_POINTS, c + j],
                            "line": {"color": colour, "width": 1.5}, "marker": {"type": "none"}})
         ch.set_x_axis({"name": "t [ns]"})
         ch.set_y_axis({"name": "V", "major_gridlines": {"visible": True, "line": {"color": "#DDDDDD"}}})
         ch.set_legend({"position": "bottom"})
         ch.set_size({"width": 605, "height": 283})       # 16 x 7.5 cm
-        ws.insert_chart(title_row, 5, ch)
-        row = last + 2
+        ws.insert_chart(row + 1, 0, ch)
+    ws.print_area(0, 0, max(1, len(blocks) * CHART_ROWS), DATA_COL - 2)
 
 
 def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
