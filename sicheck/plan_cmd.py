@@ -90,7 +90,7 @@ def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str
 def run_plan(stackup, z0, zdiff, gap_rule, freqs, solver, rules, no_cache, as_json, out) -> int:
     if out is not None:
         from sicheck.reports.atomic import refuse_inputs
-        refuse_inputs(out, [stackup] + list(rules or []), "--out")
+        refuse_inputs(out, [stackup] + list(rules or []), "--out", suffix=".xlsx")
     plan = build_plan(stackup, z0, zdiff, gap_rule, freqs, solver, rules, no_cache)
     if out is not None:
         from sicheck.reports.plan_workbook import write_plan_workbook

@@ -272,6 +272,16 @@ def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataF
     return seg
 
 
+def _layer_paths(seg: pd.DataFrame, nets: pd.Index) -> np.ndarray:
+    """Each net's layers in the order its segments visit them ("TOP > IN3")."""
+    dd = seg[["net", "layer"]].drop_duplicates()
+    paths: dict[str, str] = {}
+    for net, layer in zip(dd["net"].to_numpy(), dd["layer"].to_numpy()):
+        p = paths.get(net)
+        paths[net] = layer if p is None else f"{p} > {layer}"
+    return np.array([paths[n] for n in nets], dtype=object)
+
+
 def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     g = seg.groupby("net", sort=False)
     first = g.first()
@@ -280,7 +290,7 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
         "net_class": first["net_class"].to_numpy(),
         "pair": first["pair"].to_numpy(),
         "segments": g.size().to_numpy(),
-        "layers": g["layer"].agg(lambda s: " > ".join(dict.fromkeys(s))).to_numpy(),
+        "layers": _layer_paths(seg, first.index),
         "length": g["length"].sum().to_numpy(),
         "delay": g["delay"].sum().to_numpy(),
         "loss_db": g["loss_db"].sum().to_numpy(),

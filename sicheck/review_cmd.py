@@ -24,7 +24,7 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
 
     inputs = [traces, stackup] + list(rules or [])
     if out is not None:
-        refuse_inputs(out, inputs, "--out")
+        refuse_inputs(out, inputs, "--out", suffix=".xlsx")
     if json_out is not None:
         refuse_inputs(json_out, inputs, "--json")
     if out is not None and json_out is not None and Path(out).resolve() == Path(json_out).resolve():

@@ -25,9 +25,34 @@ def _num(x, digits=6):
     return float(f"{v:.{digits}g}")
 
 
+def round_sig(a: np.ndarray, digits: int = 6) -> list:
+    """_num over an array, vectorised: `digits` significant digits, None where not finite.
+
+    Dividing by an exact power of ten gives the double nearest the rounded decimal, so JSON
+    prints the short form (1234.57, not 1234.5700000000002).
+    """
+    a = np.asarray(a, dtype=float)
+    finite = np.isfinite(a)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        exp = np.floor(np.log10(np.abs(np.where(finite & (a != 0), a, 1.0))))
+        k = (digits - 1 - exp).astype(int)
+        up = k >= 0
+        p = 10.0 ** np.abs(k)
+        r = np.where(up, np.round(a * np.where(up, p, 1.0)) / np.where(up, p, 1.0),
+                     np.round(a / np.where(up, 1.0, p)) * np.where(up, 1.0, p))
+        scaled = np.where(up, a * np.where(up, p, 1.0), a / np.where(up, 1.0, p))
+        tie = np.abs(np.abs(scaled - np.floor(scaled)) - 0.5) < 1e-6
+    r = np.where(a == 0, 0.0, r)
+    out = r.tolist()
+    # not finite -> None; beyond 1e22 a power of ten is not exact in a double, and a near-tie may round the
+    # other way than the exact binary value does: format those one by one, as _num does
+    for i in np.nonzero(~finite | (np.abs(k) > 22) | tie)[0]:
+        out[i] = _num(a[i], digits)
+    return out
+
+
 def _col(df, name, scale=1.0, digits=6):
-    a = df[name].to_numpy(float) * scale
-    return [_num(v, digits) for v in a]
+    return round_sig(df[name].to_numpy(float) * scale, digits)
 
 
 def segments_json(seg) -> list[dict]:
@@ -46,9 +71,10 @@ def segments_json(seg) -> list[dict]:
         "freq_ghz": _col(seg, "freq", 1e-9), "loss_uncertainty_pct": _col(seg, "loss_uncertainty_pct"),
     }
     net, layer, pair, kind, model, row = (seg[c].tolist() for c in ("net", "layer", "pair", "kind", "model", "row"))
+    row = [int(r) for r in row]
     out = []
     for i in range(len(seg)):
-        d = {"row": int(row[i]), "net": net[i], "layer": layer[i], "kind": kind[i],
+        d = {"row": row[i], "net": net[i], "layer": layer[i], "kind": kind[i],
              "length_mm": cols["length_mm"][i], "width_mm": cols["width_mm"][i],
              "z0_ohm": cols["z0_ohm"][i], "eps_eff": cols["eps_eff"][i], "delay_ps": cols["delay_ps"][i],
              "delay_ps_per_mm": cols["delay_ps_per_mm"][i], "l_nh_per_mm": cols["l_nh_per_mm"][i],
@@ -71,43 +97,57 @@ def segments_json(seg) -> list[dict]:
 
 
 def nets_json(nets) -> list[dict]:
+    n = len(nets)
+    c = {k: _col(nets, name, scale, digits) for k, name, scale, digits in (
+        ("length_mm", "length", 1e3, 6), ("delay_ps", "delay", 1e12, 6), ("rise_time_ps", "rise_time", 1e12, 6),
+        ("td_over_tr", "td_over_tr", 1, 4), ("freq_ghz", "freq", 1e-9, 4), ("loss_db", "loss_db", 1, 4),
+        ("knee_ghz", "knee_hz", 1e-9, 4), ("wavelength_at_knee_mm", "wavelength_at_knee", 1e3, 6),
+        ("lumped_limit_mm", "lumped_limit_length", 1e3, 6), ("critical_length_mm", "critical_length", 1e3, 6),
+        ("z_driver_end_ohm", "z_driver_end", 1, 6))}
+    series = round_sig(np.array([np.nan if v is None else float(v) for v in nets["series_ohm"].tolist()]))
+    net, cls, pair, layers, el, term, advice = (nets[k].tolist() for k in (
+        "net", "net_class", "pair", "layers", "electrical", "termination", "advice"))
+    segs = [int(v) for v in nets["segments"].tolist()]
+    mirrored = [bool(v) for v in nets["mirrored"].tolist()]
+    has_wave = "termination_part" in nets.columns
+    if has_wave:
+        part = nets["termination_part"].tolist()
+        scheme = nets["recommended_termination"].tolist()
+        meets = nets["waveform_meets_limits"].tolist()
+        assumptions = nets["waveform_assumptions"].tolist()
+        power = _col(nets, "termination_power_w", 1e3, 4)
+        wave = {f"{w}_{k}": _col(nets, f"{w}_{k}", 1, 4) for w in ("before", "after") for k in WAVE_KEYS}
+        loss_inc = nets["waveform_loss"].tolist() if "waveform_loss" in nets.columns else [False] * n
+    inputs = nets["waveform_inputs"].tolist() if "waveform_inputs" in nets.columns else [None] * n
     out = []
-    for r in nets.itertuples(index=False):
-        out.append({
-            "net": r.net, "net_class": r.net_class or None, "pair": r.pair or None, "segments": int(r.segments),
-            "layers": r.layers, "length_mm": _num(r.length * 1e3), "delay_ps": _num(r.delay * 1e12),
-            "rise_time_ps": _num(r.rise_time * 1e12), "td_over_tr": _num(r.td_over_tr, 4),
-            "freq_ghz": _num(r.freq * 1e-9, 4), "loss_db": _num(r.loss_db, 4),
-            "knee_ghz": _num(r.knee_hz * 1e-9, 4), "wavelength_at_knee_mm": _num(r.wavelength_at_knee * 1e3),
-            "lumped_limit_mm": _num(r.lumped_limit_length * 1e3), "critical_length_mm": _num(r.critical_length * 1e3),
-            "electrical": r.electrical, "termination": r.termination,
-            "series_ohm": None if r.series_ohm is None or (isinstance(r.series_ohm, float) and np.isnan(r.series_ohm))
-            else _num(r.series_ohm),
-            "z_driver_end_ohm": _num(r.z_driver_end), "advice": r.advice or None,
-            "listed_via_partner": bool(r.mirrored),
-        })
-        d = out[-1]
-        part = getattr(r, "termination_part", "")
-        if isinstance(part, str) and part:
-            d["recommended_termination"] = part
-            d["termination_scheme"] = r.recommended_termination
-            d["overshoot_pct"] = _num(r.after_overshoot_pct, 4)
-            d["settle_ns"] = _num(r.after_settle_ns, 4)
-            d["before"] = {k: _num(getattr(r, f"before_{k}"), 4) for k in WAVE_KEYS}
-            d["after"] = {k: _num(getattr(r, f"after_{k}"), 4) for k in WAVE_KEYS}
-            d["meets_limits"] = bool(r.waveform_meets_limits)
-            d["termination_power_mw"] = _num(r.termination_power_w * 1e3, 4)
-            if r.waveform_assumptions:
-                d["assumptions"] = r.waveform_assumptions
-            d["loss_included"] = bool(r.waveform_loss)
+    for i in range(n):
+        d = {"net": net[i], "net_class": cls[i] or None, "pair": pair[i] or None, "segments": segs[i],
+             "layers": layers[i], "length_mm": c["length_mm"][i], "delay_ps": c["delay_ps"][i],
+             "rise_time_ps": c["rise_time_ps"][i], "td_over_tr": c["td_over_tr"][i], "freq_ghz": c["freq_ghz"][i],
+             "loss_db": c["loss_db"][i], "knee_ghz": c["knee_ghz"][i],
+             "wavelength_at_knee_mm": c["wavelength_at_knee_mm"][i], "lumped_limit_mm": c["lumped_limit_mm"][i],
+             "critical_length_mm": c["critical_length_mm"][i], "electrical": el[i], "termination": term[i],
+             "series_ohm": series[i], "z_driver_end_ohm": c["z_driver_end_ohm"][i], "advice": advice[i] or None,
+             "listed_via_partner": mirrored[i]}
+        if has_wave and isinstance(part[i], str) and part[i]:
+            d["recommended_termination"] = part[i]
+            d["termination_scheme"] = scheme[i]
+            d["overshoot_pct"] = wave["after_overshoot_pct"][i]
+            d["settle_ns"] = wave["after_settle_ns"][i]
+            d["before"] = {k: wave[f"before_{k}"][i] for k in WAVE_KEYS}
+            d["after"] = {k: wave[f"after_{k}"][i] for k in WAVE_KEYS}
+            d["meets_limits"] = bool(meets[i])
+            d["termination_power_mw"] = power[i]
+            if assumptions[i]:
+                d["assumptions"] = assumptions[i]
+            d["loss_included"] = bool(loss_inc[i])
         else:
             d["recommended_termination"] = None
-            note = getattr(r, "waveform_assumptions", "")
-            if isinstance(note, str) and note:
-                d["assumptions"] = note
-        inputs = getattr(r, "waveform_inputs", None)
-        if isinstance(inputs, dict):
-            d["simulation"] = inputs      # every value the waveform simulation used, with its source
+            if has_wave and isinstance(assumptions[i], str) and assumptions[i]:
+                d["assumptions"] = assumptions[i]
+        if isinstance(inputs[i], dict):
+            d["simulation"] = inputs[i]      # every value the waveform simulation used, with its source
+        out.append(d)
     return out
 
 

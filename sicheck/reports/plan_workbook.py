@@ -4,14 +4,18 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from openpyxl import Workbook
-
 from sicheck.reports.atomic import atomic_path
-from sicheck.reports.workbook import _Sheet, key_value_sheet
+from sicheck.reports.workbook import Book, _Sheet, key_value_sheet
 
 
 def write_plan_workbook(plan: dict, target: str | Path) -> None:
-    wb = Workbook(write_only=True)
+    with atomic_path(target) as tmp:
+        book = Book(tmp)
+        _write(book, plan)
+        book.close()
+
+
+def _write(wb: Book, plan: dict) -> None:
     key_value_sheet(wb, "Plan", "Impedance plan", [
         ("Stackup", plan["stackup"]), ("Stackup file", plan["stackup_file"]), ("Solver", plan["solver"]),
         ("Pair rule", plan["gap_rule"]), ("Minimum feature [mm]", plan["min_feature_mm"]),
@@ -24,7 +28,7 @@ def write_plan_workbook(plan: dict, target: str | Path) -> None:
     freqs = plan["freqs_ghz"]
     for f in freqs:
         cols.append((f"Loss at {f:g} GHz [dB/mm]", "0.00000", 14))
-    cols.append(("Notes", None, 60))
+    cols.append(("Notes", None, -60))
     sh = _Sheet(wb, "Widths", cols)
     sh.header()
     for L in plan["layers"]:
@@ -35,5 +39,3 @@ def write_plan_workbook(plan: dict, target: str | Path) -> None:
                         d["achieved_ohm"], d["error_pct"], d["uncertainty_pct"], d["eps_eff"], d["delay_ps_per_mm"]]
                        + losses + ["; ".join(d["notes"])])
     sh.finish()
-    with atomic_path(target) as tmp:
-        wb.save(tmp)

@@ -2,7 +2,11 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
+from rich import box
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from sicheck.review import Review
@@ -11,22 +15,37 @@ STYLE = {"error": "bold red", "warning": "yellow", "info": "cyan"}
 
 
 def _proposal(r) -> str:
-    """The simulated choice with its effect, else the first-order advice."""
+    """The simulated choice with its effect on overshoot, else the short first-order advice (detail: workbook)."""
     part = getattr(r, "termination_part", "")
     if isinstance(part, str) and part:
         if r.recommended_termination == "none":
             return f"none needed (overshoot {r.before_overshoot_pct:.0f} %)"
-        return (f"{part}: overshoot {r.before_overshoot_pct:.0f}->{r.after_overshoot_pct:.0f} %, "
-                f"settle {r.before_settle_ns:.1f}->{r.after_settle_ns:.1f} ns")
+        return f"{part}; overshoot {r.before_overshoot_pct:.0f}->{r.after_overshoot_pct:.0f} %"
     return r.proposal
 
 
+def _pair_label(net: str, pair: str) -> str:
+    """LASER_TRIG_P/LASER_TRIG_N -> LASER_TRIG_P/N: the partner without the prefix both names share."""
+    if not pair:
+        return net
+    k = 0
+    while k < min(len(net), len(pair)) - 1 and net[k] == pair[k]:
+        k += 1
+    return f"{net}/{pair[k:]}"
+
+
+def _table(title: str) -> Table:
+    return Table(title=title, title_justify="left", box=box.SIMPLE_HEAD, pad_edge=False, show_edge=False)
+
+
 def print_summary(rv: Review, console: Console, worst: int = 10) -> None:
+    """A summary that reads at 80 columns: each net on one or two lines; the detail is in the workbook."""
     nets = rv.nets
     c = rv.counts
-    console.print(f"[bold]sicheck review[/bold]  {rv.traces_source}  on  {rv.stackup.name}  "
-                  f"(solver: {rv.solver}; {len(rv.segments)} segments, {len(nets)} nets, "
-                  f"{len(rv.cross_sections)} cross-sections)")
+    console.print(f"[bold]sicheck review[/bold] {escape(Path(rv.traces_source).name)} on "
+                  f"{escape(rv.stackup.name)}")
+    console.print(f"{rv.solver} solver; {len(rv.segments)} segments, {len(nets)} nets, "
+                  f"{len(rv.cross_sections)} cross-sections")
     console.print(f"findings: [bold red]{c['error']} error[/]  [yellow]{c['warning']} warning[/]  "
                   f"[cyan]{c['info']} info[/]")
     counts = rv.net_counts        # a pair counts once
@@ -42,22 +61,27 @@ def print_summary(rv: Review, console: Console, worst: int = 10) -> None:
         seen.add(key)
     need = need[keep]
     if len(need):
-        t = Table(title="Nets that need termination", title_justify="left")
-        for col in ("net", "length mm", "delay ps", "Tr ps", "TD/Tr", "termination", "proposal (simulated)"):
-            t.add_column(col, overflow="fold")
+        t = _table("Nets that need termination")
+        t.add_column("net", no_wrap=True, overflow="ellipsis", max_width=24)
+        t.add_column("mm", justify="right", no_wrap=True)
+        t.add_column("TD/Tr", justify="right", no_wrap=True)
+        t.add_column("need", no_wrap=True)
+        t.add_column("proposal (simulated)", overflow="fold", ratio=1)
         for r in need.head(worst).itertuples(index=False):
-            t.add_row(f"{r.net}/{r.pair}" if r.pair else r.net, f"{r.length * 1e3:.1f}", f"{r.delay * 1e12:.0f}",
-                      f"{r.rise_time * 1e12:.0f}", f"{r.td_over_tr:.2f}", r.termination, _proposal(r))
-        if len(need) > worst:
-            t.caption = f"... and {len(need) - worst} more (see the workbook's Nets sheet)"
+            t.add_row(escape(_pair_label(r.net, r.pair)), f"{r.length * 1e3:.0f}", f"{r.td_over_tr:.2f}",
+                      "req" if r.termination == "required" else "rec", escape(_proposal(r)))
+        t.caption = ("req: termination required, rec: recommended"
+                     + (f"; {len(need) - worst} more" if len(need) > worst else "")
+                     + "; details in the workbook's Nets sheet")
+        t.caption_justify = "left"
         console.print(t)
 
     misses = [f for f in rv.findings if f.rule in ("z0-target", "zdiff-target")]
     if misses:
-        t = Table(title="Worst impedance misses", title_justify="left")
-        t.add_column("net")
-        t.add_column("layer")
-        t.add_column("finding", overflow="fold")
+        t = _table("Worst impedance misses")
+        t.add_column("net", no_wrap=True, overflow="ellipsis", max_width=24)
+        t.add_column("layer", no_wrap=True, overflow="ellipsis", max_width=10)
+        t.add_column("finding", overflow="fold", ratio=1)
 
         def size(f):
             try:
@@ -65,11 +89,12 @@ def print_summary(rv: Review, console: Console, worst: int = 10) -> None:
             except (IndexError, ValueError):
                 return 0.0
         for f in sorted(misses, key=size)[:worst]:
-            t.add_row(f.net, f.layer, f.message)
+            t.add_row(escape(f.net), escape(f.layer), escape(f.message))
         console.print(t)
     others = [f for f in rv.findings if f.severity in ("error", "warning") and f.rule not in
               ("z0-target", "zdiff-target", "electrical-length")]
     for f in others[:worst]:
-        console.print(f"[{STYLE[f.severity]}]{f.severity}[/] {f.rule} {f.net} ({f.layer}): {f.message}")
+        console.print(f"[{STYLE[f.severity]}]{f.severity}[/] {f.rule} {escape(f.net)} ({escape(f.layer)}): "
+                      f"{escape(f.message)}")
     if len(others) > worst:
         console.print(f"... {len(others) - worst} more warnings in the workbook")

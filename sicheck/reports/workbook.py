@@ -1,59 +1,102 @@
-"""The review workbook a reviewer signs off (openpyxl, write-only for speed).
+"""The review workbook a reviewer signs off (XlsxWriter, constant-memory mode for speed).
 
-Every text cell that starts with '=', '+', '-' or '@' is written as text with a
-quote prefix, never as a formula.
+Every text cell goes through one text-only path (`Book.text` / `_Sheet.row`): it is
+stored as a string, never a formula; text starting with = + - @ also gets the quote
+prefix so that editing the cell keeps it text; control characters are replaced and
+over-long text is cut at the spreadsheet limit. Charts carry no user text: the text cell
+above each chart names it.
+Every sheet is set up to print: landscape, fitted to the page width, header rows repeated.
 """
 
 from __future__ import annotations
 
 import math
+import re
+import textwrap
 from datetime import date
 from pathlib import Path
 
 import numpy as np
-from openpyxl import Workbook
-from openpyxl.cell import WriteOnlyCell
-from openpyxl.cell.cell import Cell
-from openpyxl.styles import Alignment, Font, PatternFill
-from openpyxl.utils import get_column_letter
-from openpyxl.worksheet.datavalidation import DataValidation
+import xlsxwriter
 
 from sicheck import __version__
 from sicheck.reports.atomic import atomic_path
 from sicheck.review import Review
 
-FORMULA_START = ("=", "+", "-", "@")
-FORMULA_CHARS = "=+-@"
-SEVERITY_FILL = {
-    "error": PatternFill("solid", fgColor="F4C7C3"),
-    "warning": PatternFill("solid", fgColor="FCE8B2"),
-    "info": PatternFill("solid", fgColor="D9E7F5"),
-}
-HEADER_FILL = PatternFill("solid", fgColor="1F3B57")
-HEADER_FONT = Font(bold=True, color="FFFFFF")
-TITLE_FONT = Font(bold=True, size=14)
-BOLD = Font(bold=True)
+FORMULA_START = ("=", "+", "-", "@", "\t")
+_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f]")
+MAX_TEXT = 32767                      # characters in one cell (the file format's limit)
+SEVERITY_FILL = {"error": "#F4C7C3", "warning": "#FCE8B2", "info": "#D9E7F5"}
+HEADER_FILL = "#1F3B57"
 DISPOSITIONS = ("accept", "fix", "waive")
+# Printing: about 135 default-width characters fit across a landscape page at 100 %; a sheet wider than
+# PRINT_CHARS is spread over more pages wide (its key columns repeated) rather than shrunk below ~55 %.
+PRINT_CHARS = 245
+MAX_FIT_WIDTH = 48                    # a text column fitted to its content stays this narrow (it wraps)
 
 
-def safe_text(ws, value: str):
-    """A text cell that no spreadsheet program will evaluate."""
-    c = WriteOnlyCell(ws, value=value)
-    c.data_type = "s"
-    c.quotePrefix = True
-    return c
+def clean_text(value) -> tuple[str, bool]:
+    """(text, needs a quote prefix): the one place user text is made safe for a cell."""
+    s = value if isinstance(value, str) else str(value)
+    if _CONTROL.search(s):
+        s = _CONTROL.sub("\ufffd", s)
+    if len(s) > MAX_TEXT:
+        s = s[:MAX_TEXT - 12] + " [truncated]"
+    return s, s.startswith(FORMULA_START)
 
 
-def _value(ws, v):
-    if v is None:
-        return None
-    if isinstance(v, (float, np.floating)):
-        return None if not math.isfinite(float(v)) else float(v)
-    if isinstance(v, (np.integer,)):
-        return int(v)
-    if isinstance(v, str):
-        return safe_text(ws, v) if v.startswith(FORMULA_START) else v
-    return v
+class Book:
+    """An XlsxWriter workbook with the formats the sheets share (created once, cached by their properties)."""
+
+    def __init__(self, path: str | Path):
+        self.wb = xlsxwriter.Workbook(str(path), {
+            "constant_memory": True, "strings_to_formulas": False, "strings_to_numbers": False,
+            "strings_to_urls": False})
+        self._formats: dict[tuple, object] = {}
+
+    def fmt(self, **props):
+        key = tuple(sorted(props.items()))
+        f = self._formats.get(key)
+        if f is None:
+            f = self._formats[key] = self.wb.add_format(dict(props)) if props else None
+        return f
+
+    def sheet(self, name: str, pages_wide: int = 1, repeat_rows: int = 0, repeat_cols: int = 0, grid: bool = True):
+        ws = self.wb.add_worksheet(name)
+        ws.set_landscape()
+        ws.fit_to_pages(pages_wide, 0)
+        ws.set_margins(left=0.4, right=0.4, top=0.6, bottom=0.6)
+        ws.set_footer("&L&A&Rpage &P of &N")
+        if repeat_rows:
+            ws.repeat_rows(0, repeat_rows - 1)
+        if repeat_cols and pages_wide > 1:
+            ws.repeat_columns(0, repeat_cols - 1)
+            ws.print_across()            # a row's parts on consecutive pages, not after all the rows
+        if grid:
+            ws.hide_gridlines(0)          # gridlines on screen and on paper
+        return ws
+
+    def text(self, ws, r: int, c: int, value, **props):
+        """Write ``value`` as a text cell, whatever it looks like."""
+        s, quote = clean_text(value)
+        if quote:
+            props["quote_prefix"] = True
+        ws.write_string(r, c, s, self.fmt(**props))
+
+    def close(self):
+        self.wb.close()
+
+
+LINE_PT = 15.0                        # height of one line of 11 pt text
+
+
+def text_lines(text: str, width: float) -> int:
+    """Lines a wrapped text takes in a column ``width`` characters wide (a little pessimistic: word breaks).
+
+    Rows are given this height explicitly: spreadsheet programs do not all fit row heights on opening.
+    """
+    per_line = max(1.0, width * 1.2 - 2.0)
+    return sum(max(1, math.ceil(len(part) / per_line)) for part in text.split("\n"))
 
 
 def _longest(values) -> int:
@@ -68,95 +111,122 @@ def _longest(values) -> int:
 
 
 class _Sheet:
-    """A write-only sheet with a header row, frozen panes, filter and fitted widths."""
+    """A table sheet: header row, frozen panes, filter, fitted widths, print set-up.
 
-    def __init__(self, wb: Workbook, title: str, columns: list[tuple[str, str | None, int]], header_row: int = 1,
-                 fit: dict[int, object] | None = None):
-        self.ws = wb.create_sheet(title)
+    columns: (header with unit, number format or None for text, width); a text column whose width is
+    given as a negative number wraps at that width.
+    """
+
+    def __init__(self, book: Book, title: str, columns: list[tuple[str, str | None, int]], header_row: int = 1,
+                 fit: dict[int, object] | None = None, key_cols: int = 1):
+        self.book = book
         self.columns = columns
         self.n = len(columns)
         self.formats = [fmt for _, fmt, _ in columns]
-        for j, (name, _, width) in enumerate(columns):
+        widths, wraps = [], []
+        for j, (name, fmt, width) in enumerate(columns):
+            wrap = width < 0
+            width = abs(width)
             # headers wrap, so a long header does not force a wide column; text columns fit their content
-            w = max(width, min(len(name) + 2, 16))
-            if fit and j in fit:
-                w = min(max(w, _longest(fit[j]) + 2), 100)
-            self.ws.column_dimensions[get_column_letter(j + 1)].width = w
-        self.ws.freeze_panes = f"A{header_row + 1}"
+            w = width if wrap else max(width, min(len(name) + 2, 16))
+            if fit and j in fit and not wrap:
+                w = min(max(w, _longest(fit[j]) + 2), MAX_FIT_WIDTH)
+            widths.append(w)
+            wraps.append(wrap)
+        self.ws = book.sheet(title, pages_wide=max(1, math.ceil(sum(widths) / PRINT_CHARS)),
+                             repeat_rows=header_row, repeat_cols=key_cols)
+        # column formats apply to every cell written without its own format: numbers need no per-cell style
+        self._col_props = []
+        for j, (w, wrap, fmt) in enumerate(zip(widths, wraps, self.formats)):
+            props = {"valign": "top"}
+            if fmt:
+                props["num_format"] = fmt
+            if wrap:
+                props["text_wrap"] = True
+            self._col_props.append(props)
+            self.ws.set_column(j, j, w, book.fmt(**props))
+        self.ws.freeze_panes(header_row, 0)
+        self.widths = widths
+        self.wrap_cols = [j for j, wrap in enumerate(wraps) if wrap]
         self.header_row = header_row
-        self.rows = header_row
-        # one styled cell per number column, reused: openpyxl serialises a row when it is appended
-        self._num_cells = [None if fmt is None else WriteOnlyCell(self.ws, value=0.0) for fmt in self.formats]
-        for c, fmt in zip(self._num_cells, self.formats):
-            if c is not None:
-                c.number_format = fmt
+        self.rows = header_row - 1          # zero-based index of the last row written
 
     def header(self):
-        cells = []
-        for name, _, _ in self.columns:
-            c = WriteOnlyCell(self.ws, value=name)
-            c.font, c.fill = HEADER_FONT, HEADER_FILL
-            c.alignment = Alignment(wrap_text=True, vertical="top")
-            cells.append(c)
-        self.ws.append(cells)
+        r = self.header_row - 1
+        lines = max(len(textwrap.wrap(name, max(1, int(w) - 1), break_long_words=False)) or 1
+                    for (name, _, _), w in zip(self.columns, self.widths))
+        self.ws.set_row(r, LINE_PT * lines)
+        for j, (name, _, _) in enumerate(self.columns):
+            self.book.text(self.ws, r, j, name, bold=True, font_color="#FFFFFF", bg_color=HEADER_FILL,
+                           text_wrap=True, valign="top")
 
-    def row(self, values: list, fill: PatternFill | None = None, fill_cols: tuple[int, ...] = ()):
+    def row(self, values: list, fill: str | None = None, fill_cols: tuple[int, ...] = ()):
+        self.rows += 1
+        r = self.rows
         ws = self.ws
-        out = []
+        book = self.book
+        lines = 1
+        for j in self.wrap_cols:
+            v = values[j] if j < len(values) else None
+            if isinstance(v, str) and len(v) > self.widths[j] - 3:
+                lines = max(lines, text_lines(v, self.widths[j]))
+        if lines > 1:
+            ws.set_row(r, LINE_PT * min(lines, 27))         # 409 pt is the largest row height
         for j, v in enumerate(values):
-            fmt = self.formats[j]
             if v is None:
-                out.append(None)
                 continue
+            filled = fill is not None and j in fill_cols
             if isinstance(v, str):
-                c = safe_text(ws, v) if v and v[0] in FORMULA_CHARS else v
+                if not v:
+                    continue
+                if filled or v.startswith(FORMULA_START) or _CONTROL.search(v) or len(v) > MAX_TEXT:
+                    props = dict(self._col_props[j])
+                    if filled:
+                        props["bg_color"] = fill
+                    book.text(ws, r, j, v, **props)
+                else:
+                    ws.write_string(r, j, v)
             elif isinstance(v, (bool, np.bool_)):
-                c = bool(v)
+                ws.write_boolean(r, j, bool(v))
             else:
                 f = float(v)
                 if not math.isfinite(f):
-                    out.append(None)
                     continue
-                if fmt and not (fill is not None and j in fill_cols):
-                    c = self._num_cells[j]
-                    c.value = f
-                elif fmt:
-                    c = WriteOnlyCell(ws, value=f)
-                    c.number_format = fmt
+                if filled:
+                    ws.write_number(r, j, f, book.fmt(**self._col_props[j], bg_color=fill))
                 else:
-                    c = f
-            if fill is not None and j in fill_cols:
-                if not isinstance(c, Cell):
-                    c = WriteOnlyCell(ws, value=c)
-                c.fill = fill
-            out.append(c)
-        ws.append(out)
-        self.rows += 1
+                    ws.write_number(r, j, f)
 
     def finish(self):
-        last = get_column_letter(self.n)
-        self.ws.auto_filter.ref = f"A{self.header_row}:{last}{max(self.rows, self.header_row + 1)}"
+        self.ws.autofilter(self.header_row - 1, 0, max(self.rows, self.header_row), self.n - 1)
 
 
-def key_value_sheet(wb: Workbook, name: str, title: str, rows: list[tuple[str, object]], widths=(34, 70)):
-    """A sheet with a title and bold keys beside their values (long texts wrap)."""
-    ws = wb.create_sheet(name)
-    ws.column_dimensions["A"].width, ws.column_dimensions["B"].width = widths
-    t = WriteOnlyCell(ws, value=title)
-    t.font = TITLE_FONT
-    ws.append([t])
+def key_value_sheet(book: Book, name: str, title: str, rows: list[tuple[str, object]], widths=(34, 70)):
+    """A sheet with a title and bold keys beside their values (long texts wrap); returns (sheet, next row)."""
+    ws = book.sheet(name, grid=False)
+    ws.set_column(0, 0, widths[0], book.fmt(bold=True, valign="top"))
+    ws.set_column(1, 1, widths[1], book.fmt(text_wrap=True, valign="top", align="left"))
+    book.text(ws, 0, 0, title, bold=True, font_size=14)
+    r = 1
     for k, v in rows:
-        kc = WriteOnlyCell(ws, value=k)
-        kc.font = BOLD
-        vc = _value(ws, v)
-        if isinstance(vc, str) and len(vc) > 60:
-            vc = WriteOnlyCell(ws, value=vc)
-            vc.alignment = Alignment(wrap_text=True)
-        ws.append([kc, vc])
-    return ws
+        if k:
+            book.text(ws, r, 0, k, bold=True, valign="top")
+        if isinstance(v, str):
+            if v:
+                if len(v) > widths[1] - 3:
+                    ws.set_row(r, LINE_PT * min(text_lines(v, widths[1]), 27))
+                book.text(ws, r, 1, v, text_wrap=True, valign="top", align="left")
+        elif isinstance(v, (bool, np.bool_)):
+            ws.write_boolean(r, 1, bool(v))
+        elif v is not None:
+            f = float(v)
+            if math.isfinite(f):
+                ws.write_number(r, 1, f, book.fmt(valign="top", align="left"))
+        r += 1
+    return ws, r
 
 
-def _summary(wb: Workbook, rv: Review):
+def _summary(book: Book, rv: Review):
     counts = rv.counts
     nets = rv.nets
     rows = [
@@ -185,103 +255,110 @@ def _summary(wb: Workbook, rv: Review):
                     "test coupons. No high-voltage creepage/clearance or product-safety checks."),
         ("", ""),
     ]
-    ws = key_value_sheet(wb, "Summary", "Signal-integrity review", rows)
-    head = WriteOnlyCell(ws, value="Sign-off")
-    head.font = TITLE_FONT
-    ws.append([head])
+    ws, r = key_value_sheet(book, "Summary", "Signal-integrity review", rows)
+    book.text(ws, r, 0, "Sign-off", bold=True, font_size=14)
     for k in ("Reviewed by", "Date", "Decision (approve / rework)", "Notes"):
-        kc = WriteOnlyCell(ws, value=k)
-        kc.font = BOLD
-        ws.append([kc, None])
+        r += 1
+        book.text(ws, r, 0, k, bold=True)
 
 
-def _findings(wb: Workbook, rv: Review):
-    cols = [("ID", None, 7), ("Severity", None, 10), ("Rule", None, 18), ("Net", None, 22), ("Layer", None, 12),
-            ("Finding", None, 90), ("Trace row", "0", 9), ("Disposition", None, 13), ("Reviewer", None, 14),
-            ("Comment", None, 40)]
+def _findings(book: Book, rv: Review):
+    # the message wraps in a column a page can hold, so a printed row reads without a second page
+    cols = [("ID", None, 7), ("Severity", None, 9), ("Rule", None, 16), ("Net", None, 18), ("Layer", None, 10),
+            ("Finding", None, -70), ("Trace row", "0", 7), ("Disposition", None, 12), ("Reviewer", None, 12),
+            ("Comment", None, -24)]
     fs = rv.findings
-    sh = _Sheet(wb, "Findings", cols, fit={3: [f.net for f in fs], 4: [f.layer for f in fs],
-                                           5: [f.message for f in fs]})
-    n = max(len(rv.findings), 1)
-    dv = DataValidation(type="list", formula1='"' + ",".join(DISPOSITIONS) + '"', allow_blank=True,
-                        showErrorMessage=True, errorTitle="Disposition",
-                        error="Choose accept, fix or waive")
-    dv.add(f"H2:H{n + 1}")
-    sh.ws.data_validations.append(dv)
+    sh = _Sheet(book, "Findings", cols, fit={3: [f.net for f in fs], 4: [f.layer for f in fs]})
+    n = max(len(fs), 1)
+    sh.ws.data_validation(1, 7, n, 7, {"validate": "list", "source": list(DISPOSITIONS), "ignore_blank": True,
+                                       "error_title": "Disposition", "error_message": "Choose accept, fix or waive"})
     sh.header()
-    for i, f in enumerate(rv.findings):
-        sh.row([f"F{i + 1:04d}", f.severity, f.rule, f.net, f.layer, f.message, f.row, None, None, None],
+    for i, f in enumerate(fs):
+        sh.row([f"F{i + 1:04d}", f.severity, f.rule, f.net, f.layer, f.message, f.row],
                fill=SEVERITY_FILL[f.severity], fill_cols=(1,))
     sh.finish()
 
 
-def _nets(wb: Workbook, rv: Review):
-    cols = [("Net", None, 22), ("Class", None, 12), ("Pair", None, 14), ("Layers", None, 16), ("Segments", "0", 9),
-            ("Length [mm]", "0.00", 11), ("Delay [ps]", "0.0", 10), ("Rise time [ps]", "0", 11),
-            ("TD/Tr", "0.000", 8), ("Electrical", None, 16), ("Termination", None, 13),
-            ("Series R [ohm]", "0", 12), ("Z at driver end [ohm]", "0.0", 12),
-            ("Lumped limit [mm]", "0.0", 12), ("Critical length [mm]", "0.0", 13),
-            ("Knee freq [GHz]", "0.000", 11), ("Wavelength at knee [mm]", "0.0", 13),
-            ("Loss freq [GHz]", "0.000", 10), ("Insertion loss [dB]", "0.000", 11),
-            ("Simulated termination", None, 40), ("Overshoot before [%]", "0.0", 11),
-            ("Overshoot after [%]", "0.0", 11), ("Ringback before [%]", "0.0", 11), ("Ringback after [%]", "0.0", 11),
-            ("Settled before [ns]", "0.00", 11), ("Settled after [ns]", "0.00", 11), ("Flight time [ns]", "0.000", 10),
-            ("Termination power [mW]", "0.0", 12), ("Meets limits", None, 9), ("First-order advice", None, 80)]
+def _nets(book: Book, rv: Review):
+    cols = [("Net", None, 18), ("Class", None, 10), ("Pair", None, 12), ("Layers", None, 14), ("Segments", "0", 8),
+            ("Length [mm]", "0.00", 9), ("Delay [ps]", "0.0", 8), ("Rise time [ps]", "0", 8),
+            ("TD/Tr", "0.000", 7), ("Electrical", None, 10), ("Termination", None, 11),
+            ("Series R [ohm]", "0", 8), ("Z at driver end [ohm]", "0.0", 8),
+            ("Lumped limit [mm]", "0.0", 9), ("Critical length [mm]", "0.0", 9),
+            ("Knee freq [GHz]", "0.000", 8), ("Wavelength at knee [mm]", "0.0", 10),
+            ("Loss freq [GHz]", "0.000", 8), ("Insertion loss [dB]", "0.000", 8),
+            ("Simulated termination", None, -30), ("Overshoot before [%]", "0.0", 9),
+            ("Overshoot after [%]", "0.0", 9), ("Ringback before [%]", "0.0", 9), ("Ringback after [%]", "0.0", 9),
+            ("Settled before [ns]", "0.00", 9), ("Settled after [ns]", "0.00", 9), ("Flight time [ns]", "0.000", 8),
+            ("Termination power [mW]", "0.0", 10), ("Meets limits", None, 7), ("First-order advice", None, -50)]
     nets = rv.nets
-    fit = {0: nets["net"], 1: nets["net_class"], 2: nets["pair"], 3: nets["layers"]}
-    if "termination_part" in nets.columns:
-        fit[19] = nets["termination_part"]
-    sh = _Sheet(wb, "Nets", cols, fit=fit)
+    sh = _Sheet(book, "Nets", cols, fit={0: nets["net"], 1: nets["net_class"], 2: nets["pair"], 3: nets["layers"],
+                                         9: nets["electrical"], 10: nets["termination"]})
     sh.header()
     fills = {"required": SEVERITY_FILL["warning"], "recommended": SEVERITY_FILL["info"]}
-    nets = rv.nets
-    has_wave = "termination_part" in nets.columns
-    for r in nets.itertuples(index=False):
-        if has_wave and r.termination_part:
-            wave = [r.termination_part, r.before_overshoot_pct, r.after_overshoot_pct, r.before_ringback_pct,
-                    r.after_ringback_pct, r.before_settle_ns, r.after_settle_ns, r.after_flight_ns,
-                    r.termination_power_w * 1e3, "yes" if r.waveform_meets_limits else "no"]
-        else:
-            wave = [None] * 10
-        sh.row([r.net, r.net_class, r.pair, r.layers, int(r.segments), r.length * 1e3, r.delay * 1e12,
-                r.rise_time * 1e12, r.td_over_tr, r.electrical, r.termination,
-                None if r.series_ohm is None else float(r.series_ohm), r.z_driver_end,
-                r.lumped_limit_length * 1e3, r.critical_length * 1e3, r.knee_hz * 1e-9,
-                r.wavelength_at_knee * 1e3, r.freq * 1e-9, r.loss_db] + wave + [r.advice],
-               fill=fills.get(r.termination), fill_cols=(10,))
+    n = len(nets)
+
+    def num(name, scale=1.0):
+        return (nets[name].to_numpy(float) * scale).tolist()
+
+    base = [nets["net"].tolist(), nets["net_class"].tolist(), nets["pair"].tolist(), nets["layers"].tolist(),
+            num("segments"), num("length", 1e3), num("delay", 1e12), num("rise_time", 1e12), num("td_over_tr"),
+            nets["electrical"].tolist(), nets["termination"].tolist(),
+            [None if v is None else float(v) for v in nets["series_ohm"].tolist()], num("z_driver_end"),
+            num("lumped_limit_length", 1e3), num("critical_length", 1e3), num("knee_hz", 1e-9),
+            num("wavelength_at_knee", 1e3), num("freq", 1e-9), num("loss_db")]
+    empty = [None] * n
+    if "termination_part" in nets.columns:
+        part = nets["termination_part"].tolist()
+        sim = [bool(p) for p in part]
+        meets = ["yes" if m else "no" for m in nets["waveform_meets_limits"].tolist()]
+        wave = [part, num("before_overshoot_pct"), num("after_overshoot_pct"), num("before_ringback_pct"),
+                num("after_ringback_pct"), num("before_settle_ns"), num("after_settle_ns"), num("after_flight_ns"),
+                num("termination_power_w", 1e3), [m if s else None for m, s in zip(meets, sim)]]
+    else:
+        wave = [empty] * 10
+    columns = base + wave + [nets["advice"].tolist()]
+    term = nets["termination"].tolist()
+    for i, values in enumerate(zip(*columns)):
+        sh.row(list(values), fill=fills.get(term[i]), fill_cols=(10,))
     sh.finish()
 
 
-def _segments(wb: Workbook, rv: Review):
+def _segments(book: Book, rv: Review):
     seg = rv.segments
-    cols = [("Trace row", "0", 9), ("Net", None, 22), ("Pair", None, 14), ("Layer", None, 10), ("Kind", None, 11),
-            ("Length [mm]", "0.000", 11), ("Width [mm]", "0.000", 10), ("Gap [mm]", "0.000", 9),
-            ("Z0 [ohm]", "0.0", 9), ("Zdiff [ohm]", "0.0", 10), ("Zodd [ohm]", "0.0", 10), ("Zeven [ohm]", "0.0", 10),
-            ("eps_eff", "0.000", 8), ("Delay [ps/mm]", "0.000", 11), ("Delay [ps]", "0.0", 10),
-            ("L [nH/mm]", "0.0000", 10), ("C [pF/mm]", "0.0000", 10), ("Model", None, 20),
-            ("Uncertainty [%]", "0.00", 11), ("Closed-form Z [ohm]", "0.0", 12), ("Freq [GHz]", "0.000", 9),
-            ("Loss [dB/mm]", "0.0000", 10), ("Conductor [dB/mm]", "0.0000", 11), ("Dielectric [dB/mm]", "0.0000", 11),
-            ("Loss [dB]", "0.000", 9)]
-    sh = _Sheet(wb, "Segments", cols, fit={1: seg["net"], 2: seg["pair"], 3: seg["layer"], 17: seg["model"]})
+    cols = [("Trace row", "0", 6), ("Net", None, 18), ("Pair", None, 12), ("Layer", None, 8), ("Kind", None, 10),
+            ("Length [mm]", "0.000", 8), ("Width [mm]", "0.000", 7), ("Gap [mm]", "0.000", 7),
+            ("Z0 [ohm]", "0.0", 7), ("Zdiff [ohm]", "0.0", 7), ("Zodd [ohm]", "0.0", 7), ("Zeven [ohm]", "0.0", 7),
+            ("eps_eff", "0.000", 7), ("Delay [ps/mm]", "0.000", 8), ("Delay [ps]", "0.0", 8),
+            ("L [nH/mm]", "0.0000", 8), ("C [pF/mm]", "0.0000", 8), ("Model", None, 16),
+            ("Uncertainty [%]", "0.00", 8), ("Closed-form Z [ohm]", "0.0", 9), ("Freq [GHz]", "0.000", 7),
+            ("Loss [dB/mm]", "0.0000", 8), ("Conductor [dB/mm]", "0.0000", 9), ("Dielectric [dB/mm]", "0.0000", 9),
+            ("Loss [dB]", "0.000", 7)]
+    sh = _Sheet(book, "Segments", cols, fit={1: seg["net"], 2: seg["pair"], 3: seg["layer"], 17: seg["model"]},
+                key_cols=2)
     sh.header()
-    arr = {c: seg[c].to_numpy() for c in seg.columns}
-    zf = np.where(arr["pair"] != "", arr["formula_zdiff"], arr["formula_z"])
-    for i in range(len(seg)):
-        sh.row([int(arr["row"][i]), arr["net"][i], arr["pair"][i], arr["layer"][i], arr["kind"][i],
-                arr["length"][i] * 1e3, arr["width"][i] * 1e3, arr["gap"][i] * 1e3, arr["z0"][i], arr["zdiff"][i],
-                arr["zodd"][i], arr["zeven"][i], arr["eps_eff"][i], arr["delay_per_m"][i] * 1e9,
-                arr["delay"][i] * 1e12, arr["l_per_m"][i] * 1e6, arr["c_per_m"][i] * 1e9, arr["model"][i],
-                arr["uncertainty_pct"][i], zf[i], arr["freq"][i] * 1e-9, arr["loss_db_per_m"][i] * 1e-3,
-                arr["conductor_loss_db_per_m"][i] * 1e-3, arr["dielectric_loss_db_per_m"][i] * 1e-3,
-                arr["loss_db"][i]])
+
+    def num(name, scale=1.0):
+        return (seg[name].to_numpy(float) * scale).tolist()
+
+    zf = np.where(seg["pair"].to_numpy() != "", seg["formula_zdiff"].to_numpy(float),
+                  seg["formula_z"].to_numpy(float)).tolist()
+    columns = [num("row"), seg["net"].tolist(), seg["pair"].tolist(), seg["layer"].tolist(), seg["kind"].tolist(),
+               num("length", 1e3), num("width", 1e3), num("gap", 1e3), num("z0"), num("zdiff"), num("zodd"),
+               num("zeven"), num("eps_eff"), num("delay_per_m", 1e9), num("delay", 1e12), num("l_per_m", 1e6),
+               num("c_per_m", 1e9), seg["model"].tolist(), num("uncertainty_pct"), zf, num("freq", 1e-9),
+               num("loss_db_per_m", 1e-3), num("conductor_loss_db_per_m", 1e-3),
+               num("dielectric_loss_db_per_m", 1e-3), num("loss_db")]
+    for values in zip(*columns):
+        sh.row(values)
     sh.finish()
 
 
-def _stackup(wb: Workbook, rv: Review):
+def _stackup(book: Book, rv: Review):
     cols = [("#", "0", 4), ("Type", None, 11), ("Name", None, 14), ("Kind", None, 9), ("Thickness [mm]", "0.0000", 13),
             ("er", "0.00", 7), ("Loss tangent", "0.0000", 11), ("Line type", None, 11), ("References", None, 18),
             ("Below trace [mm]", "0.0000", 13), ("Above trace [mm]", "0.0000", 13)]
-    sh = _Sheet(wb, "Stackup", cols)
+    sh = _Sheet(book, "Stackup", cols)
     sh.header()
     for l in rv.stackup.layers:
         kind = refs = below = above = None
@@ -294,8 +371,7 @@ def _stackup(wb: Workbook, rv: Review):
                 kind, refs, below, above])
     sh.finish()
 
-
-def _rules(wb: Workbook, rv: Review):
+def _rules(wb: Book, rv: Review):
     """Every registered check with its severity here and its parameters in effect, then the net classes."""
     from sicheck.checks import CHECKS, SETTINGS
     r = rv.rules
@@ -328,70 +404,76 @@ def _rules(wb: Workbook, rv: Review):
     sh.finish()
 
 
-def _waveforms(wb: Workbook, rv: Review):
-    """Before/after receiver waveforms of the worst nets, each with a native scatter chart."""
-    from openpyxl.chart import Reference, ScatterChart, Series
-    ws = wb.create_sheet("Waveforms")
-    for col, width in zip("ABCD", (22, 11, 13, 13)):
-        ws.column_dimensions[col].width = width
+CHART_POINTS = 120
+CHART_ROWS = 17           # rows from one chart's title to the next: the chart (7.5 cm) and a gap
+DATA_COL = 12             # the charts' data sit to the right (column M on), outside the printed area
+
+
+def _waveforms(book: Book, rv: Review):
+    """Before/after receiver waveforms of the worst nets: native scatter charts stacked down the sheet (the
+    part that prints), their data in columns to the right (three per net)."""
+    ws = book.sheet("Waveforms", grid=False)
+    ws.set_column(0, DATA_COL - 2, 8.43)
     nets = rv.nets.set_index("net")
-    row = 1
-    charts = []
-    note = WriteOnlyCell(ws, value="Receiver voltage of the nets with the largest unterminated overshoot, "
-                                   "without and with the simulated termination (frequency-domain simulation, with loss).")
-    note.font = BOLD
-    ws.append([note])
-    row += 1
+    num = book.fmt(num_format="0.000")
+    blocks = []
     for net, (before, after, _) in rv.waves.items():
         if before is None or after is None:
             continue
-        r = nets.loc[net]
-        title = WriteOnlyCell(ws, value=f"{net}: {r['termination_part']}")
-        title.font = BOLD
-        ws.append([title])
-        ws.append(["", "t [ns]", "unterminated [V]", "terminated [V]"])
-        first = row + 2
         t_b, v_b = before
         t_a, v_a = after
-        t_common = np.linspace(0.0, max(t_b[-1], t_a[-1]), 120)
-        vb = np.interp(t_common, t_b, v_b)
-        va = np.interp(t_common, t_a, v_a)
-        for k in range(len(t_common)):
-            ws.append([None, float(t_common[k] * 1e9), float(vb[k]), float(va[k])])
-        last = first + len(t_common) - 1
-        ch = ScatterChart()
-        ch.title = f"{net}"
-        ch.style = 13
-        ch.x_axis.title = "t [ns]"
-        ch.y_axis.title = "V"
-        ch.height, ch.width = 7.5, 16
-        xref = Reference(ws, min_col=2, min_row=first, max_row=last)
-        for col, name, colour in ((3, "unterminated", "C8553D"), (4, "terminated", "2E6FAD")):
-            ser = Series(Reference(ws, min_col=col, min_row=first, max_row=last), xref, title=name)
-            ser.marker.symbol = "none"
-            ser.smooth = False
-            ser.graphicalProperties.line.solidFill = colour
-            ser.graphicalProperties.line.width = 19050      # 1.5 pt
-            ch.series.append(ser)
-        charts.append((ch, f"F{row}"))
-        row = last + 2
-        ws.append([])
-    for ch, anchor in charts:
-        ws.add_chart(ch, anchor)
+        t = np.linspace(0.0, max(t_b[-1], t_a[-1]), CHART_POINTS)
+        blocks.append((net, f"{net}: {nets.loc[net, 'termination_part']}",
+                       np.column_stack([t * 1e9, np.interp(t, t_b, v_b), np.interp(t, t_a, v_a)]).tolist()))
+    title_rows = {1 + k * CHART_ROWS: k for k in range(len(blocks))}
+    last = max([1 + len(blocks) * CHART_ROWS, 3 + CHART_POINTS])
+    # constant-memory mode writes row by row: titles (left) and data blocks (right) interleave
+    for r in range(last):
+        if r == 0:
+            book.text(ws, 0, 0, "Receiver voltage of the nets with the largest unterminated overshoot, without "
+                                "and with the simulated termination (frequency-domain simulation, with loss; data from column M on).", bold=True)
+        if r in title_rows:
+            book.text(ws, r, 0, blocks[title_rows[r]][1], bold=True)
+        for k, (net, _, data) in enumerate(blocks):
+            c = DATA_COL + 4 * k
+            if r == 1:
+                book.text(ws, r, c, net, bold=True)
+            elif r == 2:
+                for j, h in enumerate(("t [ns]", "unterminated [V]", "terminated [V]")):
+                    book.text(ws, r, c + j, h, bold=True)
+            elif 3 <= r < 3 + CHART_POINTS:
+                for j, v in enumerate(data[r - 3]):
+                    ws.write_number(r, c + j, v, num)
+    for k, (net, _, _) in enumerate(blocks):
+        c = DATA_COL + 4 * k
+        row = 1 + k * CHART_ROWS
+        ch = book.wb.add_chart({"type": "scatter", "subtype": "straight"})
+        # no chart title: the text cell above the chart names it, so a net's name never becomes chart text
+        ch.set_title({"none": True})
+        for j, name, colour in ((1, "unterminated", "#C8553D"), (2, "terminated", "#2E6FAD")):
+            ch.add_series({"name": name, "categories": ["Waveforms", 3, c, 2 + CHART_POINTS, c],
+                           "values": ["Waveforms", 3, c + j, 2 + CHART_POINTS, c + j],
+                           "line": {"color": colour, "width": 1.5}, "marker": {"type": "none"}})
+        ch.set_x_axis({"name": "t [ns]"})
+        ch.set_y_axis({"name": "V", "major_gridlines": {"visible": True, "line": {"color": "#DDDDDD"}}})
+        ch.set_legend({"position": "bottom"})
+        ch.set_size({"width": 605, "height": 283})       # 16 x 7.5 cm
+        ws.insert_chart(row + 1, 0, ch)
+    ws.print_area(0, 0, max(1, len(blocks) * CHART_ROWS), DATA_COL - 2)
 
 
 def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
-    """Write the review workbook atomically to ``target``."""
-    wb = Workbook(write_only=True)
-    _summary(wb, rv)
-    _findings(wb, rv)
-    _nets(wb, rv)
-    _segments(wb, rv)
-    _stackup(wb, rv)
-    _rules(wb, rv)
-    if rv.waves:
-        _waveforms(wb, rv)
-    for fn in extra_sheets or ():
-        fn(wb, rv)
+    """Write the review workbook atomically to ``target``; extra_sheets are callables (book, review)."""
     with atomic_path(target) as tmp:
-        wb.save(tmp)
+        book = Book(tmp)
+        _summary(book, rv)
+        _findings(book, rv)
+        _nets(book, rv)
+        _segments(book, rv)
+        _stackup(book, rv)
+        _rules(book, rv)
+        if rv.waves:
+            _waveforms(book, rv)
+        for fn in extra_sheets or ():
+            fn(book, rv)
+        book.close()

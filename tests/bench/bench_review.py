@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import argparse
 import csv
-import os
 import subprocess
 import sys
 import tempfile
@@ -15,6 +14,9 @@ import time
 from pathlib import Path
 
 import numpy as np
+
+# run from a checkout without installing: the repository root on the path
+sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 
 def closed_form_throughput(n: int = 1_000_000) -> None:
@@ -58,51 +60,143 @@ def synthetic_board(path: Path, n: int) -> None:
             net += 1
 
 
-def bare_baseline(csv_path: Path, xlsx: Path) -> float:
-    import pandas as pd
-    from openpyxl import Workbook
-    t0 = time.perf_counter()
-    df = pd.read_csv(csv_path)
-    wb = Workbook(write_only=True)
-    ws = wb.create_sheet("rows")
-    ws.append(list(df.columns))
-    for row in df.itertuples(index=False):
-        ws.append(list(row))
-    wb.save(xlsx)
-    return time.perf_counter() - t0
+class Clock:
+    """Wall and CPU time of a block (the machine is shared: CPU time is the steadier of the two)."""
+
+    def __enter__(self):
+        self.w0, self.c0 = time.perf_counter(), time.process_time()
+        return self
+
+    def __exit__(self, *exc):
+        self.wall = time.perf_counter() - self.w0
+        self.cpu = time.process_time() - self.c0
+
+    def __str__(self):
+        return f"{self.wall:6.2f} s wall {self.cpu:6.2f} s CPU"
 
 
-def same_rows_baseline(csv_path: Path, stackup: Path, xlsx: Path) -> tuple[float, int]:
-    """pandas read + openpyxl write-only of the rows the review writes (plain values, no styles)."""
+def floor(csv_path: Path, xlsx: Path) -> Clock:
+    """The floor: pandas reads the CSV, openpyxl write-only (lxml) writes the same input rows."""
     import pandas as pd
     from openpyxl import Workbook
+    with Clock() as c:
+        df = pd.read_csv(csv_path)
+        wb = Workbook(write_only=True)
+        ws = wb.create_sheet("rows")
+        ws.append(list(df.columns))
+        for row in df.itertuples(index=False):
+            ws.append([None if (isinstance(v, float) and v != v) else v for v in row])
+        wb.save(xlsx)
+    return c
+
+
+def stages(csv_path: Path, stackup: Path, d: Path, waveforms: bool) -> dict[str, Clock]:
+    """The review stage by stage, as run_review runs it (closed forms, so no field solves)."""
+    from sicheck.reports.atomic import write_text_atomic
+    from sicheck.reports.json_report import review_json
+    from sicheck.reports.workbook import write_workbook
+    from sicheck.review import build_review
+    from sicheck.rules import load_rules
+    from sicheck.stackup import load_stackup
+    from sicheck.traces import read_traces
+    out: dict[str, Clock] = {}
+    with Clock() as out["read trace list"]:
+        tl = read_traces(csv_path)
+        st, rs = load_stackup(stackup), load_rules(None)
+    with Clock() as out["tables and findings"]:
+        rv = build_review(tl, st, rs, waveforms=False)
+    if waveforms:
+        with Clock() as c:
+            rv = build_review(tl, st, rs, waveforms=True)
+        c.wall -= out["tables and findings"].wall
+        c.cpu -= out["tables and findings"].cpu
+        out["waveform stage (build with - without)"] = c
+    with Clock() as out["workbook"]:
+        write_workbook(rv, d / "stages.xlsx")
+    with Clock() as out["JSON"]:
+        write_text_atomic(d / "stages.json", review_json(rv))
+    return out
+
+
+def full_review(csv_path: Path, stackup: Path, out: Path, js: Path) -> Clock:
+    from sicheck.review_cmd import run_review
+    with Clock() as c:
+        run_review(csv_path, stackup, None, out, js, "formula", None, None, None, quiet=True)
+    return c
+
+
+def writer_comparison(csv_path: Path, stackup: Path, d: Path) -> None:
+    """openpyxl write-only (lxml) against XlsxWriter (constant memory) on the same cells: the review's
+    Segments, Nets and Findings values, numbers with a number format per column, text as text."""
+    import math
+
+    import pandas as pd
+    import xlsxwriter
+    from openpyxl import Workbook
+    from openpyxl.cell import WriteOnlyCell
 
     from sicheck.review import build_review
     from sicheck.rules import load_rules
     from sicheck.stackup import load_stackup
     from sicheck.traces import read_traces
-    rv = build_review(read_traces(csv_path), load_stackup(stackup), load_rules(None))
-    tables = [rv.segments.drop(columns=["xs"]), rv.nets,
-              pd.DataFrame([f.as_dict() for f in rv.findings])]
-    t0 = time.perf_counter()
-    pd.read_csv(csv_path)
-    wb = Workbook(write_only=True)
-    cells = 0
-    for k, df in enumerate(tables):
-        ws = wb.create_sheet(f"t{k}")
-        ws.append([str(c) for c in df.columns])
-        for row in df.itertuples(index=False):
-            ws.append([None if (isinstance(v, float) and v != v) else v for v in row])
-        cells += df.shape[0] * df.shape[1]
-    wb.save(xlsx)
-    return time.perf_counter() - t0, cells
+    rv = build_review(read_traces(csv_path), load_stackup(stackup), load_rules(None), waveforms=False)
+    tables = [rv.segments.drop(columns=["xs"]), rv.nets, pd.DataFrame([f.as_dict() for f in rv.findings])]
+    data = []
+    for df in tables:
+        cols = []
+        for c in df.columns:
+            a = df[c].to_numpy()
+            if a.dtype.kind in "fiub":
+                cols.append([None if not math.isfinite(v) else v for v in a.astype(float).tolist()])
+            else:
+                cols.append([None if v is None or (isinstance(v, float) and v != v) else str(v) for v in a.tolist()])
+        data.append(([str(c) for c in df.columns], list(zip(*cols))))
+    cells = sum(len(h) * len(rows) for h, rows in data)
 
+    def with_openpyxl(path):
+        wb = Workbook(write_only=True)
+        for k, (head, rows) in enumerate(data):
+            ws = wb.create_sheet(f"t{k}")
+            ws.append(head)
+            styled = [WriteOnlyCell(ws, value=0.0) for _ in head]      # one styled cell per column, reused
+            for c in styled:
+                c.number_format = "0.000"
+            for r in rows:
+                out = []
+                for j, v in enumerate(r):
+                    if isinstance(v, float):
+                        c = styled[j]
+                        c.value = v
+                        out.append(c)
+                    else:
+                        out.append(v)
+                ws.append(out)
+        wb.save(path)
 
-def full_review(csv_path: Path, stackup: Path, out: Path, js: Path) -> float:
-    from sicheck.review_cmd import run_review
-    t0 = time.perf_counter()
-    run_review(csv_path, stackup, None, out, js, "formula", None, None, None, quiet=True)
-    return time.perf_counter() - t0
+    def with_xlsxwriter(path):
+        wb = xlsxwriter.Workbook(str(path), {"constant_memory": True})
+        fmt = wb.add_format({"num_format": "0.000"})
+        for k, (head, rows) in enumerate(data):
+            ws = wb.add_worksheet(f"t{k}")
+            for j in range(len(head)):
+                ws.set_column(j, j, 10, fmt)                              # the column's format, no per-cell style
+            for j, h in enumerate(head):
+                ws.write_string(0, j, h)
+            for i, r in enumerate(rows, start=1):
+                for j, v in enumerate(r):
+                    if v is None:
+                        continue
+                    if isinstance(v, str):
+                        ws.write_string(i, j, v)
+                    else:
+                        ws.write_number(i, j, v)
+        wb.close()
+
+    print(f"XLSX writers on the same {cells} cells (review's Segments, Nets, Findings):")
+    for name, fn in (("openpyxl write-only + lxml", with_openpyxl), ("XlsxWriter constant_memory", with_xlsxwriter)):
+        with Clock() as c:
+            fn(d / f"writer-{name.split()[0]}.xlsx")
+        print(f"  {name:<28} {c}  ({c.cpu / cells * 1e6:.2f} us CPU per cell)")
 
 
 def version_time() -> float:
@@ -119,22 +213,34 @@ def version_time() -> float:
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--segments", type=int, default=100_000)
+    ap.add_argument("--waveforms", action="store_true", help="also time the waveform stage (slow today)")
+    ap.add_argument("--no-writers", action="store_true", help="skip the openpyxl / XlsxWriter comparison")
     a = ap.parse_args()
     closed_form_throughput()
     from sicheck.resources import demo_dir
+    stackup = demo_dir() / "stackup.toml"
     with tempfile.TemporaryDirectory() as d:
         d = Path(d)
         csv_path = d / "big.csv"
         synthetic_board(csv_path, a.segments)
-        base = bare_baseline(csv_path, d / "bare.xlsx")
-        same, cells = same_rows_baseline(csv_path, demo_dir() / "stackup.toml", d / "same.xlsx")
-        full = full_review(csv_path, demo_dir() / "stackup.toml", d / "review.xlsx", d / "review.json")
-        print(f"{a.segments} segments: sicheck review (CSV in, workbook + JSON out) {full:.2f} s")
-        print(f"  baseline A, pandas read + write the input rows: {base:.2f} s -> ratio {full / base:.2f}x")
-        print(f"  baseline B, pandas read + write the review's own rows plain ({cells} cells): {same:.2f} s "
-              f"-> ratio {full / same:.2f}x")
+        base = floor(csv_path, d / "floor.xlsx")
+        print(f"{a.segments} segments, closed-form solver")
+        print(f"  floor (pandas read + openpyxl write-only of the input rows): {base}")
+        st = stages(csv_path, stackup, d, a.waveforms)
+        total = Clock()
+        total.wall = sum(c.wall for k, c in st.items() if not k.startswith("waveform"))
+        total.cpu = sum(c.cpu for k, c in st.items() if not k.startswith("waveform"))
+        for k, c in st.items():
+            print(f"  {k:<40} {c}")
+        print(f"  review without the waveform stage: {total} -> {total.wall / base.wall:.2f}x floor wall, "
+              f"{total.cpu / base.cpu:.2f}x floor CPU (aim <= 5x)")
+        if a.waveforms:
+            full = full_review(csv_path, stackup, d / "review.xlsx", d / "review.json")
+            print(f"  sicheck review as run from the CLI (CSV in, workbook + JSON out, waveforms on): {full} -> "
+                  f"{full.wall / base.wall:.2f}x floor wall, {full.cpu / base.cpu:.2f}x floor CPU")
+        if not a.no_writers:
+            writer_comparison(csv_path, stackup, d)
     print(f"sicheck --version: {version_time() * 1e3:.0f} ms (best of 5, console script)")
-    _ = os
 
 
 if __name__ == "__main__":
