@@ -19,7 +19,8 @@ From them, for a linear ramp of duration ``ramp`` launched onto the aggressor li
 * far-end noise                       FEXT = kf * TD / ramp          (negative for a rising
                                       aggressor in a microstrip, where Lm/Ls > Cm/Cs)
 
-TD = length * sqrt(Ls Cs) is the coupled line's one-way delay. In a homogeneous
+TD is the coupled line's one-way delay, length * sqrt(Ls Cs) to first order (the mean of
+the two modes' delays is used, which is exact in one dielectric). In a homogeneous
 dielectric L = inv(C) / v^2, so Lm/Ls = Cm/Cs exactly and the far-end term vanishes
 by itself: nothing here treats striplines specially.
 
@@ -68,7 +69,7 @@ class Coupling:
     cm: np.ndarray          # mutual capacitance (minus the off-diagonal Maxwell term), F/m
     kb: np.ndarray          # backward (near-end) coefficient
     kf: np.ndarray          # forward coefficient: FEXT = kf * TD / ramp
-    delay_per_m: np.ndarray  # coupled line's delay sqrt(Ls Cs), s/m
+    delay_per_m: np.ndarray  # coupled line's delay: mean of the even and odd modes', s/m
     z_line: np.ndarray      # the line's impedance next to a quiet neighbour, sqrt(Ls/Cs), ohm
 
     @property
@@ -96,8 +97,11 @@ def paul_weak_coupling(ls, lm, cs, cm) -> Coupling:
     """
     ls, lm, cs, cm = (np.asarray(a, dtype=float) for a in (ls, lm, cs, cm))
     kl, kc = lm / ls, cm / cs
+    # The mean of the two modes' delays: equal to sqrt(Ls Cs) to first order, and exactly the medium's
+    # delay in one dielectric (sqrt(Ls Cs) is slower there by a second-order term).
+    delay = 0.5 * (np.sqrt((ls + lm) * (cs - cm)) + np.sqrt((ls - lm) * (cs + cm)))
     return Coupling(ls=ls, lm=lm, cs=cs, cm=cm, kb=0.25 * (kl + kc), kf=0.5 * (kc - kl),
-                    delay_per_m=np.sqrt(ls * cs), z_line=np.sqrt(ls / cs))
+                    delay_per_m=delay, z_line=np.sqrt(ls / cs))
 
 
 def coupling_from_modes(z_even, z_odd, eps_even, eps_odd) -> Coupling:
