@@ -72,7 +72,7 @@ def _solver_fn(name: str, no_cache: bool = False, show_progress: bool = True):
 
 def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path | None, json_out: Path | None,
                solver: str, units: list[str] | None, maps: list[str] | None, sheet: str | None,
-               quiet: bool = False, no_cache: bool = False) -> int:
+               quiet: bool = False, no_cache: bool = False, coupling: Path | None = None) -> int:
     from rich.console import Console
 
     from sicheck.errors import InputError
@@ -85,7 +85,7 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
     from sicheck.stackup import load_stackup
     from sicheck.traces import parse_map_option, parse_units_option, read_traces
 
-    inputs = [traces, stackup] + list(rules or [])
+    inputs = [traces, stackup] + list(rules or []) + ([coupling] if coupling is not None else [])
     if out is not None:
         refuse_inputs(out, inputs, "--out")
     if json_out is not None:
@@ -101,7 +101,11 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
     aliases = dict(rs.columns)
     aliases.update(parse_map_option(maps))
     tl = read_traces(traces, parse_units_option(units), aliases, sheet)
-    rv = build_review(tl, st, rs, _solver_fn(solver, no_cache, not quiet), solver)
+    cp = None
+    if coupling is not None:
+        from sicheck.crosstalk_review import read_couplings
+        cp = read_couplings(coupling, parse_units_option(units))
+    rv = build_review(tl, st, rs, _solver_fn(solver, no_cache, not quiet), solver, couplings=cp)
     console = Console(highlight=False)
     if not quiet:
         print_summary(rv, console)
@@ -145,10 +149,12 @@ def review(
                                                                      "(repeat or comma-separate)."),
     maps: Optional[list[str]] = typer.Option(None, "--map", help="Rename an export header: 'Net Name=net'."),
     sheet: Optional[str] = typer.Option(None, "--sheet", help="Worksheet of an .xlsx trace list."),
+    coupling: Optional[Path] = typer.Option(None, "--coupling", help="Crosstalk: CSV/XLSX of parallel runs (victim, "
+                                                                     "aggressor, layer, spacing, length)."),
 ):
     """Review a board's trace list against its stackup; exit 1 when there are errors."""
     raise typer.Exit(run_review(traces, stackup, rules, out, json_out, solver, units, maps, sheet,
-                                no_cache=no_cache))
+                                no_cache=no_cache, coupling=coupling))
 
 
 @app.command()

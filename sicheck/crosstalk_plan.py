@@ -35,13 +35,13 @@ class SpacingResult:
     spacing: float | None = None
     spacing_next: float | None = None
     spacing_fext: float | None = None
-    kb: float | None = None
+    kb: float | None = None                # near-end metric at the spacing (saturated unless asked otherwise)
     fext: float | None = None              # signed fraction at the stated length and edge
     steps: int = 0
     notes: list[str] = field(default_factory=list)
 
 
-def _metrics(results: list[LineResult], length, rise) -> tuple[np.ndarray, np.ndarray]:
+def _metrics(results: list[LineResult], length, rise, near_at_length=False) -> tuple[np.ndarray, np.ndarray]:
     ze = np.array([r.z_even for r in results], dtype=float)
     zo = np.array([r.z_odd for r in results], dtype=float)
     ee = np.array([r.eps_even for r in results], dtype=float)
@@ -49,7 +49,8 @@ def _metrics(results: list[LineResult], length, rise) -> tuple[np.ndarray, np.nd
     c = xt.coupling_from_modes(ze, zo, ee, eo)
     if length is None or rise is None:
         return c.kb, np.zeros_like(c.kb)
-    return c.kb, xt.fext_fraction(c.kf, length, c.delay_per_m, rise)
+    near = xt.next_fraction(c.kb, length, c.delay_per_m, rise) if near_at_length else c.kb
+    return near, xt.fext_fraction(c.kf, length, c.delay_per_m, rise)
 
 
 def _root(evaluate, which: int, budget: float, s_lo: float, s_hi: float, s_start: float, slope0: float):
@@ -100,26 +101,32 @@ def _root(evaluate, which: int, budget: float, s_lo: float, s_hi: float, s_start
 
 def spacing_for_budget(make_pair: Callable[[float], CrossSection], layer: str, width: float, h_scale: float,
                        budget: float, solver: Solver, min_feature: float, length: float | None = None,
-                       rise: float | None = None) -> SpacingResult:
-    """Smallest spacing with saturated NEXT (and |FEXT| at ``length``/``rise``) within ``budget``."""
+                       rise: float | None = None, far_budget: float | None = None,
+                       near_at_length: bool = False) -> SpacingResult:
+    """Smallest spacing with saturated NEXT (and |FEXT| at ``length``/``rise``) within ``budget``.
+
+    ``far_budget`` (default ``budget``) is the far-end budget; ``near_at_length`` takes the near-end
+    noise at ``length`` (below saturation it is smaller) instead of its saturated value.
+    """
+    far_budget = budget if far_budget is None else far_budget
     res = SpacingResult(layer=layer, width=width, budget=budget)
     s_lo, s_hi = min_feature, max(MAX_SPACING_H * h_scale, 4.0 * min_feature)
     # closed-form scan: the start and the local slope
     ss = np.geomspace(s_lo, s_hi, 80)
     with np.errstate(all="ignore"):
-        kb_f, fe_f = _metrics(solve_formula([make_pair(float(s)) for s in ss]), length, rise)
+        kb_f, fe_f = _metrics(solve_formula([make_pair(float(s)) for s in ss]), length, rise, near_at_length)
     cache: dict[float, tuple[float, float]] = {}
 
     def evaluate(s: float):
         if s not in cache:
-            kb, fe = _metrics(solver([make_pair(s)]), length, rise)
+            kb, fe = _metrics(solver([make_pair(s)]), length, rise, near_at_length)
             cache[s] = (float(kb[0]), float(fe[0]))
         return cache[s]
 
-    needs = [(0, kb_f)] + ([(1, np.abs(fe_f))] if length is not None and rise is not None else [])
+    needs = [(0, kb_f, budget)] + ([(1, np.abs(fe_f), far_budget)] if length is not None and rise is not None else [])
     found = []
-    for which, m in needs:
-        gm = np.log(np.maximum(m, 1e-300) / budget)
+    for which, m, limit in needs:
+        gm = np.log(np.maximum(m, 1e-300) / limit)
         over = np.nonzero(np.isfinite(gm) & (gm > 0))[0]
         i = int(over[-1]) if len(over) else -1
         if i < 0:
@@ -130,7 +137,7 @@ def spacing_for_budget(make_pair: Callable[[float], CrossSection], layer: str, w
             frac = gm[i] / (gm[i] - gm[i + 1])
             start = float(np.exp(np.log(ss[i]) + frac * (np.log(ss[i + 1]) - np.log(ss[i]))))
             slope = float((gm[i + 1] - gm[i]) / (np.log(ss[i + 1]) - np.log(ss[i])))
-        s, steps, note = _root(evaluate, which, budget, s_lo, s_hi, start, slope)
+        s, steps, note = _root(evaluate, which, limit, s_lo, s_hi, start, slope)
         found.append(s)
         if note:
             res.notes.append(("near end: " if which == 0 else "far end: ") + note)

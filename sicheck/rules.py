@@ -49,6 +49,8 @@ CHECKS = (
     Check("waveform", "warning", "simulated receiver waveform of a net that needs termination: the proposed part, "
                                  "with overshoot, ringback and settling before and after (warning when no standard "
                                  "scheme meets the class's limits)"),
+    Check("crosstalk", "warning", "near- or far-end crosstalk from a neighbour (class spacing, trace-list spacing "
+                                  "or --coupling file) above the class's max_next_pct / max_fext_pct"),
 )
 CHECK_IDS = {c.id for c in CHECKS}
 
@@ -71,6 +73,9 @@ class NetClass:
     max_overshoot_pct: float | None = None
     max_ringback_pct: float | None = None
     max_settle_ns: float | None = None
+    spacing: float | None = None       # crosstalk: edge-to-edge clearance to other nets on the same layer
+    max_next_pct: float | None = None  # crosstalk budgets, % of the aggressor's step
+    max_fext_pct: float | None = None
 
     def matches(self, net: str) -> bool:
         return any(fnmatch.fnmatchcase(net.upper(), pat.upper()) for pat in self.match)
@@ -126,7 +131,8 @@ SECTIONS = {
 }
 TOP_KEYS = {"name", "electrical", "impedance", "waveform", "fabrication", "severity", "columns", "net_class"}
 CLASS_KEYS = {"name", "match", "rise_time", "width", "gap", "z0", "zdiff", "tolerance_pct", "driver_ohm", "load_pf",
-              "swing", "max_overshoot_pct", "max_ringback_pct", "max_settle_ns", "freq", "max_loss_db"}
+              "swing", "max_overshoot_pct", "max_ringback_pct", "max_settle_ns", "freq", "max_loss_db",
+              "spacing", "max_next_pct", "max_fext_pct"}
 
 
 def _number(src: TomlSource, value, key, header, index=0, lo=0.0, hi=float("inf"), lo_open=True):
@@ -196,7 +202,7 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
         if not isinstance(match, list) or not all(isinstance(m, str) for m in match):
             raise src.error("'match' must be a list of net-name patterns", "match", "net_class", i)
         kw: dict = {"name": name, "match": tuple(match)}
-        for key, dim in (("rise_time", "time"), ("width", "length"), ("gap", "length")):
+        for key, dim in (("rise_time", "time"), ("width", "length"), ("gap", "length"), ("spacing", "length")):
             if key in c:
                 try:
                     kw[key] = parse_quantity(c[key], dim)
@@ -222,6 +228,9 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
                 raise src.error(f"swing: {e}", "swing", "net_class", i) from None
             if not kw["swing"] > 0:
                 raise src.error("swing must be positive", "swing", "net_class", i)
+        for key in ("max_next_pct", "max_fext_pct"):
+            if key in c:
+                kw[key] = _number(src, c[key], key, "net_class", i, hi=100)
         if "tolerance_pct" in c:
             kw["tolerance_pct"] = _number(src, c["tolerance_pct"], "tolerance_pct", "net_class", i, hi=100)
         nc = NetClass(**kw)

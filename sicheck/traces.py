@@ -31,6 +31,8 @@ COLUMNS = {
     "net_class": (None, None, False),
     "driver_ohm": ("resistance", "ohm", False),
     "load_pf": ("capacitance", "pF", False),
+    "spacing": ("length", None, False),     # crosstalk: edge-to-edge clearance to the nearest aggressor
+    "parallel": ("length", None, False),    # crosstalk: coupled length (default: the segment's length)
 }
 # Plausible ranges in SI (inclusive upper bound); outside them a value is rejected as absurd.
 RANGES = {
@@ -40,6 +42,8 @@ RANGES = {
     "rise_time": (0.0, 1e-3, "s"),
     "driver_ohm": (-1e-12, 1e4, "ohm"),
     "load_pf": (-1e-30, 1e-7, "F"),
+    "spacing": (0.0, 25e-3, "m"),
+    "parallel": (0.0, 10.0, "m"),
 }
 _HEADER_UNIT = re.compile(r"^(.*?)[\s_]*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
 

@@ -46,6 +46,8 @@ def segments_json(seg) -> list[dict]:
         "freq_ghz": _col(seg, "freq", 1e-9),
     }
     net, layer, pair, kind, model, row = (seg[c].tolist() for c in ("net", "layer", "pair", "kind", "model", "row"))
+    xt = ((_col(seg, "spacing", 1e3), _col(seg, "parallel", 1e3), _col(seg, "next_pct", 1, 4), _col(seg, "fext_pct", 1, 4))
+          if "next_pct" in seg else None)
     out = []
     for i in range(len(seg)):
         d = {"row": int(row[i]), "net": net[i], "layer": layer[i], "kind": kind[i],
@@ -65,6 +67,8 @@ def segments_json(seg) -> list[dict]:
                 d["formula_zdiff_ohm"] = cols["formula_zdiff_ohm"][i]
         if cols["formula_z_ohm"][i] is not None:
             d["formula_z0_ohm"] = cols["formula_z_ohm"][i]
+        if xt is not None:
+            d.update(spacing_mm=xt[0][i], parallel_mm=xt[1][i], next_pct=xt[2][i], fext_pct=xt[3][i])
         out.append(d)
     return out
 
@@ -86,6 +90,8 @@ def nets_json(nets) -> list[dict]:
             "listed_via_partner": bool(r.mirrored),
         })
         d = out[-1]
+        if hasattr(r, "next_pct"):
+            d["next_pct"], d["fext_pct"] = _num(r.next_pct, 4), _num(r.fext_pct, 4)
         part = getattr(r, "termination_part", "")
         if isinstance(part, str) and part:
             d["recommended_termination"] = part
@@ -118,8 +124,12 @@ def review_dict(rv: Review) -> dict:
         "electrical": {k: int((nets["electrical"] == k).sum()) for k in ("lumped", "transmission-line")},
         "exit_code": rv.exit_code,
     }
-    return {"summary": summary, "nets": nets_json(nets), "segments": segments_json(rv.segments),
-            "findings": [f.as_dict() for f in rv.findings]}
+    out = {"summary": summary, "nets": nets_json(nets), "segments": segments_json(rv.segments),
+           "findings": [f.as_dict() for f in rv.findings]}
+    if getattr(rv, "crosstalk", None) is not None:
+        from sicheck.reports.crosstalk_report import crosstalk_json
+        out["crosstalk"] = crosstalk_json(rv.crosstalk)
+    return out
 
 
 def review_json(rv: Review) -> str:

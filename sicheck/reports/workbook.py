@@ -227,6 +227,9 @@ def _nets(wb: Workbook, rv: Review):
             ("Overshoot after [%]", "0.0", 11), ("Ringback before [%]", "0.0", 11), ("Ringback after [%]", "0.0", 11),
             ("Settled before [ns]", "0.00", 11), ("Settled after [ns]", "0.00", 11), ("Flight time [ns]", "0.000", 10),
             ("Termination power [mW]", "0.0", 12), ("Meets limits", None, 9), ("First-order advice", None, 80)]
+    has_xt = "next_pct" in rv.nets.columns
+    if has_xt:
+        cols += [("Worst NEXT [%]", "0.00", 10), ("Worst FEXT [%]", "0.00", 10)]
     nets = rv.nets
     fit = {0: nets["net"], 1: nets["net_class"], 2: nets["pair"], 3: nets["layers"]}
     if "termination_part" in nets.columns:
@@ -247,7 +250,8 @@ def _nets(wb: Workbook, rv: Review):
                 r.rise_time * 1e12, r.td_over_tr, r.electrical, r.termination,
                 None if r.series_ohm is None else float(r.series_ohm), r.z_driver_end,
                 r.lumped_limit_length * 1e3, r.critical_length * 1e3, r.knee_hz * 1e-9,
-                r.wavelength_at_knee * 1e3, r.freq * 1e-9, r.loss_db] + wave + [r.advice],
+                r.wavelength_at_knee * 1e3, r.freq * 1e-9, r.loss_db] + wave + [r.advice] +
+               ([r.next_pct, r.fext_pct] if has_xt else []),
                fill=fills.get(r.termination), fill_cols=(10,))
     sh.finish()
 
@@ -262,6 +266,10 @@ def _segments(wb: Workbook, rv: Review):
             ("Uncertainty [%]", "0.00", 11), ("Closed-form Z [ohm]", "0.0", 12), ("Freq [GHz]", "0.000", 9),
             ("Loss [dB/mm]", "0.0000", 10), ("Conductor [dB/mm]", "0.0000", 11), ("Dielectric [dB/mm]", "0.0000", 11),
             ("Loss [dB]", "0.000", 9)]
+    has_xt = "next_pct" in seg.columns
+    if has_xt:
+        cols += [("Spacing [mm]", "0.000", 10), ("Coupled length [mm]", "0.0", 11), ("NEXT [%]", "0.00", 9),
+                 ("FEXT [%]", "0.00", 9)]
     sh = _Sheet(wb, "Segments", cols, fit={1: seg["net"], 2: seg["pair"], 3: seg["layer"], 17: seg["model"]})
     sh.header()
     arr = {c: seg[c].to_numpy() for c in seg.columns}
@@ -273,7 +281,8 @@ def _segments(wb: Workbook, rv: Review):
                 arr["delay"][i] * 1e12, arr["l_per_m"][i] * 1e6, arr["c_per_m"][i] * 1e9, arr["model"][i],
                 arr["uncertainty_pct"][i], zf[i], arr["freq"][i] * 1e-9, arr["loss_db_per_m"][i] * 1e-3,
                 arr["conductor_loss_db_per_m"][i] * 1e-3, arr["dielectric_loss_db_per_m"][i] * 1e-3,
-                arr["loss_db"][i]])
+                arr["loss_db"][i]] + ([arr["spacing"][i] * 1e3, arr["parallel"][i] * 1e3, arr["next_pct"][i],
+                                       arr["fext_pct"][i]] if has_xt else []))
     sh.finish()
 
 
@@ -391,6 +400,9 @@ def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
     _rules(wb, rv)
     if rv.waves:
         _waveforms(wb, rv)
+    if getattr(rv, "crosstalk", None) is not None:
+        from sicheck.reports.crosstalk_report import crosstalk_sheet
+        crosstalk_sheet(wb, rv)
     for fn in extra_sheets or ():
         fn(wb, rv)
     with atomic_path(target) as tmp:

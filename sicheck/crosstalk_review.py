@@ -1,0 +1,307 @@
+"""Crosstalk in the review: per segment, per net, per listed coupling, and its findings.
+
+Inputs, from coarse to exact (all optional):
+  * a net class's ``spacing``: the clearance its nets keep to other nets on the same layer;
+  * trace-list columns ``spacing`` (to the nearest aggressor along that segment) and
+    ``parallel`` (the coupled length; default the segment's length);
+  * ``--coupling FILE``: rows of victim, aggressor, layer, spacing, length.
+
+Each unique (layer, width, spacing) is solved once as a symmetric coupled pair (victim
+and one aggressor of the same width; a pair's leg is taken as a single victim line)
+with the review's solver, and sicheck.physics.crosstalk gives the numbers. The
+aggressor's edge is its own rise time when it is a known net, else the victim's.
+
+This module only computes tables and findings; review.py calls it in two places.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from sicheck.errors import InputError
+from sicheck.findings import Finding
+from sicheck.physics import crosstalk as xt
+from sicheck.physics.cross_section import CrossSection
+from sicheck.physics.line_result import LineResult
+
+# Budgets when a class sets none: 5 % of the aggressor's step at each end (common practice: a typical
+# total noise allowance for crosstalk is a few percent of the swing).
+DEFAULT_MAX_NEXT_PCT = 5.0
+DEFAULT_MAX_FEXT_PCT = 5.0
+MAX_SPACING_SEARCHES = 40      # beyond this many distinct cases, the suggested spacing comes from the closed forms
+ANY_NEIGHBOUR = "any neighbour at the class spacing"
+Solver = Callable[[list[CrossSection]], list[LineResult]]
+
+
+@dataclass
+class CrosstalkTables:
+    """What the review keeps for the reports."""
+
+    sections: pd.DataFrame                      # one row per unique (layer, width, spacing)
+    couplings: pd.DataFrame | None = None       # the --coupling rows with their numbers
+    notes: list[str] = field(default_factory=list)
+
+
+# ------------------------------------------------------------------ the --coupling file
+
+COUPLING_COLUMNS = ("victim", "aggressor", "layer", "spacing", "length")
+
+
+def read_couplings(path: str | Path, units: dict[str, str] | None = None, sheet: str | None = None) -> pd.DataFrame:
+    """victim, aggressor, layer, spacing (m), length (m), row: the same unit and error rules as the trace list."""
+    from sicheck.traces import _numeric_column, _read_csv, _read_xlsx, normalise_header
+    path = Path(path)
+    src = str(path)
+    if not path.exists():
+        raise InputError("coupling file not found", file=src)
+    suffix = path.suffix.lower()
+    delim = None
+    if suffix in (".xlsx", ".xlsm"):
+        raw = _read_xlsx(path, sheet)
+    elif suffix in (".csv", ".txt", ".tsv", ""):
+        raw, delim = _read_csv(path)
+    else:
+        raise InputError(f"unknown coupling-file type '{suffix}': use .csv or .xlsx", file=src)
+    header = raw.attrs["header"]
+    found: dict[str, tuple[int, str | None, str]] = {}
+    for j, h in enumerate(header):
+        key, unit = normalise_header(h)
+        if key in COUPLING_COLUMNS:
+            if key in found:
+                raise InputError(f"two columns mean '{key}'", file=src, row=raw.attrs["header_row"], column=h)
+            found[key] = (j, unit, h)
+    for c in COUPLING_COLUMNS:
+        if c not in found:
+            raise InputError(f"missing column '{c}' (a coupling file has {', '.join(COUPLING_COLUMNS)})", file=src,
+                             row=raw.attrs["header_row"])
+    rows = raw["__row"]
+    if len(raw) == 0:
+        raise InputError("the coupling file has a header but no rows", file=src)
+    out = pd.DataFrame({"row": rows.to_numpy(dtype=int)})
+    for c in ("victim", "aggressor", "layer"):
+        j, _, label = found[c]
+        text = raw[j].map(lambda v: "" if v is None else str(v)).str.strip()
+        blank = (text == "").to_numpy()
+        if blank.any():
+            i = int(np.argmax(blank))
+            raise InputError(f"'{c}' is empty", file=src, row=int(rows.iloc[i]), column=label)
+        out[c] = text.to_numpy()
+    for c, canon in (("spacing", "spacing"), ("length", "parallel")):
+        j, unit, label = found[c]
+        vals = _numeric_column(raw[j], rows, canon, label, unit, units or {}, delim == ";", src)
+        if np.isnan(vals).any():
+            i = int(np.argmax(np.isnan(vals)))
+            raise InputError(f"'{c}' is empty", file=src, row=int(rows.iloc[i]), column=label)
+        out[c] = vals
+    out.attrs["source"] = src
+    out.attrs["labels"] = {c: found[c][2] for c in COUPLING_COLUMNS}
+    return out
+
+
+# ------------------------------------------------------------------ solving
+
+def solve_couplings(stackup, keys: list[tuple[str, float, float]], solver: Solver) -> pd.DataFrame:
+    """One coupled solve per unique (layer, width, spacing): the coefficients as a table."""
+    xs = [stackup.cross_section(layer, w, s) for layer, w, s in keys]
+    results = solver(xs) if xs else []
+    ze = np.array([r.z_even for r in results], dtype=float)
+    zo = np.array([r.z_odd for r in results], dtype=float)
+    ee = np.array([r.eps_even for r in results], dtype=float)
+    eo = np.array([r.eps_odd for r in results], dtype=float)
+    c = xt.coupling_from_modes(ze, zo, ee, eo)
+    return pd.DataFrame({
+        "layer": [k[0] for k in keys], "kind": [x.kind for x in xs], "width": [k[1] for k in keys],
+        "spacing": [k[2] for k in keys], "kb": c.kb, "kf": c.kf, "kf_s_per_m": c.kf_s_per_m,
+        "lm_over_ls": c.lm / c.ls, "cm_over_cs": c.cm / c.cs, "delay_per_m": c.delay_per_m, "z_line": c.z_line,
+        "ls": c.ls, "lm": c.lm, "cs": c.cs, "cm": c.cm,
+        "model": [r.model for r in results], "uncertainty_pct": [r.uncertainty_pct for r in results],
+    })
+
+
+def _lookup(sections: pd.DataFrame, layer, width, spacing) -> np.ndarray:
+    idx = pd.MultiIndex.from_frame(sections[["layer", "width", "spacing"]])
+    return idx.get_indexer(pd.MultiIndex.from_arrays([layer, width, spacing]))
+
+
+def add_segment_crosstalk(seg: pd.DataFrame, df: pd.DataFrame, rules, stackup, solver: Solver,
+                          couplings: pd.DataFrame | None = None) -> CrosstalkTables | None:
+    """Adds spacing, parallel, next_pct, fext_pct, xt_aggressor to ``seg`` (in place); None without inputs."""
+    class_spacing = {c.name: c.spacing for c in rules.classes if c.spacing is not None}
+    sp = df["spacing"].to_numpy(float).copy() if "spacing" in df else np.full(len(seg), np.nan)
+    par = df["parallel"].to_numpy(float).copy() if "parallel" in df else np.full(len(seg), np.nan)
+    from_class = np.isnan(sp)
+    sp[from_class] = seg["net_class"].map(lambda n: class_spacing.get(n, np.nan)).to_numpy(float)[from_class]
+    par = np.where(np.isnan(par), seg["length"].to_numpy(float), par)
+    has = ~np.isnan(sp)
+    if not has.any() and couplings is None:
+        return None
+    keys = list(dict.fromkeys(zip(seg["layer"][has], seg["width"][has], sp[has])))
+    if couplings is not None:
+        keys += [k for k in dict.fromkeys(zip(couplings["layer"], couplings["width"], couplings["spacing"]))
+                 if k not in keys]
+    sections = solve_couplings(stackup, keys, solver)
+    seg["spacing"] = sp
+    seg["parallel"] = np.where(has, par, np.nan)
+    seg["xt_aggressor"] = np.where(has, np.where(from_class, ANY_NEIGHBOUR, "the nearest neighbour (trace-list spacing)"), "")
+    i = _lookup(sections, seg["layer"].to_numpy(), seg["width"].to_numpy(float), sp)
+    ok = has & (i >= 0)
+    kb = np.where(ok, sections["kb"].to_numpy()[np.maximum(i, 0)], np.nan)
+    kf = np.where(ok, sections["kf"].to_numpy()[np.maximum(i, 0)], np.nan)
+    dpm = np.where(ok, sections["delay_per_m"].to_numpy()[np.maximum(i, 0)], np.nan)
+    # no known aggressor here: the edge is the victim's own (worst case, said in the finding)
+    rise = seg["rise_time"].to_numpy(float)
+    net_rise = seg.groupby("net")["rise_time"].transform("min").to_numpy(float)
+    rise = np.where(np.isnan(net_rise), rise, net_rise)
+    with np.errstate(invalid="ignore"):
+        seg["next_pct"] = xt.next_fraction(kb, par, dpm, rise) * 100.0
+        seg["fext_pct"] = xt.fext_fraction(kf, par, dpm, rise) * 100.0
+    seg["xt_rise"] = np.where(ok, rise, np.nan)
+    return CrosstalkTables(sections=sections)
+
+
+def attach_couplings(tables: CrosstalkTables, couplings: pd.DataFrame, seg: pd.DataFrame,
+                     net_rise: dict[str, float]) -> None:
+    """Numbers for each --coupling row (the victim's width on that layer already in ``couplings``)."""
+    s = tables.sections
+    i = _lookup(s, couplings["layer"].to_numpy(), couplings["width"].to_numpy(float),
+                couplings["spacing"].to_numpy(float))
+    known = couplings["aggressor"].map(lambda a: a in net_rise).to_numpy(bool)
+    rise = np.where(known, couplings["aggressor"].map(lambda a: net_rise.get(a, np.nan)).to_numpy(float),
+                    couplings["victim"].map(net_rise).to_numpy(float))
+    c = couplings.copy()
+    c["kb"] = s["kb"].to_numpy()[i]
+    c["kf"] = s["kf"].to_numpy()[i]
+    c["rise"] = rise
+    c["edge_from"] = np.where(known, "aggressor", "victim (aggressor not in the trace list)")
+    c["next_pct"] = xt.next_fraction(c["kb"], c["length"], s["delay_per_m"].to_numpy()[i], rise) * 100.0
+    c["fext_pct"] = xt.fext_fraction(c["kf"], c["length"], s["delay_per_m"].to_numpy()[i], rise) * 100.0
+    tables.couplings = c
+
+
+def prepare_couplings(couplings: pd.DataFrame, seg: pd.DataFrame, stackup) -> pd.DataFrame:
+    """Checks a --coupling table against the board and gives each row the victim's width on its layer."""
+    src = couplings.attrs.get("source")
+    labels = couplings.attrs.get("labels", {})
+    names = {l.name.lower(): l.name for l in stackup.signal_layers}
+    widths = seg.groupby(["net", "layer"], sort=False)["width"].min().to_dict()
+    nets = set(seg["net"])
+    lay, wid = [], []
+    for r in couplings.itertuples(index=False):
+        layer = names.get(r.layer.lower())
+        if layer is None:
+            raise InputError(f"layer '{r.layer}' is not a signal layer of the stackup ({', '.join(names.values())})",
+                             file=src, row=int(r.row), column=labels.get("layer", "layer"))
+        if r.victim not in nets:
+            raise InputError(f"victim '{r.victim}' is not a net of the trace list", file=src, row=int(r.row),
+                             column=labels.get("victim", "victim"))
+        w = widths.get((r.victim, layer))
+        if w is None:
+            raise InputError(f"victim '{r.victim}' has no segment on layer {layer}", file=src, row=int(r.row),
+                             column=labels.get("layer", "layer"))
+        lay.append(layer)
+        wid.append(w)
+    out = couplings.copy()
+    out["layer"] = lay
+    out["width"] = wid
+    return out
+
+
+def add_net_crosstalk(nets: pd.DataFrame, all_seg: pd.DataFrame, tables: CrosstalkTables | None) -> None:
+    """Each net's worst near-end and far-end figure over its segments and listed couplings (in place)."""
+    if tables is None or "next_pct" not in all_seg:
+        return
+    parts = [all_seg[["net", "next_pct", "fext_pct"]]]
+    if tables.couplings is not None:
+        parts.append(tables.couplings.rename(columns={"victim": "net"})[["net", "next_pct", "fext_pct"]])
+    allx = pd.concat(parts, ignore_index=True)
+    allx["abs_fext"] = allx["fext_pct"].abs()
+    g = allx.groupby("net")
+    worst_next = g["next_pct"].max()
+    idx = g["abs_fext"].idxmax().dropna()
+    worst_fext = pd.Series(allx.loc[idx.astype(int), "fext_pct"].to_numpy(), index=idx.index)
+    nets["next_pct"] = nets["net"].map(worst_next).to_numpy(float)
+    nets["fext_pct"] = nets["net"].map(worst_fext).to_numpy(float)
+
+
+# ------------------------------------------------------------------ findings
+
+def _volts_text(tables: CrosstalkTables, rules, cname: str, layer, w, s, ne, fe) -> str:
+    """The noise in mV for the class's swing and driver (the [waveform] defaults when it gives none)."""
+    c = rules.class_named(cname) if cname else None
+    swing = c.swing if c is not None and c.swing is not None else rules.swing
+    rd = c.driver_ohm if c is not None and c.driver_ohm is not None else rules.driver_ohm
+    i = _lookup(tables.sections, [layer], [w], [s])[0]
+    if i < 0:
+        return ""
+    step = float(xt.launched_step(swing, tables.sections["z_line"].iat[i], rd))
+    return f" (about {ne * step * 10:.0f} mV and {fe * step * 10:+.0f} mV of a {step:.2f} V step: {swing:g} V through " \
+           f"{rd:g} ohm)"
+
+
+def _budgets(rules, class_name: str) -> tuple[float, float]:
+    c = rules.class_named(class_name) if class_name else None
+    nb = c.max_next_pct if c is not None and c.max_next_pct is not None else DEFAULT_MAX_NEXT_PCT
+    fb = c.max_fext_pct if c is not None and c.max_fext_pct is not None else DEFAULT_MAX_FEXT_PCT
+    return nb, fb
+
+
+def crosstalk_findings(tables: CrosstalkTables | None, seg: pd.DataFrame, rules, stackup,
+                       solver: Solver) -> list[Finding]:
+    """`crosstalk` findings: one per victim net over budget (its worst segment) and one per listed coupling."""
+    if tables is None:
+        return []
+    sev = rules.severity.get("crosstalk", "warning")
+    if sev == "off":
+        return []
+    cases = []       # (victim, aggressor text, layer, width, spacing, length, rise, next, fext, class, row, edge note)
+    if "next_pct" in seg:
+        s = seg[~seg["mirrored"].astype(bool) & seg["next_pct"].notna()]
+        worst: dict[str, tuple] = {}
+        for r in s.itertuples(index=False):
+            nb, fb = _budgets(rules, r.net_class)
+            excess = max(r.next_pct / nb, abs(r.fext_pct) / fb)
+            if excess > 1.0 and (r.net not in worst or excess > worst[r.net][0]):
+                worst[r.net] = (excess, (r.net, r.xt_aggressor, r.layer, r.width, r.spacing, r.parallel, r.xt_rise,
+                                         r.next_pct, r.fext_pct, r.net_class, int(r.row),
+                                         "the victim's own edge (aggressor unknown)"))
+        cases += [v[1] for v in worst.values()]
+    if tables.couplings is not None:
+        cls = seg.groupby("net")["net_class"].first().to_dict()
+        rows = seg.groupby("net")["row"].first().to_dict()
+        for r in tables.couplings.itertuples(index=False):
+            nb, fb = _budgets(rules, cls.get(r.victim, ""))
+            if r.next_pct > nb or abs(r.fext_pct) > fb:
+                edge = ("the aggressor's edge" if r.edge_from == "aggressor" else
+                        "the victim's own edge (aggressor not in the trace list)")
+                cases.append((r.victim, r.aggressor, r.layer, r.width, r.spacing, r.length, r.rise, r.next_pct,
+                              r.fext_pct, cls.get(r.victim, ""), rows.get(r.victim), edge))
+    if not cases:
+        return []
+    from sicheck.crosstalk_plan import spacing_for_budget
+    from sicheck.physics.formula import solve_formula
+    searches: dict[tuple, float | None] = {}
+    out = []
+    for (victim, aggr, layer, w, s, length, rise, ne, fe, cname, row, edge) in cases:
+        nb, fb = _budgets(rules, cname)
+        key = (layer, w, nb, fb, length, rise)
+        if key not in searches:
+            use = solver if len(searches) < MAX_SPACING_SEARCHES else solve_formula
+            g = stackup.geometry(layer)
+            h = min(sum(x.thickness for x in g.below), sum(x.thickness for x in g.above) or 1.0)
+            res = spacing_for_budget(lambda sp: stackup.cross_section(layer, w, sp), layer, w, h, nb / 100.0, use,
+                                     rules.min_feature, length, rise, far_budget=fb / 100.0, near_at_length=True)
+            searches[key] = res.spacing
+        fix = searches[key]
+        fix_text = (f"a spacing of {fix * 1e3:.3f} mm ({fix / w:.1f} x the width) meets both" if fix is not None
+                    else "no spacing up to 40 dielectric heights meets them: shorten the coupled run or slow the edge")
+        volts = _volts_text(tables, rules, cname, layer, w, s, ne, fe)
+        msg = (f"{victim} on {layer} (w {w * 1e3:.3f} mm) next to {aggr or ANY_NEIGHBOUR} at {s * 1e3:.3f} mm over "
+               f"{length * 1e3:.1f} mm: NEXT {ne:.2f} % (budget {nb:g} %), FEXT {fe:+.2f} % (budget {fb:g} %) of "
+               f"the aggressor's step{volts}, with a {rise * 1e12:.0f} ps edge from {edge}; {fix_text}")
+        out.append(Finding("crosstalk", sev, victim, layer, msg, row))
+    return out
