@@ -303,5 +303,8 @@ def crosstalk_findings(tables: CrosstalkTables | None, seg: pd.DataFrame, rules,
         msg = (f"{victim} on {layer} (w {w * 1e3:.3f} mm) next to {aggr or ANY_NEIGHBOUR} at {s * 1e3:.3f} mm over "
                f"{length * 1e3:.1f} mm: NEXT {ne:.2f} % (budget {nb:g} %), FEXT {fe:+.2f} % (budget {fb:g} %) of "
                f"the aggressor's step{volts}, with a {rise * 1e12:.0f} ps edge from {edge}; {fix_text}")
+        i = _lookup(tables.sections, [layer], [w], [s])[0]
+        if i >= 0:
+            msg += "".join(f" (caution: {m})" for m in xt.validity_warnings(float(tables.sections["kb"].iat[i])))
         out.append(Finding("crosstalk", sev, victim, layer, msg, row))
     return out
