@@ -219,6 +219,7 @@ def add_net_crosstalk(nets: pd.DataFrame, all_seg: pd.DataFrame, tables: Crossta
     if tables.couplings is not None:
         parts.append(tables.couplings.rename(columns={"victim": "net"})[["net", "next_pct", "fext_pct"]])
     allx = pd.concat(parts, ignore_index=True)
+    allx = allx[allx["next_pct"].notna()].reset_index(drop=True)     # segments without a spacing
     allx["abs_fext"] = allx["fext_pct"].abs()
     g = allx.groupby("net")
     worst_next = g["next_pct"].max()

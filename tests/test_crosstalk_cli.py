@@ -121,6 +121,7 @@ CLK1,L1,60,,,,
 CLK1,L3,40,0.15,,,
 SLOW,L1,80,0.2,2ns,0.6,20
 QUIET,L3,30,0.15,1ns,,
+LONE,L1,10,0.2,1ns,,
 """
 
 
@@ -138,6 +139,7 @@ def test_review_with_class_spacing_and_coupling_file(run, board, tmp_path):
     assert seg[("SLOW", "L1")]["spacing_mm"] == pytest.approx(0.6)        # the trace list's own
     assert seg[("SLOW", "L1")]["parallel_mm"] == pytest.approx(20)
     assert seg[("QUIET", "L3")]["next_pct"] is None                       # no spacing: no figure
+    assert [n for n in d["nets"] if n["net"] == "LONE"][0]["next_pct"] is None   # nor for its net
     # CLK1 on the stripline: no far-end noise; on the microstrip: some
     assert abs(seg[("CLK1", "L3")]["fext_pct"]) < 1e-6
     assert seg[("CLK1", "L1")]["fext_pct"] < 0
