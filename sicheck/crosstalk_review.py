@@ -33,7 +33,7 @@ from sicheck.physics.line_result import LineResult
 # total noise allowance for crosstalk is a few percent of the swing).
 DEFAULT_MAX_NEXT_PCT = 5.0
 DEFAULT_MAX_FEXT_PCT = 5.0
-MAX_SPACING_SEARCHES = 40      # beyond this many distinct cases, the suggested spacing comes from the closed forms
+MAX_SPACING_SEARCHES = 12      # beyond this many distinct cases, the suggested spacing comes from the closed forms
 ANY_NEIGHBOUR = "any neighbour at the class spacing"
 Solver = Callable[[list[CrossSection]], list[LineResult]]
 
@@ -286,16 +286,23 @@ def crosstalk_findings(tables: CrosstalkTables | None, seg: pd.DataFrame, rules,
     from sicheck.crosstalk_plan import spacing_for_budget
     from sicheck.physics.formula import solve_formula
     searches: dict[tuple, float | None] = {}
+    # One search per (layer, width, budgets, edge), at the longest coupled run of that group: the spacing
+    # found then meets the budgets for every case in it (conservative for the shorter runs).
+    longest: dict[tuple, float] = {}
+    for (_, _, layer, w, _, length, rise, _, _, cname, _, _) in cases:
+        k = (layer, w, *_budgets(rules, cname), rise)
+        longest[k] = max(longest.get(k, 0.0), length)
     out = []
     for (victim, aggr, layer, w, s, length, rise, ne, fe, cname, row, edge) in cases:
         nb, fb = _budgets(rules, cname)
-        key = (layer, w, nb, fb, length, rise)
+        key = (layer, w, nb, fb, rise)
         if key not in searches:
             use = solver if len(searches) < MAX_SPACING_SEARCHES else solve_formula
             g = stackup.geometry(layer)
             h = min(sum(x.thickness for x in g.below), sum(x.thickness for x in g.above) or 1.0)
             res = spacing_for_budget(lambda sp: stackup.cross_section(layer, w, sp), layer, w, h, nb / 100.0, use,
-                                     rules.min_feature, length, rise, far_budget=fb / 100.0, near_at_length=True)
+                                     rules.min_feature, longest[key], rise, far_budget=fb / 100.0,
+                                     near_at_length=True)
             searches[key] = res.spacing
         fix = searches[key]
         fix_text = (f"a spacing of {fix * 1e3:.3f} mm ({fix / w:.1f} x the width) meets both" if fix is not None

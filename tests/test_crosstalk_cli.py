@@ -205,3 +205,19 @@ def test_rules_reject_bad_crosstalk_keys(run, board, tmp_path):
                           rules='[[net_class]]\nname = "X"\nmax_next_pct = 300\n')
     code, _, err = run("review", tr, "--stackup", st, "--rules", rules, "--solver", "formula")
     assert code == 2 and "max_next_pct" in err
+
+
+def test_spacing_search_meets_each_budget_and_stops_at_the_minimum_feature(board):
+    from sicheck.crosstalk_plan import spacing_for_budget
+    _, st = board("net,layer,length\n")
+    stack = load_stackup(st)
+    spacings = []
+    for budget in (0.005, 0.02, 0.06, 0.45):
+        r = spacing_for_budget(lambda s: stack.cross_section("L1", 0.2e-3, s), "L1", 0.2e-3, 0.2e-3, budget,
+                               solve_formula, 75e-6)
+        spacings.append(r.spacing)
+        if budget < 0.4:
+            assert r.kb == pytest.approx(budget, rel=0.005)
+            assert r.steps <= 6
+    assert spacings == sorted(spacings, reverse=True)
+    assert spacings[-1] == pytest.approx(75e-6)          # even the closest spacing meets a 45 % budget
