@@ -61,10 +61,14 @@ def test_line_spacing_errors(run, extra, msg):
 
 def test_plan_crosstalk_solves_the_spacing(run, board):
     _, st = board("net,layer,length\n")
+    xl = st.parent / "plan.xlsx"
     code, out, _ = run("plan", st, "--z0", "50", "--crosstalk", "3%", "--coupled-length", "50mm", "--rise", "200ps",
-                       "--solver", "formula", "--json")
+                       "--solver", "formula", "--json", "--out", xl)
     assert code == 0, out
     plan = json.loads(out)
+    rows = list(openpyxl.load_workbook(xl, read_only=True)["Spacing"].iter_rows(values_only=True))
+    assert [r[0] for r in rows[1:]] == [L["layer"] for L in plan["layers"]]
+    assert rows[1][4] == pytest.approx(plan["layers"][0]["crosstalk"]["spacing_mm"])
     stack = load_stackup(st)
     for L in plan["layers"]:
         x = L["crosstalk"]

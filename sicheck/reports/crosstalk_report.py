@@ -68,3 +68,22 @@ def crosstalk_sheet(wb: Workbook, rv) -> None:
         sh.row([int(r.row), r.victim, r.aggressor, r.layer, r.width * 1e3, r.spacing * 1e3, r.length * 1e3,
                 r.rise * 1e12, r.edge_from, r.kb, r.next_pct, r.fext_pct])
     sh.finish()
+
+
+def plan_crosstalk_sheet(wb: Workbook, plan: dict) -> None:
+    """Plan workbook sheet 'Spacing': the smallest spacing per layer for the crosstalk budget."""
+    from sicheck.reports.workbook import _Sheet
+    cols = [("Layer", None, 10), ("Line type", None, 11), ("Budget [%]", "0.00", 9), ("Width [mm]", "0.0000", 11),
+            ("Spacing [mm]", "0.0000", 11), ("Spacing / width", "0.00", 10), ("For NEXT [mm]", "0.0000", 11),
+            ("For FEXT [mm]", "0.0000", 11), ("NEXT saturated [%]", "0.000", 12), ("FEXT [%]", "0.000", 9),
+            ("Coupled length [mm]", "0.0", 11), ("Rise [ps]", "0", 9), ("Notes", None, 60)]
+    sh = _Sheet(wb, "Spacing", cols)
+    sh.header()
+    for L in plan["layers"]:
+        x = L.get("crosstalk")
+        if x:
+            sh.row([L["layer"], L["kind"], x.get("budget_pct"), x.get("width_mm"), x.get("spacing_mm"),
+                    x.get("spacing_over_width"), x.get("spacing_for_next_mm"), x.get("spacing_for_fext_mm"),
+                    x.get("next_saturated_pct"), x.get("fext_pct"), x.get("coupled_length_mm"), x.get("rise_ps"),
+                    "; ".join(x.get("notes", []))])
+    sh.finish()
