@@ -28,28 +28,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.signal import lfilter
 
-RAMP_PER_RISE = 1.0 / 0.8      # 10-90 % rise time Tr -> 0-100 % ramp of Tr/0.8 (linear ramp)
-SETTLE_BAND = 0.05             # +/- 5 % of v_final
-
-
-@dataclass(frozen=True)
-class Load:
-    """Receiver end: input capacitance plus an optional termination.
-
-    ``end_ohm`` to ``end_volts`` (a parallel termination; a Thevenin pair is given as its
-    equivalent, see ``thevenin``); with ``end_cap`` the end resistor is in series with that
-    capacitor to ground (an RC termination) instead.
-    """
-
-    cap: float = 0.0
-    end_ohm: float | None = None
-    end_volts: float = 0.0
-    end_cap: float | None = None
-
-
-def thevenin(r_up: float, r_down: float, supply: float) -> tuple[float, float]:
-    """Equivalent (R, V) of a resistor r_up to the supply and r_down to ground."""
-    return r_up * r_down / (r_up + r_down), supply * r_down / (r_up + r_down)
+# the shared definitions (load, ramp, settling band) are the engine's own, so both engines model the same thing
+from sicheck.physics.transient import RAMP_PER_RISE, SETTLE_BAND, Load, thevenin  # noqa: E402,F401
 
 
 @dataclass

@@ -163,18 +163,9 @@ def no_target(ctx, chk):
     termination value depends on it.
     How to fix: give the class a `z0` (or `zdiff` for pairs), or move the nets to a class that has one.
     """
-    from sicheck.physics.electrical import NOT_NEEDED
-    nets = ctx.nets
-    done: set = set()
+    from sicheck.checks.length import lines_longest_first
     untargeted: dict[str, list[str]] = {}
-    for r in nets.sort_values("delay", ascending=False).itertuples(index=False):
-        if r.termination == NOT_NEEDED:
-            continue
-        if r.pair:
-            ident = pair_id(r.net, r.pair)
-            if ident in done:
-                continue
-            done.add(ident)
+    for r in lines_longest_first(ctx.nets):
         if ctx.param("z0", r.net_class) is None and ctx.param("zdiff", r.net_class) is None:
             label = pair_label(r.net, r.pair) if r.pair else r.net
             untargeted.setdefault(r.net_class or "none", []).append(label)
