@@ -9,7 +9,7 @@ from sicheck.errors import InputError
 
 def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path | None, json_out: Path | None,
                solver: str, units: list[str] | None, maps: list[str] | None, sheet: str | None,
-               quiet: bool = False, no_cache: bool = False) -> int:
+               quiet: bool = False, no_cache: bool = False, coupling: Path | None = None) -> int:
     from rich.console import Console
 
     from sicheck.reports.atomic import refuse_inputs, write_text_atomic
@@ -22,7 +22,7 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
     from sicheck.stackup import load_stackup
     from sicheck.traces import parse_map_option, parse_units_option, read_traces
 
-    inputs = [traces, stackup] + list(rules or [])
+    inputs = [traces, stackup] + list(rules or []) + ([coupling] if coupling is not None else [])
     if out is not None:
         refuse_inputs(out, inputs, "--out", suffix=".xlsx")
     if json_out is not None:
@@ -34,7 +34,11 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
     aliases = dict(rs.columns)
     aliases.update(parse_map_option(maps))
     tl = read_traces(traces, parse_units_option(units), aliases, sheet)
-    rv = build_review(tl, st, rs, solver_fn(solver, no_cache, not quiet), solver)
+    cp = None
+    if coupling is not None:
+        from sicheck.crosstalk_review import read_couplings
+        cp = read_couplings(coupling, parse_units_option(units))
+    rv = build_review(tl, st, rs, solver_fn(solver, no_cache, not quiet), solver, couplings=cp)
     console = Console(highlight=False)
     if not quiet:
         print_summary(rv, console)

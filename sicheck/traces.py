@@ -32,6 +32,8 @@ COLUMNS = {
     "net_class": (None, None, False),
     "driver_ohm": ("resistance", "ohm", False),
     "load_pf": ("capacitance", "pF", False),
+    "spacing": ("length", None, False),     # crosstalk: edge-to-edge clearance to the nearest aggressor
+    "parallel": ("length", None, False),    # crosstalk: coupled length (default: the segment's length)
 }
 _HEADER_UNIT = re.compile(r"^(.*?)[\s_]*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
 
