@@ -60,11 +60,30 @@ def review(
                                                                      "(repeat or comma-separate)."),
     maps: Optional[list[str]] = typer.Option(None, "--map", help="Rename an export header: 'Net Name=net'."),
     sheet: Optional[str] = typer.Option(None, "--sheet", help="Worksheet of an .xlsx trace list."),
+    previous: Optional[Path] = typer.Option(None, "--previous", help="An earlier review (its signed .xlsx or its "
+                                                                     ".json): carry its decisions over and mark "
+                                                                     "findings new, changed or unchanged."),
+    change_pct: Optional[float] = typer.Option(None, "--change-pct", help="With --previous: a finding whose value "
+                                                                          "moved by more than this % is 'changed' "
+                                                                          "(default 1)."),
+    waivers: Optional[Path] = typer.Option(None, "--waivers", help="Waiver file (.toml): waived findings keep "
+                                                                   "their severity but do not fail the review."),
 ):
-    """Review a board's trace list against its stackup; exit 1 when there are errors."""
+    """Review a board's trace list against its stackup; exit 1 when there are errors not waived."""
     from sicheck.review_cmd import run_review
     raise typer.Exit(run_review(traces, stackup, rules, out, json_out, solver, units, maps, sheet,
-                                no_cache=no_cache))
+                                no_cache=no_cache, previous=previous, waivers=waivers, change_pct=change_pct))
+
+
+@app.command("waivers")
+def waivers_cmd(
+    signed: Path = typer.Argument(..., help="A signed review: the workbook (.xlsx) or JSON with dispositions."),
+    until: Optional[str] = typer.Option(None, "--until", help="Give every waiver this end date (YYYY-MM-DD)."),
+    out: Optional[Path] = typer.Option(None, "--out", "-o", help="Write the file here instead of standard output."),
+):
+    """Turn the accepted and waived findings of a signed review into a waiver file (TOML)."""
+    from sicheck.waivers_cmd import run_waivers
+    raise typer.Exit(run_waivers(signed, until, out))
 
 
 @app.command()
