@@ -32,6 +32,7 @@ COLUMNS = {
     "net_class": (None, None, False),
     "driver_ohm": ("resistance", "ohm", False),
     "load_pf": ("capacitance", "pF", False),
+    "match_group": (None, None, False),         # a [[match_group]] of the rules (sicheck/skew.py)
 }
 _HEADER_UNIT = re.compile(r"^(.*?)[\s_]*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
 
