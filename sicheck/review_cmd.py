@@ -10,7 +10,8 @@ from sicheck.errors import InputError
 def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path | None, json_out: Path | None,
                solver: str, units: list[str] | None, maps: list[str] | None, sheet: str | None,
                quiet: bool = False, no_cache: bool = False, previous: Path | None = None,
-               waivers: Path | None = None, change_pct: float | None = None) -> int:
+               waivers: Path | None = None, change_pct: float | None = None,
+               markdown: Path | None = None) -> int:
     from rich.console import Console
 
     from sicheck.reports.atomic import refuse_inputs, write_text_atomic
@@ -30,6 +31,10 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
         refuse_inputs(json_out, inputs, "--json")
     if out is not None and json_out is not None and Path(out).resolve() == Path(json_out).resolve():
         raise InputError("--out and --json name the same file")
+    if markdown is not None:
+        refuse_inputs(markdown, inputs, "--markdown")
+        if any(o is not None and Path(o).resolve() == Path(markdown).resolve() for o in (out, json_out)):
+            raise InputError("--markdown names the same file as --out or --json")
     # the sign-off inputs are read first: a typo there should not cost a whole review
     prior, wv = _signoff_inputs(previous, waivers, change_pct)
     st = load_stackup(stackup)
@@ -59,6 +64,11 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
         write_text_atomic(json_out, review_json(rv))
         if not quiet:
             console.print(f"json: {json_out}")
+    if markdown is not None:
+        from sicheck.reports.markdown import review_markdown
+        write_text_atomic(markdown, review_markdown(rv))
+        if not quiet:
+            console.print(f"markdown: {markdown}")
     return rv.exit_code
 
 
