@@ -21,6 +21,7 @@ from sicheck.physics.cross_section import CrossSection
 from sicheck.physics.formula import solve_formula
 from sicheck.physics.line_result import LineResult, per_length
 from sicheck.rules import Rules
+from sicheck.skew import check_group_column
 from sicheck.stackup import Stackup
 from sicheck.traces import TraceList
 
@@ -126,6 +127,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
                          f"({', '.join(layer_names.values())})", file=src, row=int(df["row"].iloc[i]), column="layer")
     df["layer"] = canon_layer.to_numpy()
     df = _resolve_classes(df, rules, src)
+    df = check_group_column(df, rules.match_groups, src)
     df["width"] = _class_value(df, rules, "width", "width")
     df["rise_time"] = _class_value(df, rules, "rise_time", "rise_time")
     df["gap"] = _class_value(df.assign(gap=np.where(df["pair"] != "", df["gap"], np.nan)), rules, "gap", "gap")
@@ -302,6 +304,7 @@ def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataF
         "freq": df["freq"].to_numpy(float),
         "xs": codes,
         "mirrored": False,
+        "match_group": df["match_group"].to_numpy() if "match_group" in df.columns else "",
     })
     seg["delay"] = seg["length"] * seg["delay_per_m"]
     return seg

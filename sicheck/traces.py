@@ -36,6 +36,7 @@ COLUMNS = {
     "from": (None, None, False),
     "to": (None, None, False),
     "driver": (None, None, False),
+    "match_group": (None, None, False),         # a [[match_group]] of the rules (sicheck/skew.py)
 }
 _HEADER_UNIT = re.compile(r"^(.*?)[\s_]*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
 
