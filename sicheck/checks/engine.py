@@ -168,6 +168,7 @@ class ReviewContext:
     rules: Any
     stackup: Any = None
     cross_sections: list = field(default_factory=list)
+    topology: dict = field(default_factory=dict)   # net -> topology.Topology, for nets whose rows name nodes
 
     def __post_init__(self):
         self.classes = {c.name: c for c in getattr(self.rules, "classes", ())}

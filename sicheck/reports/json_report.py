@@ -101,7 +101,7 @@ def segments_json(seg) -> list[dict]:
 def nets_json(nets) -> list[dict]:
     n = len(nets)
     c = {k: _col(nets, name, scale, digits) for k, name, scale, digits in (
-        ("length_mm", "length", 1e3, 6), ("delay_ps", "delay", 1e12, 6), ("rise_time_ps", "rise_time", 1e12, 6),
+        ("length_mm", "length", 1e3, 6), ("copper_length_mm", "copper_length", 1e3, 6), ("delay_ps", "delay", 1e12, 6), ("rise_time_ps", "rise_time", 1e12, 6),
         ("td_over_tr", "td_over_tr", 1, 4), ("freq_ghz", "freq", 1e-9, 4), ("loss_db", "loss_db", 1, 4),
         ("knee_ghz", "knee_hz", 1e-9, 4), ("wavelength_at_knee_mm", "wavelength_at_knee", 1e3, 6),
         ("lumped_limit_mm", "lumped_limit_length", 1e3, 6), ("critical_length_mm", "critical_length", 1e3, 6),
@@ -125,7 +125,8 @@ def nets_json(nets) -> list[dict]:
     out = []
     for i in range(n):
         d = {"net": net[i], "net_class": cls[i] or None, "pair": pair[i] or None, "segments": segs[i],
-             "layers": layers[i], "length_mm": c["length_mm"][i], "delay_ps": c["delay_ps"][i],
+             "layers": layers[i], "length_mm": c["length_mm"][i], "copper_length_mm": c["copper_length_mm"][i],
+             "delay_ps": c["delay_ps"][i],
              "rise_time_ps": c["rise_time_ps"][i], "td_over_tr": c["td_over_tr"][i], "freq_ghz": c["freq_ghz"][i],
              "loss_db": c["loss_db"][i], "knee_ghz": c["knee_ghz"][i],
              "wavelength_at_knee_mm": c["wavelength_at_knee_mm"][i], "lumped_limit_mm": c["lumped_limit_mm"][i],
