@@ -171,6 +171,7 @@ class ReviewContext:
     stackup: Any = None
     cross_sections: list = field(default_factory=list)
     crosstalk: Any = None
+    topology: dict = field(default_factory=dict)   # net -> topology.Topology, for nets whose rows name nodes
 
     def __post_init__(self):
         self.classes = {c.name: c for c in getattr(self.rules, "classes", ())}
