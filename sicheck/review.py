@@ -23,6 +23,7 @@ from sicheck.physics.line_result import LineResult, per_length
 from sicheck.rules import Rules
 from sicheck.stackup import Stackup
 from sicheck.traces import TraceList
+from sicheck.via_table import net_via_summary, via_delay_per_row, via_table
 
 Solver = Callable[[list[CrossSection]], list[LineResult]]
 
@@ -169,6 +170,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
           for layer, w, g, fk in uniques]
     results = solver(xs)
     seg = _segment_table(df, codes, xs, results)
+    seg["vias"] = df["vias"].to_numpy(float) if "vias" in df else 0.0
     _add_loss(seg, stackup, xs, results, codes, solver)
     for c, m in given.items():
         seg[f"{c}_given"] = m
@@ -180,18 +182,29 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
         mirror["net"], mirror["pair"] = mirror["pair"].to_numpy(), mirror["net"].to_numpy()
         mirror["mirrored"] = True
     all_seg = pd.concat([seg, mirror], ignore_index=True) if len(mirror) else seg
+    vias = _add_vias(all_seg, seg, stackup)
     nets = _net_table(all_seg, rules)
+    nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
     waves: dict = {}
     if waveforms:
         from sicheck.waveform_review import simulate_nets
         nets, waves = simulate_nets(all_seg, nets, rules, xs)
     ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
-                        cross_sections=list(zip(xs, results)))
+                        cross_sections=list(zip(xs, results)), vias=vias)
     findings = run_checks(ctx)
     findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
     return Review(segments=seg, nets=nets, findings=findings, stackup=stackup, rules=rules,
                   traces_source=src, solver=solver_name, cross_sections=cs, waves=waves)
+
+
+def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup) -> pd.DataFrame:
+    """The board's vias; each segment gains `via_delay`, the barrel delay of the vias entered on its row."""
+    vias = via_table(all_seg, stackup)
+    all_seg["via_delay"] = via_delay_per_row(all_seg, vias)
+    if all_seg is not seg:
+        seg["via_delay"] = all_seg["via_delay"].to_numpy()[:len(seg)]
+    return vias
 
 
 def _add_loss(seg: pd.DataFrame, stackup: Stackup, xs, results, codes, solver: Solver) -> None:
@@ -292,7 +305,8 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
         "segments": g.size().to_numpy(),
         "layers": _layer_paths(seg, first.index),
         "length": g["length"].sum().to_numpy(),
-        "delay": g["delay"].sum().to_numpy(),
+        # vias' barrel delay (review._add_vias) belongs to the net's delay
+        "delay": (g["delay"].sum() + (g["via_delay"].sum() if "via_delay" in seg else 0.0)).to_numpy(),
         "loss_db": g["loss_db"].sum().to_numpy(),
         "freq": first["freq"].to_numpy(),
         "rise_time": g["rise_time"].min().to_numpy(),

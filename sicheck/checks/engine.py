@@ -162,12 +162,14 @@ class ReviewContext:
         loss_db, freq, critical_length, advice, and the waveform stage's columns when it ran.
     cross_sections: (CrossSection, LineResult) per unique cross-section; segments["xs"] indexes it
     rules: the merged rule set; classes: class name -> NetClass
+    vias: one row per via (sicheck.via_table.VIA_COLUMNS), mirrored partners included
     """
     segments: Any
     nets: Any
     rules: Any
     stackup: Any = None
     cross_sections: list = field(default_factory=list)
+    vias: Any = None            # via_table.via_table(...) of all nets (None: the via checks derive it)
 
     def __post_init__(self):
         self.classes = {c.name: c for c in getattr(self.rules, "classes", ())}

@@ -119,6 +119,10 @@ def nets_json(nets) -> list[dict]:
         wave = {f"{w}_{k}": _col(nets, f"{w}_{k}", 1, 4) for w in ("before", "after") for k in WAVE_KEYS}
         loss_inc = nets["waveform_loss"].tolist() if "waveform_loss" in nets.columns else [False] * n
     inputs = nets["waveform_inputs"].tolist() if "waveform_inputs" in nets.columns else [None] * n
+    has_vias = "vias" in nets.columns       # via count and lowest stub resonance (review._add_vias)
+    if has_vias:
+        n_vias = [int(v) for v in nets["vias"].tolist()]
+        f_stub = _col(nets, "via_stub_resonance", 1e-9, 4)
     out = []
     for i in range(n):
         d = {"net": net[i], "net_class": cls[i] or None, "pair": pair[i] or None, "segments": segs[i],
@@ -145,6 +149,9 @@ def nets_json(nets) -> list[dict]:
             d["recommended_termination"] = None
             if has_wave and isinstance(assumptions[i], str) and assumptions[i]:
                 d["assumptions"] = assumptions[i]
+        if has_vias:
+            d["vias"] = n_vias[i]
+            d["via_stub_resonance_ghz"] = f_stub[i]
         if isinstance(inputs[i], dict):
             d["simulation"] = inputs[i]      # every value the waveform simulation used, with its source
         out.append(d)
