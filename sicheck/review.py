@@ -21,6 +21,7 @@ from sicheck.physics.cross_section import CrossSection
 from sicheck.physics.formula import solve_formula
 from sicheck.physics.line_result import LineResult, per_length
 from sicheck.rules import Rules
+from sicheck.skew import check_group_column
 from sicheck.stackup import Stackup
 from sicheck.traces import TraceList
 from sicheck.via_table import net_via_summary, via_delay_per_row, via_table
@@ -127,12 +128,14 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
                          f"({', '.join(layer_names.values())})", file=src, row=int(df["row"].iloc[i]), column="layer")
     df["layer"] = canon_layer.to_numpy()
     df = _resolve_classes(df, rules, src)
+    df = check_group_column(df, rules.match_groups, src)
     df["width"] = _class_value(df, rules, "width", "width")
     df["rise_time"] = _class_value(df, rules, "rise_time", "rise_time")
     df["gap"] = _class_value(df.assign(gap=np.where(df["pair"] != "", df["gap"], np.nan)), rules, "gap", "gap")
     df.loc[df["pair"] == "", "gap"] = np.nan
     given = {c: df[c].notna().to_numpy() for c in ("driver_ohm", "load_pf", "rise_time")}   # for the waveform notes
     df["driver_ohm"] = _class_value(df, rules, "driver_ohm", "driver_ohm")
+    df["load_pf"] = df["load_pf"] * 1e12     # the reader gives farads; classes, rules and this column use pF
     df["load_pf"] = _class_value(df, rules, "load_pf", "load_pf")
     for col, what in (("width", "a width (column 'width' or the net class's width)"),):
         miss = np.isnan(df[col].to_numpy(float))
@@ -174,6 +177,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     _add_loss(seg, stackup, xs, results, codes, solver)
     for c, m in given.items():
         seg[f"{c}_given"] = m
+    topology = _topology(df, seg, src)
 
     # ---- partners listed only through their pair: mirror their segments for the net table
     listed = set(df["net"])
@@ -185,12 +189,18 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     vias = _add_vias(all_seg, seg, stackup)
     nets = _net_table(all_seg, rules)
     nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
+    for partner, leg in zip(mirror["net"], mirror["pair"]):     # listed only through its pair: its leg's shape
+        if leg in topology:
+            topology.setdefault(partner, topology[leg])
+    from sicheck.topology import CHAIN_NOTE
+    nets["topology_note"] = [topology[n].note if n in topology else (CHAIN_NOTE if k > 1 else "")
+                             for n, k in zip(nets["net"], nets["segments"])]
     waves: dict = {}
     if waveforms:
         from sicheck.waveform_review import simulate_nets
-        nets, waves = simulate_nets(all_seg, nets, rules, xs)
+        nets, waves = simulate_nets(all_seg, nets, rules, xs, topology)
     ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
-                        cross_sections=list(zip(xs, results)), vias=vias)
+                        cross_sections=list(zip(xs, results)), topology=topology, vias=vias)
     findings = run_checks(ctx)
     findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
@@ -205,6 +215,33 @@ def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup) -> pd.
     if all_seg is not seg:
         seg["via_delay"] = all_seg["via_delay"].to_numpy()[:len(seg)]
     return vias
+
+
+def _topology(df: pd.DataFrame, seg: pd.DataFrame, src: str) -> dict:
+    """Each net's tree where its rows name nodes (sicheck/topology.py): {net: Topology}.
+
+    Marks the segments on the net's main path (`on_path`) and the one at its driver end (`driver_end`);
+    a net without nodes is its rows in series, driver first.
+    """
+    from sicheck import topology
+    seg["on_path"] = True
+    seg["driver_end"] = ~seg["net"].duplicated().to_numpy()
+    cols = {c: (df[c].to_numpy(object) if c in df.columns else np.full(len(df), "", dtype=object))
+            for c in ("from", "to", "driver")}
+    if not any(any(v) for v in cols.values()):
+        return {}
+    tops = topology.net_topologies(seg["net"].to_numpy(object), seg["row"].to_numpy(), cols["from"], cols["to"],
+                                   cols["driver"], seg["length"].to_numpy(float), seg["delay"].to_numpy(float),
+                                   seg["load_pf_given"].to_numpy(bool), src)
+    on, de = seg["on_path"].to_numpy(bool).copy(), seg["driver_end"].to_numpy(bool).copy()
+    for ix, t in tops.values():
+        ix = np.asarray(ix)
+        on[ix] = False
+        on[ix[list(t.path)]] = True
+        de[ix] = False
+        de[ix[t.path[0]]] = True
+    seg["on_path"], seg["driver_end"] = on, de
+    return {net: t for net, (_, t) in tops.items()}
 
 
 def _add_loss(seg: pd.DataFrame, stackup: Stackup, xs, results, codes, solver: Solver) -> None:
@@ -280,6 +317,7 @@ def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataF
         "freq": df["freq"].to_numpy(float),
         "xs": codes,
         "mirrored": False,
+        "match_group": df["match_group"].to_numpy() if "match_group" in df.columns else "",
     })
     seg["delay"] = seg["length"] * seg["delay_per_m"]
     return seg
@@ -298,16 +336,25 @@ def _layer_paths(seg: pd.DataFrame, nets: pd.Index) -> np.ndarray:
 def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     g = seg.groupby("net", sort=False)
     first = g.first()
+    # length, delay and loss along the main path (driver to the farthest receiver); all rows when not marked
+    on = seg["on_path"].to_numpy(bool) if "on_path" in seg.columns else np.ones(len(seg), bool)
+    gp = pd.DataFrame({"net": seg["net"], **{c: np.where(on, seg[c].to_numpy(float), 0.0)
+                                             for c in ("length", "delay", "loss_db", "via_delay")
+                                             if c in seg.columns}}).groupby("net", sort=False)
+    if "driver_end" in seg.columns:      # the driver-end segment's impedance, not the first row's
+        de = seg[seg["driver_end"].to_numpy(bool)].groupby("net", sort=False).first().reindex(first.index)
+        first = first.assign(zdiff=de["zdiff"], z0=de["z0"], zodd=de["zodd"])
     nets = pd.DataFrame({
         "net": first.index.to_numpy(),
         "net_class": first["net_class"].to_numpy(),
         "pair": first["pair"].to_numpy(),
         "segments": g.size().to_numpy(),
         "layers": _layer_paths(seg, first.index),
-        "length": g["length"].sum().to_numpy(),
+        "length": gp["length"].sum().to_numpy(),
+        "copper_length": g["length"].sum().to_numpy(),
         # vias' barrel delay (review._add_vias) belongs to the net's delay
-        "delay": (g["delay"].sum() + (g["via_delay"].sum() if "via_delay" in seg else 0.0)).to_numpy(),
-        "loss_db": g["loss_db"].sum().to_numpy(),
+        "delay": (gp["delay"].sum() + (gp["via_delay"].sum() if "via_delay" in seg else 0.0)).to_numpy(),
+        "loss_db": gp["loss_db"].sum().to_numpy(),
         "freq": first["freq"].to_numpy(),
         "rise_time": g["rise_time"].min().to_numpy(),
         "driver_ohm": first["driver_ohm"].to_numpy(),

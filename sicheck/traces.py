@@ -32,6 +32,11 @@ COLUMNS = {
     "net_class": (None, None, False),
     "driver_ohm": ("resistance", "ohm", False),
     "load_pf": ("capacitance", "pF", False),
+    # topology (sicheck/topology.py): each segment's end nodes and the net's driver node
+    "from": (None, None, False),
+    "to": (None, None, False),
+    "driver": (None, None, False),
+    "match_group": (None, None, False),         # a [[match_group]] of the rules (sicheck/skew.py)
     "vias": ("count", None, False),       # vias the export counts on the row, beyond layer changes (via_table)
 }
 _HEADER_UNIT = re.compile(r"^(.*?)[\s_]*[\[(]\s*([^\])]*?)\s*[\])]\s*$")

@@ -169,6 +169,7 @@ class ReviewContext:
     rules: Any
     stackup: Any = None
     cross_sections: list = field(default_factory=list)
+    topology: dict = field(default_factory=dict)   # net -> topology.Topology, for nets whose rows name nodes
     vias: Any = None            # via_table.via_table(...) of all nets (None: the via checks derive it)
 
     def __post_init__(self):

@@ -354,6 +354,45 @@ def _segments(book: Book, rv: Review):
     sh.finish()
 
 
+def _timing(book: Book, rv: Review):
+    """Match groups (a row per net, its delay relative to the reference or the group's median) and pairs whose
+    legs both have rows (their skew); written when the board has either."""
+    from sicheck.skew import group_timing, pair_skew
+    nets = rv.nets
+    length = dict(zip(nets["net"], nets["length"].to_numpy(float)))
+    layers = dict(zip(nets["net"], nets["layers"]))
+    rows = []
+    for gt in group_timing(rv.segments, nets, rv.rules.match_groups):
+        over = "yes" if gt.over else "no"
+        for net, d in zip(gt.nets, gt.delays):
+            rows.append(([gt.group.name, net, "yes" if net == gt.reference else "", d * 1e12,
+                          gt.offsets[net] * 1e12, length[net] * 1e3, layers[net], gt.skew * 1e12,
+                          gt.group.max_skew * 1e12, gt.skew_length * 1e3, gt.main_layer, over], gt.over))
+    skew = pair_skew(nets)
+    done = set()
+    for r, s in zip(nets.itertuples(index=False), skew):
+        if not np.isfinite(s) or frozenset((r.net, r.pair)) in done:
+            continue
+        done.add(frozenset((r.net, r.pair)))
+        limit = rv.rules.value("max_pair_skew", rv.rules.class_named(r.net_class) if r.net_class else None)
+        over = limit is not None and s > limit
+        rows.append((["(pair)", f"{r.net}/{r.pair}", "", r.delay * 1e12, None, r.length * 1e3, r.layers, s * 1e12,
+                      None if limit is None else limit * 1e12, s * r.length / r.delay * 1e3 if r.delay > 0 else None,
+                      "", "yes" if over else "no"], over))
+    if not rows:
+        return
+    cols = [("Match group", None, 14), ("Net", None, 18), ("Reference", None, 9), ("Delay [ps]", "0.0", 9),
+            ("From reference or median [ps]", "0.0", 10), ("Length [mm]", "0.00", 9), ("Layers", None, 14), ("Skew [ps]", "0.0", 8),
+            ("Limit [ps]", "0.0", 8), ("Skew as length [mm]", "0.00", 9), ("Main layer", None, 9),
+            ("Over limit", None, 7)]
+    sh = _Sheet(book, "Timing", cols, fit={0: [v[0] for v, _ in rows], 1: [v[1] for v, _ in rows],
+                                           6: [v[6] for v, _ in rows]})
+    sh.header()
+    for values, over in rows:
+        sh.row(values, fill=SEVERITY_FILL["warning"] if over else None, fill_cols=(11,))
+    sh.finish()
+
+
 def _stackup(book: Book, rv: Review):
     cols = [("#", "0", 4), ("Type", None, 11), ("Name", None, 14), ("Kind", None, 9), ("Thickness [mm]", "0.0000", 13),
             ("er", "0.00", 7), ("Loss tangent", "0.0000", 11), ("Line type", None, 11), ("References", None, 18),
@@ -470,6 +509,7 @@ def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
         _findings(book, rv)
         _nets(book, rv)
         _segments(book, rv)
+        _timing(book, rv)
         _stackup(book, rv)
         _rules(book, rv)
         if rv.waves:
