@@ -60,11 +60,58 @@ def review(
                                                                      "(repeat or comma-separate)."),
     maps: Optional[list[str]] = typer.Option(None, "--map", help="Rename an export header: 'Net Name=net'."),
     sheet: Optional[str] = typer.Option(None, "--sheet", help="Worksheet of an .xlsx trace list."),
+    previous: Optional[Path] = typer.Option(None, "--previous", help="An earlier review (its signed .xlsx or its "
+                                                                     ".json): carry its decisions over and mark "
+                                                                     "findings new, changed or unchanged."),
+    change_pct: Optional[float] = typer.Option(None, "--change-pct", help="With --previous: a finding whose value "
+                                                                          "moved by more than this % is 'changed' "
+                                                                          "(default 1)."),
+    waivers: Optional[Path] = typer.Option(None, "--waivers", help="Waiver file (.toml): waived findings keep "
+                                                                   "their severity but do not fail the review."),
+    markdown: Optional[Path] = typer.Option(None, "--markdown", help="Short Markdown summary to write (for a CI "
+                                                                     "page or a pull-request comment)."),
 ):
-    """Review a board's trace list against its stackup; exit 1 when there are errors."""
+    """Review a board's trace list against its stackup; exit 1 when there are errors not waived."""
     from sicheck.review_cmd import run_review
     raise typer.Exit(run_review(traces, stackup, rules, out, json_out, solver, units, maps, sheet,
-                                no_cache=no_cache))
+                                no_cache=no_cache, previous=previous, waivers=waivers, change_pct=change_pct,
+                                markdown=markdown))
+
+
+@app.command()
+def compare(
+    first: Path = typer.Argument(..., help="OLD.json (a review's --json), or the trace list for the what-if form."),
+    second: Optional[Path] = typer.Argument(None, help="NEW.json (omit for the what-if form)."),
+    stackup: Optional[list[Path]] = typer.Option(None, "--stackup", "-s", help="What-if form: give two stackups; "
+                                                                               "the trace list is reviewed on each."),
+    rules: Optional[list[Path]] = typer.Option(None, "--rules", "-r", help="What-if form: rule set (repeatable)."),
+    out: Optional[Path] = typer.Option(None, "--out", "-o", help="Comparison workbook to write (.xlsx)."),
+    json_out: Optional[Path] = typer.Option(None, "--json", help="Comparison as JSON."),
+    markdown: Optional[Path] = typer.Option(None, "--markdown", help="Short Markdown summary to write."),
+    threshold_pct: float = typer.Option(2.0, "--threshold-pct", help="A number (impedance, delay, loss, a finding's "
+                                                                     "value) has changed when it moved by more "
+                                                                     "than this %."),
+    solver: str = typer.Option("auto", "--solver", help="What-if form: auto, field or formula."),
+    no_cache: bool = typer.Option(False, "--no-cache", help="Do not use the field-solver cache."),
+    units: Optional[list[str]] = typer.Option(None, "--units", help="What-if form: unit for bare numbers."),
+    maps: Optional[list[str]] = typer.Option(None, "--map", help="What-if form: rename an export header."),
+    sheet: Optional[str] = typer.Option(None, "--sheet", help="What-if form: worksheet of an .xlsx trace list."),
+):
+    """What changed between two reviews, per net; exit 1 when the change introduces an error finding."""
+    from sicheck.compare_cmd import run_compare
+    raise typer.Exit(run_compare(first, second, stackup, rules, out, json_out, markdown, threshold_pct, solver,
+                                 units, maps, sheet, no_cache))
+
+
+@app.command("waivers")
+def waivers_cmd(
+    signed: Path = typer.Argument(..., help="A signed review: the workbook (.xlsx) or JSON with dispositions."),
+    until: Optional[str] = typer.Option(None, "--until", help="Give every waiver this end date (YYYY-MM-DD)."),
+    out: Optional[Path] = typer.Option(None, "--out", "-o", help="Write the file here instead of standard output."),
+):
+    """Turn the accepted and waived findings of a signed review into a waiver file (TOML)."""
+    from sicheck.waivers_cmd import run_waivers
+    raise typer.Exit(run_waivers(signed, until, out))
 
 
 @app.command()

@@ -40,6 +40,7 @@ class Review:
     solver: str
     cross_sections: list[tuple[str, CrossSection, LineResult]] = field(default_factory=list)
     waves: dict = field(default_factory=dict)     # net -> ((t, v) before, (t, v) after, v_final)
+    signoff: object = None      # sicheck.signoff.SignOff when a previous review or waivers were given
 
     @property
     def counts(self) -> dict[str, int]:
@@ -68,7 +69,10 @@ class Review:
 
     @property
     def exit_code(self) -> int:
-        return 1 if self.counts["error"] else 0
+        """1 when an error finding is not waived (a waived finding keeps its severity but passes)."""
+        waived = self.signoff.waived_keys if self.signoff is not None else set()
+        return 1 if any(f.severity == "error" and (f.key or f"{f.rule}|{f.net}") not in waived
+                        for f in self.findings) else 0
 
 
 def _resolve_classes(df: pd.DataFrame, rules: Rules, src: str) -> pd.DataFrame:

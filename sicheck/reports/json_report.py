@@ -8,6 +8,7 @@ import math
 import numpy as np
 
 from sicheck import __version__
+from sicheck.reports.signoff_columns import finding_json, signoff_json
 from sicheck.review import Review
 from sicheck.skew import group_timing, pair_skew
 
@@ -178,7 +179,8 @@ def review_dict(rv: Review) -> dict:
         "exit_code": rv.exit_code,
     }
     return {"summary": summary, "nets": nets_json(nets), "segments": segments_json(rv.segments),
-            "findings": [f.as_dict() for f in rv.findings], "match_groups": match_groups_json(rv)}
+            "findings": [f.as_dict() | finding_json(rv.signoff, f) for f in rv.findings],
+            "match_groups": match_groups_json(rv), **signoff_json(rv.signoff)}
 
 
 def match_groups_json(rv: Review) -> list[dict]:

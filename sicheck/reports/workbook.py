@@ -21,6 +21,7 @@ import xlsxwriter
 
 from sicheck import __version__
 from sicheck.reports.atomic import atomic_path
+from sicheck.reports.signoff_columns import finding_cells, finding_columns, summary_lines
 from sicheck.review import Review
 
 FORMULA_START = ("=", "+", "-", "@", "\t")
@@ -255,6 +256,7 @@ def _summary(book: Book, rv: Review):
                     "test coupons. No high-voltage creepage/clearance or product-safety checks."),
         ("", ""),
     ]
+    rows += summary_lines(rv.signoff)       # what changed since the previous review; waivers
     ws, r = key_value_sheet(book, "Summary", "Signal-integrity review", rows)
     book.text(ws, r, 0, "Sign-off", bold=True, font_size=14)
     for k in ("Reviewed by", "Date", "Decision (approve / rework)", "Notes"):
@@ -266,7 +268,7 @@ def _findings(book: Book, rv: Review):
     # the message wraps in a column a page can hold, so a printed row reads without a second page
     cols = [("ID", None, 7), ("Severity", None, 9), ("Rule", None, 16), ("Net", None, 18), ("Layer", None, 10),
             ("Finding", None, -70), ("Trace row", "0", 7), ("Disposition", None, 12), ("Reviewer", None, 12),
-            ("Comment", None, -24)]
+            ("Comment", None, -24)] + finding_columns(rv.signoff)
     fs = rv.findings
     sh = _Sheet(book, "Findings", cols, fit={3: [f.net for f in fs], 4: [f.layer for f in fs]})
     n = max(len(fs), 1)
@@ -274,7 +276,7 @@ def _findings(book: Book, rv: Review):
                                        "error_title": "Disposition", "error_message": "Choose accept, fix or waive"})
     sh.header()
     for i, f in enumerate(fs):
-        sh.row([f"F{i + 1:04d}", f.severity, f.rule, f.net, f.layer, f.message, f.row],
+        sh.row([f"F{i + 1:04d}", f.severity, f.rule, f.net, f.layer, f.message, f.row] + finding_cells(rv.signoff, f),
                fill=SEVERITY_FILL[f.severity], fill_cols=(1,))
     sh.finish()
 
