@@ -40,6 +40,7 @@ class Review:
     solver: str
     cross_sections: list[tuple[str, CrossSection, LineResult]] = field(default_factory=list)
     waves: dict = field(default_factory=dict)     # net -> ((t, v) before, (t, v) after, v_final)
+    crosstalk: object = None                      # crosstalk_review.CrosstalkTables when spacings were given
     signoff: object = None      # sicheck.signoff.SignOff when a previous review or waivers were given
 
     @property
@@ -119,7 +120,8 @@ def _check_pairs(df: pd.DataFrame, src: str) -> None:
 
 
 def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solver = solve_formula,
-                 solver_name: str = "formula", waveforms: bool = True) -> Review:
+                 solver_name: str = "formula", waveforms: bool = True,
+                 couplings: pd.DataFrame | None = None) -> Review:
     src = traces.source
     df = traces.frame.copy()
     # layers
@@ -181,6 +183,10 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     _add_loss(seg, stackup, xs, results, codes, solver)
     for c, m in given.items():
         seg[f"{c}_given"] = m
+    from sicheck import crosstalk_review as xtr     # before the mirroring: partners inherit the columns
+    if couplings is not None:
+        couplings = xtr.prepare_couplings(couplings, seg, stackup)
+    xtalk = xtr.add_segment_crosstalk(seg, df, rules, stackup, solver, couplings)
     topology = _topology(df, seg, src)
 
     # ---- partners listed only through their pair: mirror their segments for the net table
@@ -203,13 +209,17 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     if waveforms:
         from sicheck.waveform_review import simulate_nets
         nets, waves = simulate_nets(all_seg, nets, rules, xs, topology)
+    if xtalk is not None and couplings is not None:
+        xtr.attach_couplings(xtalk, couplings, seg, dict(zip(nets["net"], nets["rise_time"])))
+    xtr.add_net_crosstalk(nets, all_seg, xtalk)
     ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
-                        cross_sections=list(zip(xs, results)), topology=topology, vias=vias)
+                        cross_sections=list(zip(xs, results)), topology=topology, crosstalk=xtalk,
+                        vias=vias)
     findings = run_checks(ctx)
     findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
     return Review(segments=seg, nets=nets, findings=findings, stackup=stackup, rules=rules,
-                  traces_source=src, solver=solver_name, cross_sections=cs, waves=waves)
+                  traces_source=src, solver=solver_name, cross_sections=cs, waves=waves, crosstalk=xtalk)
 
 
 def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup) -> pd.DataFrame:
