@@ -11,7 +11,7 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
                solver: str, units: list[str] | None, maps: list[str] | None, sheet: str | None,
                quiet: bool = False, no_cache: bool = False, previous: Path | None = None,
                waivers: Path | None = None, change_pct: float | None = None,
-               markdown: Path | None = None) -> int:
+               markdown: Path | None = None, coupling: Path | None = None) -> int:
     from rich.console import Console
 
     from sicheck.reports.atomic import refuse_inputs, write_text_atomic
@@ -24,7 +24,7 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
     from sicheck.stackup import load_stackup
     from sicheck.traces import parse_map_option, parse_units_option, read_traces
 
-    inputs = [traces, stackup] + list(rules or []) + [p for p in (previous, waivers) if p is not None]
+    inputs = [traces, stackup] + list(rules or []) + [p for p in (previous, waivers, coupling) if p is not None]
     if out is not None:
         refuse_inputs(out, inputs, "--out", suffix=".xlsx")
     if json_out is not None:
@@ -42,7 +42,11 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
     aliases = dict(rs.columns)
     aliases.update(parse_map_option(maps))
     tl = read_traces(traces, parse_units_option(units), aliases, sheet)
-    rv = build_review(tl, st, rs, solver_fn(solver, no_cache, not quiet), solver)
+    cp = None
+    if coupling is not None:
+        from sicheck.crosstalk_review import read_couplings
+        cp = read_couplings(coupling, parse_units_option(units))
+    rv = build_review(tl, st, rs, solver_fn(solver, no_cache, not quiet), solver, couplings=cp)
     if previous is not None or waivers is not None:
         from sicheck.signoff import CHANGE_PCT, sign_off
         rv.findings, rv.signoff = sign_off(rv.findings, prior, None if previous is None else str(previous), wv,

@@ -294,6 +294,9 @@ def _nets(book: Book, rv: Review):
             ("Settled before [ns]", "0.00", 9), ("Settled after [ns]", "0.00", 9), ("Flight time [ns]", "0.000", 8),
             ("Termination power [mW]", "0.0", 10), ("Meets limits", None, 7), ("First-order advice", None, -50)]
     nets = rv.nets
+    has_xt = "next_pct" in nets.columns       # crosstalk inputs given
+    if has_xt:
+        cols = cols + [("Worst NEXT [%]", "0.00", 8), ("Worst FEXT [%]", "0.00", 8)]
     sh = _Sheet(book, "Nets", cols, fit={0: nets["net"], 1: nets["net_class"], 2: nets["pair"], 3: nets["layers"],
                                          9: nets["electrical"], 10: nets["termination"]})
     sh.header()
@@ -319,7 +322,7 @@ def _nets(book: Book, rv: Review):
                 num("termination_power_w", 1e3), [m if s else None for m, s in zip(meets, sim)]]
     else:
         wave = [empty] * 10
-    columns = base + wave + [nets["advice"].tolist()]
+    columns = base + wave + [nets["advice"].tolist()] + ([num("next_pct"), num("fext_pct")] if has_xt else [])
     term = nets["termination"].tolist()
     for i, values in enumerate(zip(*columns)):
         sh.row(list(values), fill=fills.get(term[i]), fill_cols=(10,))
@@ -336,6 +339,10 @@ def _segments(book: Book, rv: Review):
             ("Uncertainty [%]", "0.00", 8), ("Closed-form Z [ohm]", "0.0", 9), ("Freq [GHz]", "0.000", 7),
             ("Loss [dB/mm]", "0.0000", 8), ("Conductor [dB/mm]", "0.0000", 9), ("Dielectric [dB/mm]", "0.0000", 9),
             ("Loss [dB]", "0.000", 7)]
+    has_xt = "next_pct" in seg.columns        # crosstalk inputs given
+    if has_xt:
+        cols = cols + [("Spacing [mm]", "0.000", 8), ("Coupled length [mm]", "0.0", 9), ("NEXT [%]", "0.00", 7),
+                       ("FEXT [%]", "0.00", 7)]
     sh = _Sheet(book, "Segments", cols, fit={1: seg["net"], 2: seg["pair"], 3: seg["layer"], 17: seg["model"]},
                 key_cols=2)
     sh.header()
@@ -351,6 +358,8 @@ def _segments(book: Book, rv: Review):
                num("c_per_m", 1e9), seg["model"].tolist(), num("uncertainty_pct"), zf, num("freq", 1e-9),
                num("loss_db_per_m", 1e-3), num("conductor_loss_db_per_m", 1e-3),
                num("dielectric_loss_db_per_m", 1e-3), num("loss_db")]
+    if has_xt:
+        columns += [num("spacing", 1e3), num("parallel", 1e3), num("next_pct"), num("fext_pct")]
     for values in zip(*columns):
         sh.row(values)
     sh.finish()
@@ -516,6 +525,9 @@ def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
         _rules(book, rv)
         if rv.waves:
             _waveforms(book, rv)
+        if getattr(rv, "crosstalk", None) is not None:
+            from sicheck.reports.crosstalk_report import crosstalk_sheet
+            crosstalk_sheet(book, rv)
         for fn in extra_sheets or ():
             fn(book, rv)
         book.close()
