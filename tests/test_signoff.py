@@ -258,6 +258,8 @@ def test_waivers_command_reproduces_the_sign_off(review, run, tmp_path):
     ('waiver = 3\n', "line 1, key 'waiver'"),
     ('[[waiver]]\nkey = "z0-target|A"\nreason = "r\n', "line 3"),
     ('[[waivers]]\nkey = "z0-target|A"\n', "line 1, key 'waivers'"),
+    ('[[waiver]]\nkey = "waiver-expired|z0-target|A"\nreason = "r"\nby = "x"\n', "line 2, key 'key'"),
+    ('[[waiver]]\nkey = "zo-target|A"\nreason = "r"\nby = "x"\n', "line 2, key 'key': waiver 1: the key's rule"),
 ])
 def test_malformed_waiver_files_name_file_line_and_key(tmp_path, text, where):
     p = tmp_path / "w.toml"
