@@ -440,6 +440,10 @@ def _rules(wb: Book, rv: Review):
             vals.append(f"Rdrv {c.driver_ohm:g} ohm")
         vals += [f"{k} {v:g}" for k, v in c.params.items() if k not in ("z0", "zdiff", "tolerance_pct")]
         sh.row([f"class {c.name}", ", ".join(vals), "[[net_class]]", " ".join(c.match) or "(by net_class column)"])
+    for g in r.match_groups:
+        sh.row([f"match group {g.name}", f"max_skew {g.max_skew * 1e12:g} ps" +
+                (f", reference {g.reference}" if g.reference else ""), "[[match_group]]",
+                " ".join(g.match) or "(by match_group column)"])
     sh.finish()
 
 
