@@ -78,6 +78,17 @@ def rows() -> list[list]:
     seg("USB_D_P", "IN3", 25.0, pair="USB_D_N", gap=0.1)     # tight gap on the offset layer
     seg("LASER_TRIG_P", "IN6", 210.0, pair="LASER_TRIG_N", cls="LVDS")
 
+    # ---- vias and return paths (issue 9) ----
+    # A 28 Gb/s optical uplink that dives from TOP to IN3 through through-vias: the barrel below IN3 is a
+    # long stub (via-stub). Widths from `sicheck plan --zdiff 100 --gap-rule fixed:0.15mm`.
+    seg("UPLINK_TX_P", "TOP", 5.0, width=0.089, pair="UPLINK_TX_N")
+    seg("UPLINK_TX_P", "IN3", 48.0, width=0.116, pair="UPLINK_TX_N")
+    seg("UPLINK_TX_P", "TOP", 4.0, width=0.089, pair="UPLINK_TX_N")
+    # An SPI clock that changes from TOP (over GND) to BOT (over the +3V3 plane): return-path warning.
+    seg("SPI_DAC_SCK", "TOP", 22.0)
+    seg("SPI_DAC_SCK", "BOT", 38.0)
+    # ---- end vias and return paths ----
+
     # ---- timing block (match group, skewed pair; keep it a block of its own at the end) ----
     # TDC capture bus: four data bits matched to their strobe (rules: [[match_group]] "TDC bus", 10 ps).
     # TDC_D1 has the strobe's length but runs 20 mm of it on TOP (microstrip, faster): lengths match, delays
@@ -90,6 +101,7 @@ def rows() -> list[list]:
     # Frame-sync pair from the lidar head, both legs listed: the N leg is 2.5 mm longer (a connector pin swap).
     seg("HEAD_SYNC_P", "IN6", 80.0, pair="HEAD_SYNC_N", cls="LVDS")
     seg("HEAD_SYNC_N", "IN6", 82.5, pair="HEAD_SYNC_P", cls="LVDS")
+    # ---- end timing block ----
     return out
 
 
