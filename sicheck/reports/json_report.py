@@ -120,6 +120,7 @@ def nets_json(nets) -> list[dict]:
         wave = {f"{w}_{k}": _col(nets, f"{w}_{k}", 1, 4) for w in ("before", "after") for k in WAVE_KEYS}
         loss_inc = nets["waveform_loss"].tolist() if "waveform_loss" in nets.columns else [False] * n
     inputs = nets["waveform_inputs"].tolist() if "waveform_inputs" in nets.columns else [None] * n
+    rx = nets["receivers"].tolist() if "receivers" in nets.columns else [None] * n
     pair_skew_ps = round_sig(pair_skew(nets) * 1e12, 4)
     out = []
     for i in range(n):
@@ -148,6 +149,10 @@ def nets_json(nets) -> list[dict]:
             d["recommended_termination"] = None
             if has_wave and isinstance(assumptions[i], str) and assumptions[i]:
                 d["assumptions"] = assumptions[i]
+        if isinstance(rx[i], list):         # every receiver's metrics (one for a chain)
+            d["receivers"] = [{"receiver": x["receiver"], "load_pf": _num(x["load_pf"]), "meets_limits": bool(x["meets"]),
+                               "before": {k: _num(x["before"][k], 4) for k in WAVE_KEYS},
+                               "after": {k: _num(x["after"][k], 4) for k in WAVE_KEYS}} for x in rx[i]]
         if isinstance(inputs[i], dict):
             d["simulation"] = inputs[i]      # every value the waveform simulation used, with its source
         out.append(d)
