@@ -24,6 +24,7 @@ from sicheck.rules import Rules
 from sicheck.skew import check_group_column
 from sicheck.stackup import Stackup
 from sicheck.traces import TraceList
+from sicheck.via_table import net_via_summary, via_delay_per_row, via_table
 
 Solver = Callable[[list[CrossSection]], list[LineResult]]
 
@@ -39,6 +40,8 @@ class Review:
     solver: str
     cross_sections: list[tuple[str, CrossSection, LineResult]] = field(default_factory=list)
     waves: dict = field(default_factory=dict)     # net -> ((t, v) before, (t, v) after, v_final)
+    crosstalk: object = None                      # crosstalk_review.CrosstalkTables when spacings were given
+    signoff: object = None      # sicheck.signoff.SignOff when a previous review or waivers were given
 
     @property
     def counts(self) -> dict[str, int]:
@@ -67,7 +70,10 @@ class Review:
 
     @property
     def exit_code(self) -> int:
-        return 1 if self.counts["error"] else 0
+        """1 when an error finding is not waived (a waived finding keeps its severity but passes)."""
+        waived = self.signoff.waived_keys if self.signoff is not None else set()
+        return 1 if any(f.severity == "error" and (f.key or f"{f.rule}|{f.net}") not in waived
+                        for f in self.findings) else 0
 
 
 def _resolve_classes(df: pd.DataFrame, rules: Rules, src: str) -> pd.DataFrame:
@@ -114,7 +120,8 @@ def _check_pairs(df: pd.DataFrame, src: str) -> None:
 
 
 def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solver = solve_formula,
-                 solver_name: str = "formula", waveforms: bool = True) -> Review:
+                 solver_name: str = "formula", waveforms: bool = True,
+                 couplings: pd.DataFrame | None = None) -> Review:
     src = traces.source
     df = traces.frame.copy()
     # layers
@@ -172,9 +179,14 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
           for layer, w, g, fk in uniques]
     results = solver(xs)
     seg = _segment_table(df, codes, xs, results)
+    seg["vias"] = df["vias"].to_numpy(float) if "vias" in df else 0.0
     _add_loss(seg, stackup, xs, results, codes, solver)
     for c, m in given.items():
         seg[f"{c}_given"] = m
+    from sicheck import crosstalk_review as xtr     # before the mirroring: partners inherit the columns
+    if couplings is not None:
+        couplings = xtr.prepare_couplings(couplings, seg, stackup)
+    xtalk = xtr.add_segment_crosstalk(seg, df, rules, stackup, solver, couplings)
     topology = _topology(df, seg, src)
 
     # ---- partners listed only through their pair: mirror their segments for the net table
@@ -184,7 +196,9 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
         mirror["net"], mirror["pair"] = mirror["pair"].to_numpy(), mirror["net"].to_numpy()
         mirror["mirrored"] = True
     all_seg = pd.concat([seg, mirror], ignore_index=True) if len(mirror) else seg
+    vias = _add_vias(all_seg, seg, stackup)
     nets = _net_table(all_seg, rules)
+    nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
     for partner, leg in zip(mirror["net"], mirror["pair"]):     # listed only through its pair: its leg's shape
         if leg in topology:
             topology.setdefault(partner, topology[leg])
@@ -195,13 +209,26 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     if waveforms:
         from sicheck.waveform_review import simulate_nets
         nets, waves = simulate_nets(all_seg, nets, rules, xs, topology)
+    if xtalk is not None and couplings is not None:
+        xtr.attach_couplings(xtalk, couplings, seg, dict(zip(nets["net"], nets["rise_time"])))
+    xtr.add_net_crosstalk(nets, all_seg, xtalk)
     ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
-                        cross_sections=list(zip(xs, results)), topology=topology)
+                        cross_sections=list(zip(xs, results)), topology=topology, crosstalk=xtalk,
+                        vias=vias)
     findings = run_checks(ctx)
     findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
     return Review(segments=seg, nets=nets, findings=findings, stackup=stackup, rules=rules,
-                  traces_source=src, solver=solver_name, cross_sections=cs, waves=waves)
+                  traces_source=src, solver=solver_name, cross_sections=cs, waves=waves, crosstalk=xtalk)
+
+
+def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup) -> pd.DataFrame:
+    """The board's vias; each segment gains `via_delay`, the barrel delay of the vias entered on its row."""
+    vias = via_table(all_seg, stackup)
+    all_seg["via_delay"] = via_delay_per_row(all_seg, vias)
+    if all_seg is not seg:
+        seg["via_delay"] = all_seg["via_delay"].to_numpy()[:len(seg)]
+    return vias
 
 
 def _topology(df: pd.DataFrame, seg: pd.DataFrame, src: str) -> dict:
@@ -326,7 +353,8 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     # length, delay and loss along the main path (driver to the farthest receiver); all rows when not marked
     on = seg["on_path"].to_numpy(bool) if "on_path" in seg.columns else np.ones(len(seg), bool)
     gp = pd.DataFrame({"net": seg["net"], **{c: np.where(on, seg[c].to_numpy(float), 0.0)
-                                             for c in ("length", "delay", "loss_db")}}).groupby("net", sort=False)
+                                             for c in ("length", "delay", "loss_db", "via_delay")
+                                             if c in seg.columns}}).groupby("net", sort=False)
     if "driver_end" in seg.columns:      # the driver-end segment's impedance, not the first row's
         de = seg[seg["driver_end"].to_numpy(bool)].groupby("net", sort=False).first().reindex(first.index)
         first = first.assign(zdiff=de["zdiff"], z0=de["z0"], zodd=de["zodd"])
@@ -338,7 +366,8 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
         "layers": _layer_paths(seg, first.index),
         "length": gp["length"].sum().to_numpy(),
         "copper_length": g["length"].sum().to_numpy(),
-        "delay": gp["delay"].sum().to_numpy(),
+        # vias' barrel delay (review._add_vias) belongs to the net's delay
+        "delay": (gp["delay"].sum() + (gp["via_delay"].sum() if "via_delay" in seg else 0.0)).to_numpy(),
         "loss_db": gp["loss_db"].sum().to_numpy(),
         "freq": first["freq"].to_numpy(),
         "rise_time": g["rise_time"].min().to_numpy(),

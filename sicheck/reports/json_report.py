@@ -8,6 +8,7 @@ import math
 import numpy as np
 
 from sicheck import __version__
+from sicheck.reports.signoff_columns import finding_json, signoff_json
 from sicheck.review import Review
 from sicheck.skew import group_timing, pair_skew
 
@@ -73,6 +74,8 @@ def segments_json(seg) -> list[dict]:
     }
     net, layer, pair, kind, model, row = (seg[c].tolist() for c in ("net", "layer", "pair", "kind", "model", "row"))
     row = [int(r) for r in row]
+    xt = ((_col(seg, "spacing", 1e3), _col(seg, "parallel", 1e3), _col(seg, "next_pct", 1, 4),
+           _col(seg, "fext_pct", 1, 4)) if "next_pct" in seg else None)       # crosstalk inputs given
     out = []
     for i in range(len(seg)):
         d = {"row": row[i], "net": net[i], "layer": layer[i], "kind": kind[i],
@@ -93,6 +96,8 @@ def segments_json(seg) -> list[dict]:
                 d["formula_zdiff_ohm"] = cols["formula_zdiff_ohm"][i]
         if cols["formula_z_ohm"][i] is not None:
             d["formula_z0_ohm"] = cols["formula_z_ohm"][i]
+        if xt is not None:
+            d.update(spacing_mm=xt[0][i], parallel_mm=xt[1][i], next_pct=xt[2][i], fext_pct=xt[3][i])
         out.append(d)
     return out
 
@@ -121,7 +126,12 @@ def nets_json(nets) -> list[dict]:
         loss_inc = nets["waveform_loss"].tolist() if "waveform_loss" in nets.columns else [False] * n
     inputs = nets["waveform_inputs"].tolist() if "waveform_inputs" in nets.columns else [None] * n
     rx = nets["receivers"].tolist() if "receivers" in nets.columns else [None] * n
+    xt = (_col(nets, "next_pct", 1, 4), _col(nets, "fext_pct", 1, 4)) if "next_pct" in nets.columns else None
     pair_skew_ps = round_sig(pair_skew(nets) * 1e12, 4)
+    has_vias = "vias" in nets.columns       # via count and lowest stub resonance (review._add_vias)
+    if has_vias:
+        n_vias = [int(v) for v in nets["vias"].tolist()]
+        f_stub = _col(nets, "via_stub_resonance", 1e-9, 4)
     out = []
     for i in range(n):
         d = {"net": net[i], "net_class": cls[i] or None, "pair": pair[i] or None, "segments": segs[i],
@@ -153,8 +163,13 @@ def nets_json(nets) -> list[dict]:
             d["receivers"] = [{"receiver": x["receiver"], "load_pf": _num(x["load_pf"]), "meets_limits": bool(x["meets"]),
                                "before": {k: _num(x["before"][k], 4) for k in WAVE_KEYS},
                                "after": {k: _num(x["after"][k], 4) for k in WAVE_KEYS}} for x in rx[i]]
+        if has_vias:
+            d["vias"] = n_vias[i]
+            d["via_stub_resonance_ghz"] = f_stub[i]
         if isinstance(inputs[i], dict):
             d["simulation"] = inputs[i]      # every value the waveform simulation used, with its source
+        if xt is not None:
+            d["next_pct"], d["fext_pct"] = xt[0][i], xt[1][i]
         out.append(d)
     return out
 
@@ -175,8 +190,13 @@ def review_dict(rv: Review) -> dict:
         "electrical": {k: rv.net_counts[k] for k in ("lumped", "transmission-line")},
         "exit_code": rv.exit_code,
     }
-    return {"summary": summary, "nets": nets_json(nets), "segments": segments_json(rv.segments),
-            "findings": [f.as_dict() for f in rv.findings], "match_groups": match_groups_json(rv)}
+    out = {"summary": summary, "nets": nets_json(nets), "segments": segments_json(rv.segments),
+           "findings": [f.as_dict() | finding_json(rv.signoff, f) for f in rv.findings],
+           "match_groups": match_groups_json(rv), **signoff_json(rv.signoff)}
+    if getattr(rv, "crosstalk", None) is not None:
+        from sicheck.reports.crosstalk_report import crosstalk_json
+        out["crosstalk"] = crosstalk_json(rv.crosstalk)
+    return out
 
 
 def match_groups_json(rv: Review) -> list[dict]:

@@ -39,3 +39,6 @@ def _write(wb: Book, plan: dict) -> None:
                         d["achieved_ohm"], d["error_pct"], d["uncertainty_pct"], d["eps_eff"], d["delay_ps_per_mm"]]
                        + losses + ["; ".join(d["notes"])])
     sh.finish()
+    if any("crosstalk" in L for L in plan["layers"]):
+        from sicheck.reports.crosstalk_report import plan_crosstalk_sheet
+        plan_crosstalk_sheet(wb, plan)

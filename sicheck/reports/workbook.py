@@ -21,6 +21,7 @@ import xlsxwriter
 
 from sicheck import __version__
 from sicheck.reports.atomic import atomic_path
+from sicheck.reports.signoff_columns import finding_cells, finding_columns, summary_lines
 from sicheck.review import Review
 
 FORMULA_START = ("=", "+", "-", "@", "\t")
@@ -255,6 +256,7 @@ def _summary(book: Book, rv: Review):
                     "test coupons. No high-voltage creepage/clearance or product-safety checks."),
         ("", ""),
     ]
+    rows += summary_lines(rv.signoff)       # what changed since the previous review; waivers
     ws, r = key_value_sheet(book, "Summary", "Signal-integrity review", rows)
     book.text(ws, r, 0, "Sign-off", bold=True, font_size=14)
     for k in ("Reviewed by", "Date", "Decision (approve / rework)", "Notes"):
@@ -266,7 +268,7 @@ def _findings(book: Book, rv: Review):
     # the message wraps in a column a page can hold, so a printed row reads without a second page
     cols = [("ID", None, 7), ("Severity", None, 9), ("Rule", None, 16), ("Net", None, 18), ("Layer", None, 10),
             ("Finding", None, -70), ("Trace row", "0", 7), ("Disposition", None, 12), ("Reviewer", None, 12),
-            ("Comment", None, -24)]
+            ("Comment", None, -24)] + finding_columns(rv.signoff)
     fs = rv.findings
     sh = _Sheet(book, "Findings", cols, fit={3: [f.net for f in fs], 4: [f.layer for f in fs]})
     n = max(len(fs), 1)
@@ -274,7 +276,7 @@ def _findings(book: Book, rv: Review):
                                        "error_title": "Disposition", "error_message": "Choose accept, fix or waive"})
     sh.header()
     for i, f in enumerate(fs):
-        sh.row([f"F{i + 1:04d}", f.severity, f.rule, f.net, f.layer, f.message, f.row],
+        sh.row([f"F{i + 1:04d}", f.severity, f.rule, f.net, f.layer, f.message, f.row] + finding_cells(rv.signoff, f),
                fill=SEVERITY_FILL[f.severity], fill_cols=(1,))
     sh.finish()
 
@@ -292,6 +294,9 @@ def _nets(book: Book, rv: Review):
             ("Settled before [ns]", "0.00", 9), ("Settled after [ns]", "0.00", 9), ("Flight time [ns]", "0.000", 8),
             ("Termination power [mW]", "0.0", 10), ("Meets limits", None, 7), ("First-order advice", None, -50)]
     nets = rv.nets
+    has_xt = "next_pct" in nets.columns       # crosstalk inputs given
+    if has_xt:
+        cols = cols + [("Worst NEXT [%]", "0.00", 8), ("Worst FEXT [%]", "0.00", 8)]
     sh = _Sheet(book, "Nets", cols, fit={0: nets["net"], 1: nets["net_class"], 2: nets["pair"], 3: nets["layers"],
                                          9: nets["electrical"], 10: nets["termination"]})
     sh.header()
@@ -317,7 +322,7 @@ def _nets(book: Book, rv: Review):
                 num("termination_power_w", 1e3), [m if s else None for m, s in zip(meets, sim)]]
     else:
         wave = [empty] * 10
-    columns = base + wave + [nets["advice"].tolist()]
+    columns = base + wave + [nets["advice"].tolist()] + ([num("next_pct"), num("fext_pct")] if has_xt else [])
     term = nets["termination"].tolist()
     for i, values in enumerate(zip(*columns)):
         sh.row(list(values), fill=fills.get(term[i]), fill_cols=(10,))
@@ -334,6 +339,10 @@ def _segments(book: Book, rv: Review):
             ("Uncertainty [%]", "0.00", 8), ("Closed-form Z [ohm]", "0.0", 9), ("Freq [GHz]", "0.000", 7),
             ("Loss [dB/mm]", "0.0000", 8), ("Conductor [dB/mm]", "0.0000", 9), ("Dielectric [dB/mm]", "0.0000", 9),
             ("Loss [dB]", "0.000", 7)]
+    has_xt = "next_pct" in seg.columns        # crosstalk inputs given
+    if has_xt:
+        cols = cols + [("Spacing [mm]", "0.000", 8), ("Coupled length [mm]", "0.0", 9), ("NEXT [%]", "0.00", 7),
+                       ("FEXT [%]", "0.00", 7)]
     sh = _Sheet(book, "Segments", cols, fit={1: seg["net"], 2: seg["pair"], 3: seg["layer"], 17: seg["model"]},
                 key_cols=2)
     sh.header()
@@ -349,6 +358,8 @@ def _segments(book: Book, rv: Review):
                num("c_per_m", 1e9), seg["model"].tolist(), num("uncertainty_pct"), zf, num("freq", 1e-9),
                num("loss_db_per_m", 1e-3), num("conductor_loss_db_per_m", 1e-3),
                num("dielectric_loss_db_per_m", 1e-3), num("loss_db")]
+    if has_xt:
+        columns += [num("spacing", 1e3), num("parallel", 1e3), num("next_pct"), num("fext_pct")]
     for values in zip(*columns):
         sh.row(values)
     sh.finish()
@@ -514,6 +525,9 @@ def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
         _rules(book, rv)
         if rv.waves:
             _waveforms(book, rv)
+        if getattr(rv, "crosstalk", None) is not None:
+            from sicheck.reports.crosstalk_report import crosstalk_sheet
+            crosstalk_sheet(book, rv)
         for fn in extra_sheets or ():
             fn(book, rv)
         book.close()
