@@ -128,6 +128,7 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                                           "dielectric_loss_db_per_m", "xs", "rise_time", "load_pf")}
     given = {c: (seg[f"{c}_given"].to_numpy(bool) if f"{c}_given" in seg.columns else np.zeros(len(seg), bool))
              for c in ("driver_ohm", "load_pf", "rise_time")}
+    driver_end = seg["driver_end"].to_numpy(bool) if "driver_end" in seg.columns else None
     done_pair: dict[frozenset, int] = {}
     partners: list[tuple[int, int]] = []
     jobs: list = []
@@ -162,7 +163,9 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
             cap = rules.load_pf
             assumed.append(f"load {cap:g} pF")
         topo = topology.get(net)
-        tree, rx_used = None, [{"receiver": "far end", "load_pf": cap, "source": cap_src}]
+        # the segment whose impedance the driver sees (review._topology: not a short neck-down)
+        de_local = int(np.argmax(driver_end[ix])) if driver_end is not None else 0
+        tree, rx_used = (None, None, de_local), [{"receiver": "far end", "load_pf": cap, "source": cap_src}]
         if topo is not None:       # a tree: each receiver its own load, the driver end on the main path
             rx_used, rx = [], []
             for name, k in zip(topo.receivers, topo.receiver_segment):
@@ -174,7 +177,7 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                 rx_used.append({"receiver": name, "load_pf": c_k, "source": src_k})
             assumed = [a for a in assumed if not a.startswith("load ")] + (
                 [f"load {rules.load_pf:g} pF"] if any(u["source"].startswith(RULES_SRC) for u in rx_used) else [])
-            tree = (list(topo.parent), rx, int(topo.path[0]))
+            tree = (list(topo.parent), rx, de_local)
             cap, cap_src = rx_used[0]["load_pf"], rx_used[0]["source"]
         swing = cls.swing if cls and cls.swing else None
         swing_src = f"net class '{cls.name}'" if swing is not None else f"{RULES_SRC} swing"
