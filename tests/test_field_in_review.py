@@ -83,12 +83,14 @@ def test_damaged_cache_entry_is_recomputed(tmp_path, monkeypatch):
 
 def test_pair_listed_from_either_leg_gives_the_same_numbers(board, run, tmp_path, monkeypatch):
     monkeypatch.setenv("SICHECK_CACHE_DIR", str(tmp_path / "c"))
+    nb = tmp_path / "noband.toml"        # the nominal numbers only: no fabrication band solves
+    nb.write_text("[fabrication]\nwidth_tol = '0mm'\ndielectric_tol_pct = 0\ner_tol_pct = 0\ncopper_tol_pct = 0\n")
     out = []
     for first, second in (("P", "N"), ("N", "P")):
         tr, st = board(f"net,layer,length,width,rise_time,pair,gap\n{first},S,40mm,0.1mm,300ps,{second},0.12mm\n",
                        stackup=OFFSET)
         js = tmp_path / f"{first}.json"
-        run("review", tr, "--stackup", st, "--solver", "field", "--json", js)
+        run("review", tr, "--stackup", st, "--solver", "field", "--json", js, "--rules", nb)
         out.append(json.loads(js.read_text()))
     za = out[0]["segments"][0]["zdiff_ohm"]
     zb = out[1]["segments"][0]["zdiff_ohm"]
