@@ -46,7 +46,8 @@ def _band_dict(t) -> dict:
 
 
 def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str, freqs: list[str],
-               solver: str, rules: list[Path] | None, no_cache: bool) -> dict:
+               solver: str, rules: list[Path] | None, no_cache: bool, crosstalk: str | None = None,
+               coupled_length: str | None = None, rise: str | None = None) -> dict:
     from sicheck.checks.fabrication_band import describe, tolerances
     from sicheck.plan import add_bands, add_losses, synthesise
     from sicheck.rules import load_rule_sets
@@ -64,6 +65,7 @@ def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str
     if solver not in ("field", "formula"):
         raise InputError("--solver must be 'field' or 'formula' for plan")
     solve = solver_fn(solver, no_cache, show_progress=False)
+    xt_opts = _crosstalk_options(crosstalk, coupled_length, rise, z0)
     layers, findings = [], []
     for lay in st.signal_layers:
         singles = [synthesise(st, lay.name, z, "z0", solve, rule, rs.min_feature, rs.max_width) for z in z0]
@@ -85,6 +87,13 @@ def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str
             entry.update(pair_width_mm=p0["width_mm"], pair_gap_mm=p0["gap_mm"], zdiff_ohm=p0["achieved_ohm"],
                          zdiff_target_ohm=p0["target_ohm"], pair_delay_ps_per_mm=p0["delay_ps_per_mm"],
                          pair_loss_db_per_mm=p0["loss_db_per_mm"])
+        if xt_opts is not None:
+            from sicheck.crosstalk_plan import layer_crosstalk
+            entry["crosstalk"] = layer_crosstalk(st, lay.name, singles[0].width, xt_opts[0], solve, rs.min_feature,
+                                                 xt_opts[1], xt_opts[2])
+            findings += [{"rule": "plan", "severity": "warning", "layer": lay.name, "target":
+                          f"crosstalk {xt_opts[0] * 100:g} %", "message": n} for n in entry["crosstalk"]["notes"]
+                         if "within budget" not in n]
         for t in singles + pairs:
             for n in t.notes:
                 findings.append({"rule": "plan", "severity": "warning", "layer": lay.name,
@@ -96,11 +105,28 @@ def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str
             "findings": findings}
 
 
-def run_plan(stackup, z0, zdiff, gap_rule, freqs, solver, rules, no_cache, as_json, out) -> int:
+def _crosstalk_options(crosstalk, coupled_length, rise, z0):
+    """(budget, coupled length m, rise s) for `plan --crosstalk`, or None without it."""
+    if crosstalk is None:
+        if coupled_length is not None or rise is not None:
+            raise InputError("--coupled-length and --rise go with --crosstalk")
+        return None
+    from sicheck.crosstalk_line import RISE_RANGE, option_quantity
+    from sicheck.crosstalk_plan import parse_budget
+    if not z0:
+        raise InputError("--crosstalk spaces the width of the first --z0 target: give --z0")
+    if (coupled_length is None) != (rise is None):
+        raise InputError("the far-end budget needs both --coupled-length and --rise")
+    return (parse_budget(crosstalk), option_quantity(coupled_length, "--coupled-length", "length", 0.0, 3.0),
+            option_quantity(rise, "--rise", "time", *RISE_RANGE))
+
+
+def run_plan(stackup, z0, zdiff, gap_rule, freqs, solver, rules, no_cache, as_json, out, crosstalk=None,
+             coupled_length=None, rise=None) -> int:
     if out is not None:
         from sicheck.reports.atomic import refuse_inputs
         refuse_inputs(out, [stackup] + list(rules or []), "--out", suffix=".xlsx")
-    plan = build_plan(stackup, z0, zdiff, gap_rule, freqs, solver, rules, no_cache)
+    plan = build_plan(stackup, z0, zdiff, gap_rule, freqs, solver, rules, no_cache, crosstalk, coupled_length, rise)
     if out is not None:
         from sicheck.reports.plan_workbook import write_plan_workbook
         write_plan_workbook(plan, out)
@@ -143,6 +169,9 @@ def _print(plan: dict, out) -> None:
     con.print(t)
     con.print(f"band: worst case of the fabrication tolerances ({plan['tolerances']}; [fabrication] in the rules)",
               markup=False)
+    if any("crosstalk" in L for L in plan["layers"]):
+        from sicheck.crosstalk_plan import print_plan_crosstalk
+        print_plan_crosstalk(con, plan, _f)
     for f in plan["findings"]:
         con.print(f"[yellow]warning[/] {f['layer']} {f['target']}: {f['message']}")
     if out is not None:

@@ -45,6 +45,9 @@ RANGES: dict[str, Range] = {
                        "than 10 us is not a signal-integrity question"),
     "driver_ohm": Range(0.0, 10e3, "ohm", "a driver's output resistance, 0 (ideal) to 10 kohm"),
     "load_pf": Range(0.0, 1e-9, "F", "a receiver's input capacitance, 0 to 1000 pF"),
+    "spacing": Range(10e-6, 25e-3, "m", "an edge-to-edge clearance from 10 um (finer than any board process) "
+                     "to 25 mm (coupling there is nil)"),
+    "parallel": Range(0.0, 3.0, "m", "a coupled run is no longer than a routed segment (3 m)", lo_open=True),
     # targets and rules
     "impedance": Range(5.0, 500.0, "ohm", "board lines lie between about 10 and 200 ohm"),
     "tolerance_pct": Range(0.0, 100.0, "%", "a tolerance in percent", lo_open=True),

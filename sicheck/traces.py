@@ -32,6 +32,13 @@ COLUMNS = {
     "net_class": (None, None, False),
     "driver_ohm": ("resistance", "ohm", False),
     "load_pf": ("capacitance", "pF", False),
+    "spacing": ("length", None, False),     # crosstalk: edge-to-edge clearance to the nearest aggressor
+    "parallel": ("length", None, False),    # crosstalk: coupled length (default: the segment's length)
+    # topology (sicheck/topology.py): each segment's end nodes and the net's driver node
+    "from": (None, None, False),
+    "to": (None, None, False),
+    "driver": (None, None, False),
+    "match_group": (None, None, False),         # a [[match_group]] of the rules (sicheck/skew.py)
 }
 _HEADER_UNIT = re.compile(r"^(.*?)[\s_]*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
 

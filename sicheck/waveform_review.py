@@ -99,7 +99,7 @@ def run_jobs(jobs: list) -> list:
     return out
 
 
-def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list | None = None
+def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list | None = None, topology=None
                   ) -> tuple[pd.DataFrame, dict]:
     classes = {c.name: c for c in rules.classes}
     n = len(nets)

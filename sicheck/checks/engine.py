@@ -162,12 +162,16 @@ class ReviewContext:
         loss_db, freq, critical_length, advice, and the waveform stage's columns when it ran.
     cross_sections: (CrossSection, LineResult) per unique cross-section; segments["xs"] indexes it
     rules: the merged rule set; classes: class name -> NetClass
+    crosstalk: crosstalk_review.CrosstalkTables when spacings were given (segments then also carry spacing,
+        parallel, next_pct, fext_pct, xt_aggressor, xt_rise), else None
     """
     segments: Any
     nets: Any
     rules: Any
     stackup: Any = None
     cross_sections: list = field(default_factory=list)
+    crosstalk: Any = None
+    topology: dict = field(default_factory=dict)   # net -> topology.Topology, for nets whose rows name nodes
 
     def __post_init__(self):
         self.classes = {c.name: c for c in getattr(self.rules, "classes", ())}

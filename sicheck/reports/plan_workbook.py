@@ -42,3 +42,6 @@ def _write(wb: Book, plan: dict) -> None:
                         d.get("band_max_ohm"), d.get("band_rss_ohm"), d["eps_eff"], d["delay_ps_per_mm"]]
                        + losses + ["; ".join(d["notes"])])
     sh.finish()
+    if any("crosstalk" in L for L in plan["layers"]):
+        from sicheck.reports.crosstalk_report import plan_crosstalk_sheet
+        plan_crosstalk_sheet(wb, plan)
