@@ -26,6 +26,7 @@ from sicheck.rules import Rules
 from sicheck.skew import check_group_column
 from sicheck.stackup import Stackup
 from sicheck.traces import TraceList
+from sicheck.via_table import net_via_summary, via_delay_per_row, via_table
 
 Solver = Callable[[list[CrossSection]], list[LineResult]]
 
@@ -184,6 +185,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     band = tolerance_band(xs, results, solver, fab_tolerances(rules))
     for name, values in band_columns(band).items():
         seg[name] = values[codes]
+    seg["vias"] = df["vias"].to_numpy(float) if "vias" in df else 0.0
     _add_loss(seg, stackup, xs, results, codes, solver)
     for c, m in given.items():
         seg[f"{c}_given"] = m
@@ -200,7 +202,9 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
         mirror["net"], mirror["pair"] = mirror["pair"].to_numpy(), mirror["net"].to_numpy()
         mirror["mirrored"] = True
     all_seg = pd.concat([seg, mirror], ignore_index=True) if len(mirror) else seg
+    vias = _add_vias(all_seg, seg, stackup)
     nets = _net_table(all_seg, rules)
+    nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
     for partner, leg in zip(mirror["net"], mirror["pair"]):     # listed only through its pair: its leg's shape
         if leg in topology:
             topology.setdefault(partner, topology[leg])
@@ -215,12 +219,22 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
         xtr.attach_couplings(xtalk, couplings, seg, dict(zip(nets["net"], nets["rise_time"])))
     xtr.add_net_crosstalk(nets, all_seg, xtalk)
     ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
-                        cross_sections=list(zip(xs, results)), topology=topology, crosstalk=xtalk)
+                        cross_sections=list(zip(xs, results)), topology=topology, crosstalk=xtalk,
+                        vias=vias)
     findings = run_checks(ctx)
     findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
     return Review(segments=seg, nets=nets, findings=findings, stackup=stackup, rules=rules,
                   traces_source=src, solver=solver_name, cross_sections=cs, waves=waves, crosstalk=xtalk)
+
+
+def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup) -> pd.DataFrame:
+    """The board's vias; each segment gains `via_delay`, the barrel delay of the vias entered on its row."""
+    vias = via_table(all_seg, stackup)
+    all_seg["via_delay"] = via_delay_per_row(all_seg, vias)
+    if all_seg is not seg:
+        seg["via_delay"] = all_seg["via_delay"].to_numpy()[:len(seg)]
+    return vias
 
 
 def _topology(df: pd.DataFrame, seg: pd.DataFrame, src: str) -> dict:
@@ -345,7 +359,8 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     # length, delay and loss along the main path (driver to the farthest receiver); all rows when not marked
     on = seg["on_path"].to_numpy(bool) if "on_path" in seg.columns else np.ones(len(seg), bool)
     gp = pd.DataFrame({"net": seg["net"], **{c: np.where(on, seg[c].to_numpy(float), 0.0)
-                                             for c in ("length", "delay", "loss_db")}}).groupby("net", sort=False)
+                                             for c in ("length", "delay", "loss_db", "via_delay")
+                                             if c in seg.columns}}).groupby("net", sort=False)
     if "driver_end" in seg.columns:      # the driver-end segment's impedance, not the first row's
         de = seg[seg["driver_end"].to_numpy(bool)].groupby("net", sort=False).first().reindex(first.index)
         first = first.assign(zdiff=de["zdiff"], z0=de["z0"], zodd=de["zodd"])
@@ -357,7 +372,8 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
         "layers": _layer_paths(seg, first.index),
         "length": gp["length"].sum().to_numpy(),
         "copper_length": g["length"].sum().to_numpy(),
-        "delay": gp["delay"].sum().to_numpy(),
+        # vias' barrel delay (review._add_vias) belongs to the net's delay
+        "delay": (gp["delay"].sum() + (gp["via_delay"].sum() if "via_delay" in seg else 0.0)).to_numpy(),
         "loss_db": gp["loss_db"].sum().to_numpy(),
         "freq": first["freq"].to_numpy(),
         "rise_time": g["rise_time"].min().to_numpy(),

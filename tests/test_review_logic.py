@@ -25,8 +25,10 @@ def _review(tmp_path, csv, rules_text=None, stackup=FOUR_LAYER):
 def test_multi_segment_delay_is_sum_of_layer_delays(tmp_path):
     rv = _review(tmp_path, "net,layer,length,width,rise_time\nA,L1,10mm,0.3mm,1ns\nA,L3,20mm,0.15mm,1ns\n")
     seg = rv.segments
-    # each segment on its own layer's velocity: TD = sum(length_i * sqrt(eps_i) / c)
-    expect = sum(seg["length"] * np.sqrt(seg["eps_eff"]) / C0)
+    # each segment on its own layer's velocity: TD = sum(length_i * sqrt(eps_i) / c), plus two via barrels
+    # (L1 -> L3 and L3's escape back to L1), middle of L1's 1 oz to middle of L3's 0.5 oz copper, in er 4.3
+    barrel = (35e-6 / 2 + 0.2e-3 + 35e-6 + 0.4e-3 + 17.5e-6 / 2) * np.sqrt(4.3) / C0
+    expect = sum(seg["length"] * np.sqrt(seg["eps_eff"]) / C0) + 2 * barrel
     net = rv.nets.iloc[0]
     assert net["delay"] == pytest.approx(expect, rel=1e-12)
     assert seg["eps_eff"].iloc[1] == pytest.approx(4.3)            # homogeneous stripline: eps_eff = er

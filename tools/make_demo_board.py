@@ -77,6 +77,17 @@ def rows() -> list[list]:
     seg("USB_D_P", "TOP", 41.0, pair="USB_D_N")
     seg("USB_D_P", "IN3", 25.0, pair="USB_D_N", gap=0.1)     # tight gap on the offset layer
     seg("LASER_TRIG_P", "IN6", 210.0, pair="LASER_TRIG_N", cls="LVDS")
+
+    # ---- vias and return paths (issue 9) ----
+    # A 28 Gb/s optical uplink that dives from TOP to IN3 through through-vias: the barrel below IN3 is a
+    # long stub (via-stub). Widths from `sicheck plan --zdiff 100 --gap-rule fixed:0.15mm`.
+    seg("UPLINK_TX_P", "TOP", 5.0, width=0.089, pair="UPLINK_TX_N")
+    seg("UPLINK_TX_P", "IN3", 48.0, width=0.116, pair="UPLINK_TX_N")
+    seg("UPLINK_TX_P", "TOP", 4.0, width=0.089, pair="UPLINK_TX_N")
+    # An SPI clock that changes from TOP (over GND) to BOT (over the +3V3 plane): return-path warning.
+    seg("SPI_DAC_SCK", "TOP", 22.0)
+    seg("SPI_DAC_SCK", "BOT", 38.0)
+    # ---- end vias and return paths ----
     return out
 
 

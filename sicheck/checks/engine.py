@@ -164,6 +164,7 @@ class ReviewContext:
     rules: the merged rule set; classes: class name -> NetClass
     crosstalk: crosstalk_review.CrosstalkTables when spacings were given (segments then also carry spacing,
         parallel, next_pct, fext_pct, xt_aggressor, xt_rise), else None
+    vias: one row per via (sicheck.via_table.VIA_COLUMNS), mirrored partners included
     """
     segments: Any
     nets: Any
@@ -172,6 +173,7 @@ class ReviewContext:
     cross_sections: list = field(default_factory=list)
     crosstalk: Any = None
     topology: dict = field(default_factory=dict)   # net -> topology.Topology, for nets whose rows name nodes
+    vias: Any = None            # via_table.via_table(...) of all nets (None: the via checks derive it)
 
     def __post_init__(self):
         self.classes = {c.name: c for c in getattr(self.rules, "classes", ())}

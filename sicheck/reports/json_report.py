@@ -131,6 +131,10 @@ def nets_json(nets) -> list[dict]:
     inputs = nets["waveform_inputs"].tolist() if "waveform_inputs" in nets.columns else [None] * n
     xt = (_col(nets, "next_pct", 1, 4), _col(nets, "fext_pct", 1, 4)) if "next_pct" in nets.columns else None
     pair_skew_ps = round_sig(pair_skew(nets) * 1e12, 4)
+    has_vias = "vias" in nets.columns       # via count and lowest stub resonance (review._add_vias)
+    if has_vias:
+        n_vias = [int(v) for v in nets["vias"].tolist()]
+        f_stub = _col(nets, "via_stub_resonance", 1e-9, 4)
     out = []
     for i in range(n):
         d = {"net": net[i], "net_class": cls[i] or None, "pair": pair[i] or None, "segments": segs[i],
@@ -158,6 +162,9 @@ def nets_json(nets) -> list[dict]:
             d["recommended_termination"] = None
             if has_wave and isinstance(assumptions[i], str) and assumptions[i]:
                 d["assumptions"] = assumptions[i]
+        if has_vias:
+            d["vias"] = n_vias[i]
+            d["via_stub_resonance_ghz"] = f_stub[i]
         if isinstance(inputs[i], dict):
             d["simulation"] = inputs[i]      # every value the waveform simulation used, with its source
         if xt is not None:
