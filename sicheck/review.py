@@ -14,10 +14,12 @@ import numpy as np
 import pandas as pd
 
 from sicheck.checks import ReviewContext, run_checks
+from sicheck.checks.fabrication_band import tolerances as fab_tolerances
 from sicheck.errors import InputError
 from sicheck.findings import SEVERITY_ORDER, Finding
 from sicheck.physics import electrical, termination
 from sicheck.physics.cross_section import CrossSection
+from sicheck.physics.fab_band import band_columns, tolerance_band
 from sicheck.physics.formula import solve_formula
 from sicheck.physics.line_result import LineResult, per_length
 from sicheck.rules import Rules
@@ -179,6 +181,10 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
           for layer, w, g, fk in uniques]
     results = solver(xs)
     seg = _segment_table(df, codes, xs, results)
+    # fabrication band: each cross-section re-solved at its tolerance limits (sicheck.physics.fab_band)
+    band = tolerance_band(xs, results, solver, fab_tolerances(rules))
+    for name, values in band_columns(band).items():
+        seg[name] = values[codes]
     seg["vias"] = df["vias"].to_numpy(float) if "vias" in df else 0.0
     _add_loss(seg, stackup, xs, results, codes, solver)
     for c, m in given.items():

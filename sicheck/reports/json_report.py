@@ -72,6 +72,9 @@ def segments_json(seg) -> list[dict]:
         "loss_db_per_mm": _col(seg, "loss_db_per_m", 1e-3), "loss_db": _col(seg, "loss_db"),
         "freq_ghz": _col(seg, "freq", 1e-9), "loss_uncertainty_pct": _col(seg, "loss_uncertainty_pct"),
     }
+    band = [k for k in ("z_min_ohm", "z_max_ohm", "z_rss_ohm", "zdiff_min_ohm", "zdiff_max_ohm", "zdiff_rss_ohm")
+            if k in seg.columns]         # the fabrication band (sicheck.physics.fab_band)
+    cols.update({k: _col(seg, k, 1, 5) for k in band})
     net, layer, pair, kind, model, row = (seg[c].tolist() for c in ("net", "layer", "pair", "kind", "model", "row"))
     row = [int(r) for r in row]
     xt = ((_col(seg, "spacing", 1e3), _col(seg, "parallel", 1e3), _col(seg, "next_pct", 1, 4),
@@ -89,6 +92,7 @@ def segments_json(seg) -> list[dict]:
              "dielectric_loss_db_per_mm": cols["dielectric_loss_db_per_mm"][i],
              "loss_db_per_mm": cols["loss_db_per_mm"][i], "loss_db": cols["loss_db"][i],
              "loss_uncertainty_pct": cols["loss_uncertainty_pct"][i]}
+        d.update({k: cols[k][i] for k in band if pair[i] or not k.startswith("zdiff")})
         if pair[i]:
             d.update(pair=pair[i], gap_mm=cols["gap_mm"][i], zdiff_ohm=cols["zdiff_ohm"][i],
                      zodd_ohm=cols["zodd_ohm"][i], zeven_ohm=cols["zeven_ohm"][i])
