@@ -45,7 +45,7 @@ class Waiver:
     def matches(self, f: Finding) -> bool:
         if self.key is not None:
             return finding_key(f) == self.key
-        if f.rule != self.rule or not glob_match(self.net or "*", f.net):
+        if f.rule != self.rule or not any(glob_match(self.net or "*", n) for n in _names(f.net)):
             return False
         if self.layer is None:
             return True
@@ -58,6 +58,14 @@ class Waiver:
     def describe(self) -> str:
         until = f", until {self.until.isoformat()}" if self.until else ""
         return f"{self.by}: {self.reason}{until}"
+
+
+def _names(net: str) -> tuple[str, ...]:
+    """A finding's net as shown, and a pair ("A/B") also the other way round ("B/A")."""
+    if "/" not in net:
+        return (net,)
+    a, b = net.split("/", 1)
+    return (net, f"{b}/{a}")
 
 
 def finding_key(f: Finding) -> str:
