@@ -148,3 +148,19 @@ def test_unknown_match_group_in_trace_list_names_row_and_column(run, board):
     code, _, err = run("review", tr, "--stackup", st, "--rules", rl, "--solver", "formula")
     assert code == 2 and "row 4" in err and "match_group" in err and "'DDR' is not in the rules" in err
     assert "Traceback" not in err
+
+
+def test_demo_board_shows_each_timing_finding():
+    # the demo's timing block: a matched bus with one long net and one on a faster layer, a skewed pair
+    from sicheck.resources import default_rules_path, demo_dir
+    from sicheck.review import build_review
+    from sicheck.rules import load_rule_sets
+    from sicheck.stackup import load_stackup
+    from sicheck.traces import read_traces
+    d = demo_dir()
+    rv = build_review(read_traces(d / "traces.csv"), load_stackup(d / "stackup.toml"),
+                      load_rule_sets([default_rules_path(), d / "rules.toml"]), waveforms=False)
+    got = {(f.rule, f.net) for f in rv.findings}
+    assert {("delay-skew", "TDC bus"), ("delay-budget", "TDC_D3"), ("pair-skew", "HEAD_SYNC_P/HEAD_SYNC_N")} <= got
+    (skew,) = [f for f in rv.findings if f.rule == "delay-skew"]
+    assert "TDC_D3 +" in skew.message and "TDC_D1 -" in skew.message      # too long; same length, faster layer

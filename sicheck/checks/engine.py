@@ -156,7 +156,7 @@ class ReviewContext:
 
     segments: one row per trace-list row (pairs listed on one leg appear once). Columns: row, net, pair,
         layer, net_class, kind, length, width, gap, z0, zdiff, zodd, zeven, eps_eff, delay_per_m, delay,
-        rise_time, freq, loss_db, model, uncertainty_pct, xs, ...
+        rise_time, freq, loss_db, model, uncertainty_pct, xs, z_min_ohm, z_max_ohm, z_rss_ohm, zdiff_min_ohm, ...
     nets: one row per net, both legs of a pair (a partner listed only through `pair` is mirrored). Columns:
         net, net_class, pair, layers, length, delay, rise_time, td_over_tr, electrical, termination,
         loss_db, freq, critical_length, advice, and the waveform stage's columns when it ran.
