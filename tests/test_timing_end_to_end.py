@@ -103,6 +103,12 @@ def test_match_group_pair_and_budget_end_to_end(run, board, tmp_path):
     td_a = 2000 * MIL * math.sqrt(e_ms) / C
     td_b = 2000 * MIL * math.sqrt(e_sl) / C
     td_strobe = 1000 * MIL * (math.sqrt(e_ms) + math.sqrt(e_sl)) / C      # a net on two layers
+    # vias (README "Vias and return paths"): a net ending on IN has an escape via from TOP at that end, and
+    # each via's barrel (middle of TOP to middle of IN, in er 4.3) adds length * sqrt(er) / c; BUS_B has two
+    # escapes, STROBE a layer change and one escape
+    barrel = (35e-6 / 2 + 0.2e-3 + 35e-6 + 0.3e-3 + 17.5e-6 / 2) * math.sqrt(4.3) / C
+    td_b += 2 * barrel
+    td_strobe += 2 * barrel
     assert nets["BUS_A"]["delay_ps"] == pytest.approx(td_a * 1e12, rel=1e-3)
     assert nets["BUS_B"]["delay_ps"] == pytest.approx(td_b * 1e12, rel=1e-4)
     assert nets["STROBE"]["delay_ps"] == pytest.approx(td_strobe * 1e12, rel=1e-3)
@@ -120,7 +126,9 @@ def test_match_group_pair_and_budget_end_to_end(run, board, tmp_path):
         by_rule.setdefault(f["rule"], []).append(f)
     (skew,) = by_rule["delay-skew"]
     assert skew["severity"] == "error" and skew["value"] == pytest.approx(g["skew_ps"], rel=1e-5)
-    assert skew["key"] == "delay-skew|=BUS+1" and skew["row"] == 3            # BUS_B, the slowest
+    # the row of the net furthest from the median (STROBE's); with the vias' barrels that is BUS_A
+    far_row = 2 if abs(td_a - td_strobe) > abs(td_b - td_strobe) else 3
+    assert skew["key"] == "delay-skew|=BUS+1" and skew["row"] == far_row
     (pair,) = by_rule["pair-skew"]
     want = 40 * MIL * math.sqrt(e_sl) / C * 1e12                             # 7.0 ps on the stripline
     assert pair["value"] == pytest.approx(want, rel=1e-4) and pair["net"] == "P_P/P_N" and pair["row"] == 7
@@ -140,3 +148,19 @@ def test_unknown_match_group_in_trace_list_names_row_and_column(run, board):
     code, _, err = run("review", tr, "--stackup", st, "--rules", rl, "--solver", "formula")
     assert code == 2 and "row 4" in err and "match_group" in err and "'DDR' is not in the rules" in err
     assert "Traceback" not in err
+
+
+def test_demo_board_shows_each_timing_finding():
+    # the demo's timing block: a matched bus with one long net and one on a faster layer, a skewed pair
+    from sicheck.resources import default_rules_path, demo_dir
+    from sicheck.review import build_review
+    from sicheck.rules import load_rule_sets
+    from sicheck.stackup import load_stackup
+    from sicheck.traces import read_traces
+    d = demo_dir()
+    rv = build_review(read_traces(d / "traces.csv"), load_stackup(d / "stackup.toml"),
+                      load_rule_sets([default_rules_path(), d / "rules.toml"]), waveforms=False)
+    got = {(f.rule, f.net) for f in rv.findings}
+    assert {("delay-skew", "TDC bus"), ("delay-budget", "TDC_D3"), ("pair-skew", "HEAD_SYNC_P/HEAD_SYNC_N")} <= got
+    (skew,) = [f for f in rv.findings if f.rule == "delay-skew"]
+    assert "TDC_D3 +" in skew.message and "TDC_D1 -" in skew.message      # too long; same length, faster layer

@@ -72,6 +72,9 @@ def segments_json(seg) -> list[dict]:
         "loss_db_per_mm": _col(seg, "loss_db_per_m", 1e-3), "loss_db": _col(seg, "loss_db"),
         "freq_ghz": _col(seg, "freq", 1e-9), "loss_uncertainty_pct": _col(seg, "loss_uncertainty_pct"),
     }
+    band = [k for k in ("z_min_ohm", "z_max_ohm", "z_rss_ohm", "zdiff_min_ohm", "zdiff_max_ohm", "zdiff_rss_ohm")
+            if k in seg.columns]         # the fabrication band (sicheck.physics.fab_band)
+    cols.update({k: _col(seg, k, 1, 5) for k in band})
     net, layer, pair, kind, model, row = (seg[c].tolist() for c in ("net", "layer", "pair", "kind", "model", "row"))
     row = [int(r) for r in row]
     xt = ((_col(seg, "spacing", 1e3), _col(seg, "parallel", 1e3), _col(seg, "next_pct", 1, 4),
@@ -89,6 +92,7 @@ def segments_json(seg) -> list[dict]:
              "dielectric_loss_db_per_mm": cols["dielectric_loss_db_per_mm"][i],
              "loss_db_per_mm": cols["loss_db_per_mm"][i], "loss_db": cols["loss_db"][i],
              "loss_uncertainty_pct": cols["loss_uncertainty_pct"][i]}
+        d.update({k: cols[k][i] for k in band if pair[i] or not k.startswith("zdiff")})
         if pair[i]:
             d.update(pair=pair[i], gap_mm=cols["gap_mm"][i], zdiff_ohm=cols["zdiff_ohm"][i],
                      zodd_ohm=cols["zodd_ohm"][i], zeven_ohm=cols["zeven_ohm"][i])
@@ -125,8 +129,13 @@ def nets_json(nets) -> list[dict]:
         wave = {f"{w}_{k}": _col(nets, f"{w}_{k}", 1, 4) for w in ("before", "after") for k in WAVE_KEYS}
         loss_inc = nets["waveform_loss"].tolist() if "waveform_loss" in nets.columns else [False] * n
     inputs = nets["waveform_inputs"].tolist() if "waveform_inputs" in nets.columns else [None] * n
+    rx = nets["receivers"].tolist() if "receivers" in nets.columns else [None] * n
     xt = (_col(nets, "next_pct", 1, 4), _col(nets, "fext_pct", 1, 4)) if "next_pct" in nets.columns else None
     pair_skew_ps = round_sig(pair_skew(nets) * 1e12, 4)
+    has_vias = "vias" in nets.columns       # via count and lowest stub resonance (review._add_vias)
+    if has_vias:
+        n_vias = [int(v) for v in nets["vias"].tolist()]
+        f_stub = _col(nets, "via_stub_resonance", 1e-9, 4)
     out = []
     for i in range(n):
         d = {"net": net[i], "net_class": cls[i] or None, "pair": pair[i] or None, "segments": segs[i],
@@ -154,6 +163,13 @@ def nets_json(nets) -> list[dict]:
             d["recommended_termination"] = None
             if has_wave and isinstance(assumptions[i], str) and assumptions[i]:
                 d["assumptions"] = assumptions[i]
+        if isinstance(rx[i], list):         # every receiver's metrics (one for a chain)
+            d["receivers"] = [{"receiver": x["receiver"], "load_pf": _num(x["load_pf"]), "meets_limits": bool(x["meets"]),
+                               "before": {k: _num(x["before"][k], 4) for k in WAVE_KEYS},
+                               "after": {k: _num(x["after"][k], 4) for k in WAVE_KEYS}} for x in rx[i]]
+        if has_vias:
+            d["vias"] = n_vias[i]
+            d["via_stub_resonance_ghz"] = f_stub[i]
         if isinstance(inputs[i], dict):
             d["simulation"] = inputs[i]      # every value the waveform simulation used, with its source
         if xt is not None:

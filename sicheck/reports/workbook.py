@@ -227,6 +227,11 @@ def key_value_sheet(book: Book, name: str, title: str, rows: list[tuple[str, obj
     return ws, r
 
 
+def fab_band_text(rules) -> str:
+    from sicheck.checks.fabrication_band import describe, tolerances
+    return (f"{describe(tolerances(rules))} ([fabrication]); each segment's band is on the Segments sheet")
+
+
 def _summary(book: Book, rv: Review):
     counts = rv.counts
     nets = rv.nets
@@ -236,6 +241,7 @@ def _summary(book: Book, rv: Review):
         ("Trace list", rv.traces_source),
         ("Rule sets", "; ".join(rv.rules.sources)),
         ("Impedance solver", rv.solver),
+        ("Fabrication tolerances", fab_band_text(rv.rules)),
         ("sicheck version", __version__),
         ("Generated", date.today().isoformat()),
         ("", ""),
@@ -338,7 +344,9 @@ def _segments(book: Book, rv: Review):
             ("L [nH/mm]", "0.0000", 8), ("C [pF/mm]", "0.0000", 8), ("Model", None, 16),
             ("Uncertainty [%]", "0.00", 8), ("Closed-form Z [ohm]", "0.0", 9), ("Freq [GHz]", "0.000", 7),
             ("Loss [dB/mm]", "0.0000", 8), ("Conductor [dB/mm]", "0.0000", 9), ("Dielectric [dB/mm]", "0.0000", 9),
-            ("Loss [dB]", "0.000", 7)]
+            ("Loss [dB]", "0.000", 7),
+            # fabrication band of Z0 (Zdiff for a pair): worst case of the tolerances, and the RSS spread
+            ("Band min [ohm]", "0.0", 7), ("Band max [ohm]", "0.0", 7), ("Band RSS +/- [ohm]", "0.0", 7)]
     has_xt = "next_pct" in seg.columns        # crosstalk inputs given
     if has_xt:
         cols = cols + [("Spacing [mm]", "0.000", 8), ("Coupled length [mm]", "0.0", 9), ("NEXT [%]", "0.00", 7),
@@ -358,6 +366,10 @@ def _segments(book: Book, rv: Review):
                num("c_per_m", 1e9), seg["model"].tolist(), num("uncertainty_pct"), zf, num("freq", 1e-9),
                num("loss_db_per_m", 1e-3), num("conductor_loss_db_per_m", 1e-3),
                num("dielectric_loss_db_per_m", 1e-3), num("loss_db")]
+    paired = seg["pair"].to_numpy() != ""
+    for a, b in (("z_min_ohm", "zdiff_min_ohm"), ("z_max_ohm", "zdiff_max_ohm"), ("z_rss_ohm", "zdiff_rss_ohm")):
+        columns.append(np.where(paired, seg[b].to_numpy(float), seg[a].to_numpy(float)).tolist()
+                       if a in seg.columns else [None] * len(seg))
     if has_xt:
         columns += [num("spacing", 1e3), num("parallel", 1e3), num("next_pct"), num("fext_pct")]
     for values in zip(*columns):
@@ -453,6 +465,10 @@ def _rules(wb: Book, rv: Review):
         vals += [f"{k} {all_params()[k].shown(v)}" for k, v in c.params.items()
                  if k not in ("z0", "zdiff", "tolerance_pct")]
         sh.row([f"class {c.name}", ", ".join(vals), "[[net_class]]", " ".join(c.match) or "(by net_class column)"])
+    for g in r.match_groups:
+        sh.row([f"match group {g.name}", f"max_skew {g.max_skew * 1e12:g} ps" +
+                (f", reference {g.reference}" if g.reference else ""), "[[match_group]]",
+                " ".join(g.match) or "(by match_group column)"])
     sh.finish()
 
 
