@@ -384,6 +384,7 @@ def _timing(book: Book, rv: Review):
     nets = rv.nets
     length = dict(zip(nets["net"], nets["length"].to_numpy(float)))
     layers = dict(zip(nets["net"], nets["layers"]))
+    delays = dict(zip(nets["net"], nets["delay"].to_numpy(float)))
     rows = []
     for gt in group_timing(rv.segments, nets, rv.rules.match_groups):
         over = "yes" if gt.over else "no"
@@ -399,8 +400,10 @@ def _timing(book: Book, rv: Review):
         done.add(frozenset((r.net, r.pair)))
         limit = rv.rules.value("max_pair_skew", rv.rules.class_named(r.net_class) if r.net_class else None)
         over = limit is not None and s > limit
-        rows.append((["(pair)", f"{r.net}/{r.pair}", "", r.delay * 1e12, None, r.length * 1e3, r.layers, s * 1e12,
-                      None if limit is None else limit * 1e12, s * r.length / r.delay * 1e3 if r.delay > 0 else None,
+        slow = r.net if delays[r.net] >= delays[r.pair] else r.pair        # the slower leg's delay and length
+        d, ln = delays[slow], length[slow]
+        rows.append((["(pair)", f"{r.net}/{r.pair}", "", d * 1e12, None, ln * 1e3, layers[slow], s * 1e12,
+                      None if limit is None else limit * 1e12, s * ln / d * 1e3 if d > 0 else None,
                       "", "yes" if over else "no"], over))
     if not rows:
         return
