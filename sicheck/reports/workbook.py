@@ -438,7 +438,7 @@ def _stackup(book: Book, rv: Review):
 
 def _rules(wb: Book, rv: Review):
     """Every registered check with its severity here and its parameters in effect, then the net classes."""
-    from sicheck.checks import CHECKS, SETTINGS
+    from sicheck.checks import CHECKS, SETTINGS, all_params
     r = rv.rules
     cols = [("Item", None, 30), ("Value", None, 18), ("Set in", None, 20), ("Meaning", None, 90)]
     sh = _Sheet(wb, "Rules", cols)
@@ -464,7 +464,9 @@ def _rules(wb: Book, rv: Review):
             vals.append(f"gap {c.gap * 1e3:g} mm")
         if c.driver_ohm is not None:
             vals.append(f"Rdrv {c.driver_ohm:g} ohm")
-        vals += [f"{k} {v:g}" for k, v in c.params.items() if k not in ("z0", "zdiff", "tolerance_pct")]
+        # in each parameter's display unit (a length or a time is stored in SI)
+        vals += [f"{k} {all_params()[k].shown(v)}" for k, v in c.params.items()
+                 if k not in ("z0", "zdiff", "tolerance_pct")]
         sh.row([f"class {c.name}", ", ".join(vals), "[[net_class]]", " ".join(c.match) or "(by net_class column)"])
     for g in r.match_groups:
         sh.row([f"match group {g.name}", f"max_skew {g.max_skew * 1e12:g} ps" +
