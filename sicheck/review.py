@@ -193,7 +193,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     if couplings is not None:
         couplings = xtr.prepare_couplings(couplings, seg, stackup)
     xtalk = xtr.add_segment_crosstalk(seg, df, rules, stackup, solver, couplings)
-    topology = _topology(df, seg, src)
+    topology = _topology(df, seg, rules, src)
 
     # ---- partners listed only through their pair: mirror their segments for the net table
     listed = set(df["net"])
@@ -202,7 +202,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
         mirror["net"], mirror["pair"] = mirror["pair"].to_numpy(), mirror["net"].to_numpy()
         mirror["mirrored"] = True
     all_seg = pd.concat([seg, mirror], ignore_index=True) if len(mirror) else seg
-    vias = _add_vias(all_seg, seg, stackup)
+    vias = _add_vias(all_seg, seg, stackup, topology)
     nets = _net_table(all_seg, rules)
     nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
     for partner, leg in zip(mirror["net"], mirror["pair"]):     # listed only through its pair: its leg's shape
@@ -228,40 +228,53 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
                   traces_source=src, solver=solver_name, cross_sections=cs, waves=waves, crosstalk=xtalk)
 
 
-def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup) -> pd.DataFrame:
+def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup, topology: dict) -> pd.DataFrame:
     """The board's vias; each segment gains `via_delay`, the barrel delay of the vias entered on its row."""
-    vias = via_table(all_seg, stackup)
+    # a partner listed only through its pair has its leg's shape
+    legs = dict(zip(all_seg.loc[all_seg["mirrored"], "net"], all_seg.loc[all_seg["mirrored"], "pair"]))
+    shapes = {**{p: topology[leg] for p, leg in legs.items() if leg in topology}, **topology}
+    vias = via_table(all_seg, stackup, shapes)
     all_seg["via_delay"] = via_delay_per_row(all_seg, vias)
     if all_seg is not seg:
         seg["via_delay"] = all_seg["via_delay"].to_numpy()[:len(seg)]
     return vias
 
 
-def _topology(df: pd.DataFrame, seg: pd.DataFrame, src: str) -> dict:
+def _topology(df: pd.DataFrame, seg: pd.DataFrame, rules: Rules, src: str) -> dict:
     """Each net's tree where its rows name nodes (sicheck/topology.py): {net: Topology}.
 
-    Marks the segments on the net's main path (`on_path`) and the one at its driver end (`driver_end`);
-    a net without nodes is its rows in series, driver first.
+    Marks the segments on the net's main path (`on_path`) and the one whose impedance the driver sees
+    (`driver_end`): the first on the path, from the driver, whose delay reaches the class's
+    `ignore_shorter_than_tr` x Tr (a shorter neck-down or pad entry is lumped), else the first. A net
+    without nodes is its rows in series, driver first.
     """
     from sicheck import topology
-    seg["on_path"] = True
-    seg["driver_end"] = ~seg["net"].duplicated().to_numpy()
+    net = seg["net"]
     cols = {c: (df[c].to_numpy(object) if c in df.columns else np.full(len(df), "", dtype=object))
             for c in ("from", "to", "driver")}
-    if not any(any(v) for v in cols.values()):
-        return {}
-    tops = topology.net_topologies(seg["net"].to_numpy(object), seg["row"].to_numpy(), cols["from"], cols["to"],
-                                   cols["driver"], seg["length"].to_numpy(float), seg["delay"].to_numpy(float),
-                                   seg["load_pf_given"].to_numpy(bool), src)
-    on, de = seg["on_path"].to_numpy(bool).copy(), seg["driver_end"].to_numpy(bool).copy()
+    tops = {}
+    if any(any(v) for v in cols.values()):
+        tops = topology.net_topologies(net.to_numpy(object), seg["row"].to_numpy(), cols["from"], cols["to"],
+                                       cols["driver"], seg["length"].to_numpy(float), seg["delay"].to_numpy(float),
+                                       seg["load_pf_given"].to_numpy(bool), src)
+    on = np.ones(len(seg), bool)
+    step = np.arange(len(seg))                 # position along the main path (listed order for a chain)
     for ix, t in tops.values():
         ix = np.asarray(ix)
         on[ix] = False
         on[ix[list(t.path)]] = True
-        de[ix] = False
-        de[ix[t.path[0]]] = True
+        step[ix[list(t.path)]] = ix[0] + np.arange(len(t.path))
+    classes = {c.name: c for c in rules.classes}
+    frac_of = {c: rules.value("ignore_shorter_than_tr", classes.get(c)) for c in pd.unique(seg["net_class"])}
+    frac = seg["net_class"].map(frac_of).to_numpy(float)
+    tr = seg.groupby("net", sort=False)["rise_time"].transform("min").to_numpy(float)
+    long_enough = on & (seg["delay"].to_numpy(float) >= frac * tr)
+    order = pd.DataFrame({"net": net, "step": np.where(on, step, len(seg)), "rank": ~long_enough})
+    first = order.sort_values(["rank", "step"], kind="stable").groupby("net", sort=False).head(1).index
+    de = np.zeros(len(seg), bool)
+    de[first] = True
     seg["on_path"], seg["driver_end"] = on, de
-    return {net: t for net, (_, t) in tops.items()}
+    return {n: t for n, (_, t) in tops.items()}
 
 
 def _add_loss(seg: pd.DataFrame, stackup: Stackup, xs, results, codes, solver: Solver) -> None:

@@ -180,3 +180,16 @@ def test_trace_list_load_pf_reaches_the_simulation_in_pf(run, board, tmp_path):
     run("review", tr, "--stackup", st, "--json", js)
     sim = json.loads(js.read_text())["nets"][0]["simulation"]
     assert sim["load_pf"] == {"value": 7.0, "source": "trace list"}
+
+
+def test_pair_termination_ignores_a_neck_down_listed_first(run, board, tmp_path):
+    # a 0.5 mm neck-down (narrow, high Zdiff) before or after the 60 mm pair: the driver-end impedance is the
+    # first segment reaching ignore_shorter_than_tr x Tr (0.1 x 250 ps), so both orders give one proposal
+    head = "net,layer,length,width,rise_time,pair,gap\n"
+    neck = "D_P,L1,0.5mm,0.1mm,250ps,D_N,0.3mm\n"
+    main = "D_P,L1,60mm,0.3mm,250ps,D_N,0.15mm\n"
+    a = _review_json(run, board, tmp_path, head + neck + main)["nets"][0]
+    b = _review_json(run, board, tmp_path, head + main + neck)["nets"][0]
+    for k in ("z_driver_end_ohm", "advice", "recommended_termination"):
+        assert a[k] == b[k], k
+    assert "ohm" in a["recommended_termination"]

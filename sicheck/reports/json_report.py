@@ -129,6 +129,7 @@ def nets_json(nets) -> list[dict]:
         wave = {f"{w}_{k}": _col(nets, f"{w}_{k}", 1, 4) for w in ("before", "after") for k in WAVE_KEYS}
         loss_inc = nets["waveform_loss"].tolist() if "waveform_loss" in nets.columns else [False] * n
     inputs = nets["waveform_inputs"].tolist() if "waveform_inputs" in nets.columns else [None] * n
+    rx = nets["receivers"].tolist() if "receivers" in nets.columns else [None] * n
     xt = (_col(nets, "next_pct", 1, 4), _col(nets, "fext_pct", 1, 4)) if "next_pct" in nets.columns else None
     pair_skew_ps = round_sig(pair_skew(nets) * 1e12, 4)
     has_vias = "vias" in nets.columns       # via count and lowest stub resonance (review._add_vias)
@@ -162,6 +163,10 @@ def nets_json(nets) -> list[dict]:
             d["recommended_termination"] = None
             if has_wave and isinstance(assumptions[i], str) and assumptions[i]:
                 d["assumptions"] = assumptions[i]
+        if isinstance(rx[i], list):         # every receiver's metrics (one for a chain)
+            d["receivers"] = [{"receiver": x["receiver"], "load_pf": _num(x["load_pf"]), "meets_limits": bool(x["meets"]),
+                               "before": {k: _num(x["before"][k], 4) for k in WAVE_KEYS},
+                               "after": {k: _num(x["after"][k], 4) for k in WAVE_KEYS}} for x in rx[i]]
         if has_vias:
             d["vias"] = n_vias[i]
             d["via_stub_resonance_ghz"] = f_stub[i]

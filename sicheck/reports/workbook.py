@@ -390,6 +390,7 @@ def _timing(book: Book, rv: Review):
     nets = rv.nets
     length = dict(zip(nets["net"], nets["length"].to_numpy(float)))
     layers = dict(zip(nets["net"], nets["layers"]))
+    delays = dict(zip(nets["net"], nets["delay"].to_numpy(float)))
     rows = []
     for gt in group_timing(rv.segments, nets, rv.rules.match_groups):
         over = "yes" if gt.over else "no"
@@ -405,8 +406,10 @@ def _timing(book: Book, rv: Review):
         done.add(frozenset((r.net, r.pair)))
         limit = rv.rules.value("max_pair_skew", rv.rules.class_named(r.net_class) if r.net_class else None)
         over = limit is not None and s > limit
-        rows.append((["(pair)", f"{r.net}/{r.pair}", "", r.delay * 1e12, None, r.length * 1e3, r.layers, s * 1e12,
-                      None if limit is None else limit * 1e12, s * r.length / r.delay * 1e3 if r.delay > 0 else None,
+        slow = r.net if delays[r.net] >= delays[r.pair] else r.pair        # the slower leg's delay and length
+        d, ln = delays[slow], length[slow]
+        rows.append((["(pair)", f"{r.net}/{r.pair}", "", d * 1e12, None, ln * 1e3, layers[slow], s * 1e12,
+                      None if limit is None else limit * 1e12, s * ln / d * 1e3 if d > 0 else None,
                       "", "yes" if over else "no"], over))
     if not rows:
         return
@@ -441,7 +444,7 @@ def _stackup(book: Book, rv: Review):
 
 def _rules(wb: Book, rv: Review):
     """Every registered check with its severity here and its parameters in effect, then the net classes."""
-    from sicheck.checks import CHECKS, SETTINGS
+    from sicheck.checks import CHECKS, SETTINGS, all_params
     r = rv.rules
     cols = [("Item", None, 30), ("Value", None, 18), ("Set in", None, 20), ("Meaning", None, 90)]
     sh = _Sheet(wb, "Rules", cols)
@@ -467,8 +470,14 @@ def _rules(wb: Book, rv: Review):
             vals.append(f"gap {c.gap * 1e3:g} mm")
         if c.driver_ohm is not None:
             vals.append(f"Rdrv {c.driver_ohm:g} ohm")
-        vals += [f"{k} {v:g}" for k, v in c.params.items() if k not in ("z0", "zdiff", "tolerance_pct")]
+        # in each parameter's display unit (a length or a time is stored in SI)
+        vals += [f"{k} {all_params()[k].shown(v)}" for k, v in c.params.items()
+                 if k not in ("z0", "zdiff", "tolerance_pct")]
         sh.row([f"class {c.name}", ", ".join(vals), "[[net_class]]", " ".join(c.match) or "(by net_class column)"])
+    for g in r.match_groups:
+        sh.row([f"match group {g.name}", f"max_skew {g.max_skew * 1e12:g} ps" +
+                (f", reference {g.reference}" if g.reference else ""), "[[match_group]]",
+                " ".join(g.match) or "(by match_group column)"])
     sh.finish()
 
 
