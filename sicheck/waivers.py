@@ -13,6 +13,7 @@ import re
 from dataclasses import dataclass, replace
 from pathlib import Path
 
+from sicheck.checks.engine import PAIR_SEP
 from sicheck.errors import InputError
 from sicheck.findings import Finding
 from sicheck.tomlsrc import TomlSource
@@ -61,11 +62,11 @@ class Waiver:
 
 
 def _names(net: str) -> tuple[str, ...]:
-    """A finding's net as shown, and a pair ("A/B") also the other way round ("B/A")."""
-    if "/" not in net:
+    """A finding's net as shown, and a pair ("A & B") also the other way round ("B & A")."""
+    if PAIR_SEP not in net:
         return (net,)
-    a, b = net.split("/", 1)
-    return (net, f"{b}/{a}")
+    a, b = net.split(PAIR_SEP, 1)
+    return (net, f"{b}{PAIR_SEP}{a}")
 
 
 def finding_key(f: Finding) -> str:

@@ -131,7 +131,7 @@ def test_match_group_pair_and_budget_end_to_end(run, board, tmp_path):
     assert skew["key"] == "delay-skew|=BUS+1" and skew["row"] == far_row
     (pair,) = by_rule["pair-skew"]
     want = 40 * MIL * math.sqrt(e_sl) / C * 1e12                             # 7.0 ps on the stripline
-    assert pair["value"] == pytest.approx(want, rel=1e-4) and pair["net"] == "P_P/P_N" and pair["row"] == 7
+    assert pair["value"] == pytest.approx(want, rel=1e-4) and pair["net"] == "P_P & P_N" and pair["row"] == 7
     assert nets["P_N"]["pair_skew_ps"] == pytest.approx(want, rel=1e-3) and nets["BUS_A"]["pair_skew_ps"] is None
     (budget,) = by_rule["delay-budget"]
     assert budget["net"] == "BUS_B" and budget["limit"] == pytest.approx(340.0)
@@ -140,7 +140,7 @@ def test_match_group_pair_and_budget_end_to_end(run, board, tmp_path):
     cells = [c for r in wb["Timing"].iter_rows() for c in r if c.value is not None]
     names = [c for c in cells if c.value == "=BUS+1"]
     assert len(names) == 3 and all(c.data_type == "s" for c in names)        # stored as text, not a formula
-    assert any(c.value == "P_P/P_N" for c in cells)
+    assert any(c.value == "P_P & P_N" for c in cells)
 
 
 def test_unknown_match_group_in_trace_list_names_row_and_column(run, board):

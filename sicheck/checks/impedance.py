@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label
+from sicheck.checks.engine import PAIR_SEP, Param, check, make_key, pair_id, pair_label
 
 TOLERANCE = Param("tolerance_pct", "number", 10.0, "%", "allowed deviation from the class's target, +/- "
                   "(common practice fabrication tolerance)", section="impedance", per_class=True, hi=100)
@@ -69,7 +69,7 @@ def _target_check(ctx, chk, diff: bool):
         worst = max(idx, key=lambda j: abs(err[j]))
         total = float(seg["length"].to_numpy(float)[idx].sum())
         layers = " > ".join(dict.fromkeys(seg["layer"].iat[j] for j in idx))
-        ident = pair_id(*label.split("/", 1)) if diff else label
+        ident = pair_id(*label.split(PAIR_SEP, 1)) if diff else label
         yield chk.finding(
             label, layers,
             f"{len(idx)} segment(s) shorter than {frac:g} x Tr ({total * 1e3:.1f} mm in all) miss the "

@@ -22,6 +22,7 @@ import xlsxwriter
 from sicheck import __version__
 from sicheck.reports.atomic import atomic_path
 from sicheck.reports.signoff_columns import finding_cells, finding_columns, summary_lines
+from sicheck.checks.engine import pair_label
 from sicheck.review import Review
 
 FORMULA_START = ("=", "+", "-", "@", "\t")
@@ -399,7 +400,7 @@ def _timing(book: Book, rv: Review):
         done.add(frozenset((r.net, r.pair)))
         limit = rv.rules.value("max_pair_skew", rv.rules.class_named(r.net_class) if r.net_class else None)
         over = limit is not None and s > limit
-        rows.append((["(pair)", f"{r.net}/{r.pair}", "", r.delay * 1e12, None, r.length * 1e3, r.layers, s * 1e12,
+        rows.append((["(pair)", pair_label(r.net, r.pair), "", r.delay * 1e12, None, r.length * 1e3, r.layers, s * 1e12,
                       None if limit is None else limit * 1e12, s * r.length / r.delay * 1e3 if r.delay > 0 else None,
                       "", "yes" if over else "no"], over))
     if not rows:
