@@ -202,7 +202,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
         mirror["net"], mirror["pair"] = mirror["pair"].to_numpy(), mirror["net"].to_numpy()
         mirror["mirrored"] = True
     all_seg = pd.concat([seg, mirror], ignore_index=True) if len(mirror) else seg
-    vias = _add_vias(all_seg, seg, stackup)
+    vias = _add_vias(all_seg, seg, stackup, topology)
     nets = _net_table(all_seg, rules)
     nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
     for partner, leg in zip(mirror["net"], mirror["pair"]):     # listed only through its pair: its leg's shape
@@ -228,9 +228,12 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
                   traces_source=src, solver=solver_name, cross_sections=cs, waves=waves, crosstalk=xtalk)
 
 
-def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup) -> pd.DataFrame:
+def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup, topology: dict) -> pd.DataFrame:
     """The board's vias; each segment gains `via_delay`, the barrel delay of the vias entered on its row."""
-    vias = via_table(all_seg, stackup)
+    # a partner listed only through its pair has its leg's shape
+    legs = dict(zip(all_seg.loc[all_seg["mirrored"], "net"], all_seg.loc[all_seg["mirrored"], "pair"]))
+    shapes = {**{p: topology[leg] for p, leg in legs.items() if leg in topology}, **topology}
+    vias = via_table(all_seg, stackup, shapes)
     all_seg["via_delay"] = via_delay_per_row(all_seg, vias)
     if all_seg is not seg:
         seg["via_delay"] = all_seg["via_delay"].to_numpy()[:len(seg)]

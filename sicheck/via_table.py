@@ -109,8 +109,30 @@ def inner_layers(stackup) -> set[str]:
     return {l.name for l in cu[1:-1] if l.type == "signal"}
 
 
-def via_table(seg: pd.DataFrame, stackup) -> pd.DataFrame:
+def _tree_vias(layers: list[str], t, inner: set[str]) -> list[tuple[int, str, str, str]]:
+    """(segment, from layer, to layer, how) for a net whose rows name nodes: a via wherever a segment leaves
+    its parent's layer (one per node and layer pair, however many branches share it), an escape via at the
+    driver and at each open end on an inner layer."""
+    out, seen = [], set()
+    children = {p for p in t.parent if p >= 0}
+    for k in t.order:
+        p = t.parent[k]
+        if p < 0:
+            if layers[k] in inner:
+                out.append((k, "", layers[k], "escape"))
+        elif layers[p] != layers[k] and (t.near[k], layers[p], layers[k]) not in seen:
+            seen.add((t.near[k], layers[p], layers[k]))
+            out.append((k, layers[p], layers[k], "layer change"))
+        if k not in children and layers[k] in inner:
+            out.append((k, layers[k], "", "escape"))
+    return out
+
+
+def via_table(seg: pd.DataFrame, stackup, topology: dict | None = None) -> pd.DataFrame:
     """One row per via of each net in ``seg`` (trace-list order within a net).
+
+    A net in ``topology`` (net -> topology.Topology, from the `from`/`to` columns) has its vias where its
+    tree changes layer (`_tree_vias`); any other net's rows are in series in the order listed.
 
     `how`: "layer change" (between consecutive rows), "escape" (first or last row on an inner layer) or
     "export" (the row's `vias` count: vias the export counts beyond those sicheck sees; each is taken as
@@ -135,15 +157,21 @@ def via_table(seg: pd.DataFrame, stackup) -> pd.DataFrame:
                     t.stub_resonance, t.barrel_length, t.barrel_delay if with_delay else 0.0, float(cols[4][i]),
                     bool(mirrored[i])))
 
+    topology = topology or {}
     for net, idx in order.items():
         layers = [cols[3][i] for i in idx]
-        if layers[0] in inner:
-            add(idx[0], comp, layers[0], "escape")
-        for k in range(1, len(idx)):
-            if layers[k] != layers[k - 1]:
-                add(idx[k], layers[k - 1], layers[k], "layer change")
-        if layers[-1] in inner:
-            add(idx[-1], layers[-1], comp, "escape")
+        t = topology.get(net)
+        if t is not None and len(t.parent) == len(idx):
+            for k, a, b, how in _tree_vias(layers, t, inner):
+                add(idx[k], a or comp, b or comp, how)
+        else:
+            if layers[0] in inner:
+                add(idx[0], comp, layers[0], "escape")
+            for k in range(1, len(idx)):
+                if layers[k] != layers[k - 1]:
+                    add(idx[k], layers[k - 1], layers[k], "layer change")
+            if layers[-1] in inner:
+                add(idx[-1], layers[-1], comp, "escape")
         for i in idx:
             n = extra[i]
             if n > 0:

@@ -119,3 +119,9 @@ def test_any_unknown_group_key_is_named_with_its_line(tmp_path, key):
     with pytest.raises(InputError) as e:
         load_rules(p)
     assert e.value.key == key and e.value.line == 4
+
+
+def test_rules_command_lists_match_groups(run, tmp_path):
+    p = _write(tmp_path, "r.toml", GROUP)
+    code, out, _ = run("rules", "--rules", p)
+    assert code == 0 and "match group DQ0: DQ[0-7] DM0, max_skew 10 ps, reference DQS0_P" in out

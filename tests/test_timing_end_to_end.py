@@ -140,7 +140,9 @@ def test_match_group_pair_and_budget_end_to_end(run, board, tmp_path):
     cells = [c for r in wb["Timing"].iter_rows() for c in r if c.value is not None]
     names = [c for c in cells if c.value == "=BUS+1"]
     assert len(names) == 3 and all(c.data_type == "s" for c in names)        # stored as text, not a formula
-    assert any(c.value == "P_P & P_N" for c in cells)
+    (pair_row,) = [r for r in wb["Timing"].iter_rows(values_only=True) if r[1] == "P_P & P_N"]
+    assert pair_row[3] == pytest.approx(nets["P_N"]["delay_ps"], rel=1e-5)           # the slower leg
+    assert pair_row[7] == pytest.approx(want, rel=1e-4) and pair_row[11] == "yes"
 
 
 def test_unknown_match_group_in_trace_list_names_row_and_column(run, board):
@@ -148,3 +150,19 @@ def test_unknown_match_group_in_trace_list_names_row_and_column(run, board):
     code, _, err = run("review", tr, "--stackup", st, "--rules", rl, "--solver", "formula")
     assert code == 2 and "row 4" in err and "match_group" in err and "'DDR' is not in the rules" in err
     assert "Traceback" not in err
+
+
+def test_demo_board_shows_each_timing_finding():
+    # the demo's timing block: a matched bus with one long net and one on a faster layer, a skewed pair
+    from sicheck.resources import default_rules_path, demo_dir
+    from sicheck.review import build_review
+    from sicheck.rules import load_rule_sets
+    from sicheck.stackup import load_stackup
+    from sicheck.traces import read_traces
+    d = demo_dir()
+    rv = build_review(read_traces(d / "traces.csv"), load_stackup(d / "stackup.toml"),
+                      load_rule_sets([default_rules_path(), d / "rules.toml"]), waveforms=False)
+    got = {(f.rule, f.net) for f in rv.findings}
+    assert {("delay-skew", "TDC bus"), ("delay-budget", "TDC_D3"), ("pair-skew", "HEAD_SYNC_P & HEAD_SYNC_N")} <= got
+    (skew,) = [f for f in rv.findings if f.rule == "delay-skew"]
+    assert "TDC_D3 +" in skew.message and "TDC_D1 -" in skew.message      # too long; same length, faster layer

@@ -113,3 +113,17 @@ def test_end_to_end_review_reports_vias_and_return_paths(run, board, tmp_path):
     # the barrel's delay is in the net's delay: SLOW's segments alone are shorter
     seg_delay = sum(s["delay_ps"] for s in data["segments"] if s["net"] == "SLOW")
     assert slow["delay_ps"] - seg_delay == pytest.approx(1.47e-3 * 2 / 299_792_458.0 * 1e12, rel=1e-3)
+
+
+def test_vias_follow_the_tree_when_rows_name_nodes(run, board, tmp_path):
+    # TOP trunk to V1, then two branches on IN1: one via at V1 (shared), an escape via at each receiver
+    traces = ("net,layer,length,width,rise_time,from,to,load_pf\n"
+              "ADDR,TOP,20mm,0.15mm,100ps,U1.1,V1,\n"
+              "ADDR,IN1,30mm,0.15mm,100ps,V1,U2.1,2\n"
+              "ADDR,IN1,25mm,0.15mm,100ps,V1,U3.1,2\n")
+    tr, st = board(traces, stackup=stackup_text())
+    js = tmp_path / "t.json"
+    code, _, err = run("review", tr, "--stackup", st, "--solver", "formula", "--json", js)
+    assert code in (0, 1), err
+    (net,) = json.loads(js.read_text(encoding="utf-8"))["nets"]
+    assert net["vias"] == 3            # rows in series would give 2 (TOP -> IN1, one escape at the last row)

@@ -105,6 +105,20 @@ def rows() -> list[list]:
                 ("IN3", b8, f"T{k}", f"U8.{pin}", "", 4)):
             out.append([net, layer, ln, 0.15, "600ps", "", "", "", 20, load, frm, to, drv])
     # ---- end multi-drop bus ----
+
+    # ---- timing block (match group, skewed pair; keep it a block of its own at the end) ----
+    # TDC capture bus: four data bits matched to their strobe (rules: [[match_group]] "TDC bus", 10 ps).
+    # TDC_D1 has the strobe's length but runs 20 mm of it on TOP (microstrip, faster): lengths match, delays
+    # do not. TDC_D3 detours 7 mm around a mounting hole: outside the group and over the class's delay budget.
+    seg("TDC_STB", "TOP", 4.0, drv=20)
+    seg("TDC_STB", "IN3", 52.0)
+    for i, (top, inner) in enumerate(((4.0, 52.3), (24.0, 32.0), (4.0, 51.8), (4.0, 59.0))):
+        seg(f"TDC_D{i}", "TOP", top)
+        seg(f"TDC_D{i}", "IN3", inner)
+    # Frame-sync pair from the lidar head, both legs listed: the N leg is 2.5 mm longer (a connector pin swap).
+    seg("HEAD_SYNC_P", "IN6", 80.0, pair="HEAD_SYNC_N", cls="LVDS")
+    seg("HEAD_SYNC_N", "IN6", 82.5, pair="HEAD_SYNC_P", cls="LVDS")
+    # ---- end timing block ----
     return out
 
 
