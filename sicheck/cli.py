@@ -60,11 +60,60 @@ def review(
                                                                      "(repeat or comma-separate)."),
     maps: Optional[list[str]] = typer.Option(None, "--map", help="Rename an export header: 'Net Name=net'."),
     sheet: Optional[str] = typer.Option(None, "--sheet", help="Worksheet of an .xlsx trace list."),
+    coupling: Optional[Path] = typer.Option(None, "--coupling", help="Crosstalk: CSV/XLSX of parallel runs (victim, "
+                                                                     "aggressor, layer, spacing, length)."),
+    previous: Optional[Path] = typer.Option(None, "--previous", help="An earlier review (its signed .xlsx or its "
+                                                                     ".json): carry its decisions over and mark "
+                                                                     "findings new, changed or unchanged."),
+    change_pct: Optional[float] = typer.Option(None, "--change-pct", help="With --previous: a finding whose value "
+                                                                          "moved by more than this % is 'changed' "
+                                                                          "(default 1)."),
+    waivers: Optional[Path] = typer.Option(None, "--waivers", help="Waiver file (.toml): waived findings keep "
+                                                                   "their severity but do not fail the review."),
+    markdown: Optional[Path] = typer.Option(None, "--markdown", help="Short Markdown summary to write (for a CI "
+                                                                     "page or a pull-request comment)."),
 ):
-    """Review a board's trace list against its stackup; exit 1 when there are errors."""
+    """Review a board's trace list against its stackup; exit 1 when there are errors not waived."""
     from sicheck.review_cmd import run_review
     raise typer.Exit(run_review(traces, stackup, rules, out, json_out, solver, units, maps, sheet,
-                                no_cache=no_cache))
+                                no_cache=no_cache, previous=previous, waivers=waivers, change_pct=change_pct,
+                                markdown=markdown, coupling=coupling))
+
+
+@app.command()
+def compare(
+    first: Path = typer.Argument(..., help="OLD.json (a review's --json), or the trace list for the what-if form."),
+    second: Optional[Path] = typer.Argument(None, help="NEW.json (omit for the what-if form)."),
+    stackup: Optional[list[Path]] = typer.Option(None, "--stackup", "-s", help="What-if form: give two stackups; "
+                                                                               "the trace list is reviewed on each."),
+    rules: Optional[list[Path]] = typer.Option(None, "--rules", "-r", help="What-if form: rule set (repeatable)."),
+    out: Optional[Path] = typer.Option(None, "--out", "-o", help="Comparison workbook to write (.xlsx)."),
+    json_out: Optional[Path] = typer.Option(None, "--json", help="Comparison as JSON."),
+    markdown: Optional[Path] = typer.Option(None, "--markdown", help="Short Markdown summary to write."),
+    threshold_pct: float = typer.Option(2.0, "--threshold-pct", help="A number (impedance, delay, loss, a finding's "
+                                                                     "value) has changed when it moved by more "
+                                                                     "than this %."),
+    solver: str = typer.Option("auto", "--solver", help="What-if form: auto, field or formula."),
+    no_cache: bool = typer.Option(False, "--no-cache", help="Do not use the field-solver cache."),
+    units: Optional[list[str]] = typer.Option(None, "--units", help="What-if form: unit for bare numbers."),
+    maps: Optional[list[str]] = typer.Option(None, "--map", help="What-if form: rename an export header."),
+    sheet: Optional[str] = typer.Option(None, "--sheet", help="What-if form: worksheet of an .xlsx trace list."),
+):
+    """What changed between two reviews, per net; exit 1 when the change introduces an error finding."""
+    from sicheck.compare_cmd import run_compare
+    raise typer.Exit(run_compare(first, second, stackup, rules, out, json_out, markdown, threshold_pct, solver,
+                                 units, maps, sheet, no_cache))
+
+
+@app.command("waivers")
+def waivers_cmd(
+    signed: Path = typer.Argument(..., help="A signed review: the workbook (.xlsx) or JSON with dispositions."),
+    until: Optional[str] = typer.Option(None, "--until", help="Give every waiver this end date (YYYY-MM-DD)."),
+    out: Optional[Path] = typer.Option(None, "--out", "-o", help="Write the file here instead of standard output."),
+):
+    """Turn the accepted and waived findings of a signed review into a waiver file (TOML)."""
+    from sicheck.waivers_cmd import run_waivers
+    raise typer.Exit(run_waivers(signed, until, out))
 
 
 @app.command()
@@ -123,13 +172,20 @@ def line(
                                                                             "area."),
     units: str = typer.Option("mm", "--units", help="Unit for bare numbers (mm, um, mil, in)."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object on standard output."),
+    spacing: Optional[str] = typer.Option(None, "--spacing", help="Crosstalk: edge-to-edge spacing to a neighbour "
+                                                                  "of the same width (coupling, NEXT, FEXT)."),
+    rise: Optional[str] = typer.Option(None, "--rise", help="Crosstalk: aggressor's 10-90 % rise time; with "
+                                                            "--length (the coupled length) gives NEXT and FEXT."),
+    swing: Optional[str] = typer.Option(None, "--swing", help="Crosstalk: aggressor driver swing, for the noise "
+                                                              "in volts (with --driver-ohm)."),
+    driver_ohm: Optional[str] = typer.Option(None, "--driver-ohm", help="Crosstalk: aggressor driver resistance."),
 ):
-    """Impedance, delay, L/C and loss of one cross-section."""
+    """Impedance, delay, L/C and loss of one cross-section; crosstalk with --spacing."""
     from sicheck.line_cmd import run_line
     run_line(kind.value, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er,
              length, solver, units, as_json, etch_factor=etch_factor, top_width=top_width, plot=plot, freq=freq,
              loss_tangent=loss_tangent, roughness=roughness, huray_radius=huray_radius, huray_ratio=huray_ratio,
-             mask_loss_tangent=mask_loss_tangent)
+             mask_loss_tangent=mask_loss_tangent, spacing=spacing, rise=rise, swing=swing, driver_ohm=driver_ohm)
 
 
 @app.command()
@@ -147,11 +203,17 @@ def plan(
     no_cache: bool = typer.Option(False, "--no-cache", help="Do not use the field-solver cache."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object on standard output."),
     out: Optional[Path] = typer.Option(None, "--out", "-o", help="Plan workbook to write (.xlsx)."),
+    crosstalk: Optional[str] = typer.Option(None, "--crosstalk", help="Crosstalk budget, e.g. 3%: the smallest "
+                                                                      "spacing per layer for the first --z0 width."),
+    coupled_length: Optional[str] = typer.Option(None, "--coupled-length", help="Crosstalk: coupled length for "
+                                                                                "the far-end budget, e.g. 50mm."),
+    rise: Optional[str] = typer.Option(None, "--rise", help="Crosstalk: aggressor rise time (10-90 %) for the "
+                                                            "far-end budget."),
 ):
     """Widths (and width/gap pairs) for target impedances on every signal layer, with delay and loss."""
     from sicheck.plan_cmd import run_plan
     raise typer.Exit(run_plan(stackup, z0 or [], zdiff or [], gap_rule, freq or [], solver, rules, no_cache,
-                              as_json, out))
+                              as_json, out, crosstalk, coupled_length, rise))
 
 
 @app.command()

@@ -182,7 +182,10 @@ def line_loss(xs: CrossSection, r: LineResult, solver: str, freq: float, rough) 
 
 def run_line(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er, length,
              solver, units, as_json, etch_factor=None, top_width=None, plot=None, freq=None, loss_tangent=None,
-             roughness=None, huray_radius=None, huray_ratio=None, mask_loss_tangent=None) -> None:
+             roughness=None, huray_radius=None, huray_ratio=None, mask_loss_tangent=None, spacing=None, rise=None,
+             swing=None, driver_ohm=None) -> None:
+    from sicheck.crosstalk_line import crosstalk_rows, line_crosstalk, parse_line_options
+    sp, tr, sw, rd = parse_line_options(spacing, rise, swing, driver_ohm, units)
     xs = build_cross_section(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask,
                              mask_er, units, etch_factor, top_width)
     _tand(loss_tangent, "--loss-tangent")
@@ -211,8 +214,14 @@ def run_line(kind, width, thickness, er, height, below, above, er_below, er_abov
         from sicheck.reports.atomic import refuse_inputs
         refuse_inputs(plot, [], "--plot")
     ln = _len(length, "--length", units, "length")
-    r = solve_one(xs, solver)
+    xtalk = None
+    if sp is not None:
+        r, xtalk = line_crosstalk(xs, sp, ln, tr, sw, rd, solver, solve_one)
+    else:
+        r = solve_one(xs, solver)
     d = line_dict(xs, r, ln, units)
+    if xtalk is not None:
+        d.update(xtalk)
     if f_hz is not None:
         d.update(line_loss(xs, r, solver, f_hz, rough))
         if solver == "formula" and xs.kind == "microstrip" and not xs.coupled and not xs.above:
@@ -229,7 +238,7 @@ def run_line(kind, width, thickness, er, height, below, above, er_below, er_abov
         d["plot"] = str(plot)
     if as_json:
         sys.stdout.write(json.dumps(d) + "\n")
-        for w in r.warnings:
+        for w in r.warnings + (xtalk or {}).get("crosstalk_warnings", []):
             print(f"warning: {w}", file=sys.stderr)
         return
     from rich.console import Console
@@ -259,9 +268,11 @@ def run_line(kind, width, thickness, er, height, below, above, er_below, er_abov
         rows.append(("closed form", f"{(r.formula_zdiff if xs.coupled else r.formula_z0):.2f} ohm "
                                     f"({'Zdiff' if xs.coupled else 'Z0'}, {solve_formula_name(xs)})"))
         rows.append(("solve time", f"{r.solve_s:.2f} s"))
+    if xtalk is not None:
+        rows += crosstalk_rows(xtalk)
     for k, v in rows:
         con.print(f"  {k:<18} {v}")
     if plot is not None:
         con.print(f"  plot: {plot}")
-    for w in r.warnings:
+    for w in r.warnings + (xtalk or {}).get("crosstalk_warnings", []):
         con.print(f"  [yellow]warning:[/] {w}")

@@ -63,6 +63,7 @@ class Target:
     losses: list[dict] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     steps: int = 0
+    band: tuple[float, float, float] | None = None    # fabrication band of the achieved Z: min, max, RSS +/-
 
 
 def _z_of(r: LineResult, what: str) -> float:
@@ -229,3 +230,17 @@ def add_losses(st: Stackup, targets: list[Target], freqs: list[float], solver: S
             t.losses.append({"freq_ghz": f * 1e-9, "conductor_loss_db_per_mm": float(a_c) * 1e-3,
                              "dielectric_loss_db_per_mm": float(a_d) * 1e-3,
                              "loss_db_per_mm": (float(a_c) + float(a_d)) * 1e-3})
+
+
+def add_bands(st: Stackup, targets: list[Target], solver: Solver, rule: GapRule, min_feature: float,
+              tol) -> None:
+    """The fabrication band of each proposed width (one batched solve per tolerance limit, as in the review)."""
+    from sicheck.physics.fab_band import tolerance_band
+    done = [t for t in targets if t.width is not None]
+    if not done:
+        return
+    xs = [_make(st, t.layer, t.width, t.what, rule, min_feature) for t in done]
+    b = tolerance_band(xs, [t._result for t in done], solver, tol)
+    for i, t in enumerate(done):
+        lo, hi, rss = ((b.zdiff_min, b.zdiff_max, b.zdiff_rss) if t.what == "zdiff" else (b.z_min, b.z_max, b.z_rss))
+        t.band = (float(lo[i]), float(hi[i]), float(rss[i]))

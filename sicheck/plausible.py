@@ -35,6 +35,8 @@ RANGES: dict[str, Range] = {
                        lo_open=True),
     "huray_radius": Range(0.0, 10e-6, "m", "snowball radii are about 0.1-1 um", lo_open=True),
     "huray_ratio": Range(0.0, 50.0, "", "ball surface per flat area is about 1-15", lo_open=True),
+    "via_stub": Range(0.0, 3e-3, "m", "back-drilling leaves about 0.05-0.3 mm of barrel (common practice, from "
+                      "memory); 3 mm is thicker than most boards"),
     "frequency": Range(1e3, 1e12, "Hz", "the span of the wideband dielectric model (Djordjevic-Sarkar poles)"),
     # trace list and command-line geometry
     "length": Range(0.0, 3.0, "m", "a routed segment on a board is shorter than 3 m", lo_open=True),
@@ -44,7 +46,11 @@ RANGES: dict[str, Range] = {
     "rise_time": Range(1e-12, 10e-6, "s", "edges faster than 1 ps do not exist on boards; slower "
                        "than 10 us is not a signal-integrity question"),
     "driver_ohm": Range(0.0, 10e3, "ohm", "a driver's output resistance, 0 (ideal) to 10 kohm"),
+    "via_count": Range(0.0, 1000.0, "", "vias on one routed segment; more than 1000 is a wrong column"),
     "load_pf": Range(0.0, 1e-9, "F", "a receiver's input capacitance, 0 to 1000 pF"),
+    "spacing": Range(10e-6, 25e-3, "m", "an edge-to-edge clearance from 10 um (finer than any board process) "
+                     "to 25 mm (coupling there is nil)"),
+    "parallel": Range(0.0, 3.0, "m", "a coupled run is no longer than a routed segment (3 m)", lo_open=True),
     # targets and rules
     "impedance": Range(5.0, 500.0, "ohm", "board lines lie between about 10 and 200 ohm"),
     "tolerance_pct": Range(0.0, 100.0, "%", "a tolerance in percent", lo_open=True),

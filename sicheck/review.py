@@ -14,15 +14,19 @@ import numpy as np
 import pandas as pd
 
 from sicheck.checks import ReviewContext, run_checks
+from sicheck.checks.fabrication_band import tolerances as fab_tolerances
 from sicheck.errors import InputError
 from sicheck.findings import SEVERITY_ORDER, Finding
 from sicheck.physics import electrical, termination
 from sicheck.physics.cross_section import CrossSection
+from sicheck.physics.fab_band import band_columns, tolerance_band
 from sicheck.physics.formula import solve_formula
 from sicheck.physics.line_result import LineResult, per_length
 from sicheck.rules import Rules
+from sicheck.skew import check_group_column
 from sicheck.stackup import Stackup
 from sicheck.traces import TraceList
+from sicheck.via_table import net_via_summary, via_delay_per_row, via_table
 
 Solver = Callable[[list[CrossSection]], list[LineResult]]
 
@@ -38,6 +42,8 @@ class Review:
     solver: str
     cross_sections: list[tuple[str, CrossSection, LineResult]] = field(default_factory=list)
     waves: dict = field(default_factory=dict)     # net -> ((t, v) before, (t, v) after, v_final)
+    crosstalk: object = None                      # crosstalk_review.CrosstalkTables when spacings were given
+    signoff: object = None      # sicheck.signoff.SignOff when a previous review or waivers were given
 
     @property
     def counts(self) -> dict[str, int]:
@@ -66,7 +72,10 @@ class Review:
 
     @property
     def exit_code(self) -> int:
-        return 1 if self.counts["error"] else 0
+        """1 when an error finding is not waived (a waived finding keeps its severity but passes)."""
+        waived = self.signoff.waived_keys if self.signoff is not None else set()
+        return 1 if any(f.severity == "error" and (f.key or f"{f.rule}|{f.net}") not in waived
+                        for f in self.findings) else 0
 
 
 def _resolve_classes(df: pd.DataFrame, rules: Rules, src: str) -> pd.DataFrame:
@@ -113,7 +122,8 @@ def _check_pairs(df: pd.DataFrame, src: str) -> None:
 
 
 def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solver = solve_formula,
-                 solver_name: str = "formula", waveforms: bool = True) -> Review:
+                 solver_name: str = "formula", waveforms: bool = True,
+                 couplings: pd.DataFrame | None = None) -> Review:
     src = traces.source
     df = traces.frame.copy()
     # layers
@@ -126,12 +136,14 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
                          f"({', '.join(layer_names.values())})", file=src, row=int(df["row"].iloc[i]), column="layer")
     df["layer"] = canon_layer.to_numpy()
     df = _resolve_classes(df, rules, src)
+    df = check_group_column(df, rules.match_groups, src)
     df["width"] = _class_value(df, rules, "width", "width")
     df["rise_time"] = _class_value(df, rules, "rise_time", "rise_time")
     df["gap"] = _class_value(df.assign(gap=np.where(df["pair"] != "", df["gap"], np.nan)), rules, "gap", "gap")
     df.loc[df["pair"] == "", "gap"] = np.nan
     given = {c: df[c].notna().to_numpy() for c in ("driver_ohm", "load_pf", "rise_time")}   # for the waveform notes
     df["driver_ohm"] = _class_value(df, rules, "driver_ohm", "driver_ohm")
+    df["load_pf"] = df["load_pf"] * 1e12     # the reader gives farads; classes, rules and this column use pF
     df["load_pf"] = _class_value(df, rules, "load_pf", "load_pf")
     for col, what in (("width", "a width (column 'width' or the net class's width)"),):
         miss = np.isnan(df[col].to_numpy(float))
@@ -169,9 +181,19 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
           for layer, w, g, fk in uniques]
     results = solver(xs)
     seg = _segment_table(df, codes, xs, results)
+    # fabrication band: each cross-section re-solved at its tolerance limits (sicheck.physics.fab_band)
+    band = tolerance_band(xs, results, solver, fab_tolerances(rules))
+    for name, values in band_columns(band).items():
+        seg[name] = values[codes]
+    seg["vias"] = df["vias"].to_numpy(float) if "vias" in df else 0.0
     _add_loss(seg, stackup, xs, results, codes, solver)
     for c, m in given.items():
         seg[f"{c}_given"] = m
+    from sicheck import crosstalk_review as xtr     # before the mirroring: partners inherit the columns
+    if couplings is not None:
+        couplings = xtr.prepare_couplings(couplings, seg, stackup)
+    xtalk = xtr.add_segment_crosstalk(seg, df, rules, stackup, solver, couplings)
+    topology = _topology(df, seg, rules, src)
 
     # ---- partners listed only through their pair: mirror their segments for the net table
     listed = set(df["net"])
@@ -180,18 +202,79 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
         mirror["net"], mirror["pair"] = mirror["pair"].to_numpy(), mirror["net"].to_numpy()
         mirror["mirrored"] = True
     all_seg = pd.concat([seg, mirror], ignore_index=True) if len(mirror) else seg
+    vias = _add_vias(all_seg, seg, stackup, topology)
     nets = _net_table(all_seg, rules)
+    nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
+    for partner, leg in zip(mirror["net"], mirror["pair"]):     # listed only through its pair: its leg's shape
+        if leg in topology:
+            topology.setdefault(partner, topology[leg])
+    from sicheck.topology import CHAIN_NOTE
+    nets["topology_note"] = [topology[n].note if n in topology else (CHAIN_NOTE if k > 1 else "")
+                             for n, k in zip(nets["net"], nets["segments"])]
     waves: dict = {}
     if waveforms:
         from sicheck.waveform_review import simulate_nets
-        nets, waves = simulate_nets(all_seg, nets, rules, xs)
+        nets, waves = simulate_nets(all_seg, nets, rules, xs, topology)
+    if xtalk is not None and couplings is not None:
+        xtr.attach_couplings(xtalk, couplings, seg, dict(zip(nets["net"], nets["rise_time"])))
+    xtr.add_net_crosstalk(nets, all_seg, xtalk)
     ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
-                        cross_sections=list(zip(xs, results)))
+                        cross_sections=list(zip(xs, results)), topology=topology, crosstalk=xtalk,
+                        vias=vias)
     findings = run_checks(ctx)
     findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
     return Review(segments=seg, nets=nets, findings=findings, stackup=stackup, rules=rules,
-                  traces_source=src, solver=solver_name, cross_sections=cs, waves=waves)
+                  traces_source=src, solver=solver_name, cross_sections=cs, waves=waves, crosstalk=xtalk)
+
+
+def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup, topology: dict) -> pd.DataFrame:
+    """The board's vias; each segment gains `via_delay`, the barrel delay of the vias entered on its row."""
+    # a partner listed only through its pair has its leg's shape
+    legs = dict(zip(all_seg.loc[all_seg["mirrored"], "net"], all_seg.loc[all_seg["mirrored"], "pair"]))
+    shapes = {**{p: topology[leg] for p, leg in legs.items() if leg in topology}, **topology}
+    vias = via_table(all_seg, stackup, shapes)
+    all_seg["via_delay"] = via_delay_per_row(all_seg, vias)
+    if all_seg is not seg:
+        seg["via_delay"] = all_seg["via_delay"].to_numpy()[:len(seg)]
+    return vias
+
+
+def _topology(df: pd.DataFrame, seg: pd.DataFrame, rules: Rules, src: str) -> dict:
+    """Each net's tree where its rows name nodes (sicheck/topology.py): {net: Topology}.
+
+    Marks the segments on the net's main path (`on_path`) and the one whose impedance the driver sees
+    (`driver_end`): the first on the path, from the driver, whose delay reaches the class's
+    `ignore_shorter_than_tr` x Tr (a shorter neck-down or pad entry is lumped), else the first. A net
+    without nodes is its rows in series, driver first.
+    """
+    from sicheck import topology
+    net = seg["net"]
+    cols = {c: (df[c].to_numpy(object) if c in df.columns else np.full(len(df), "", dtype=object))
+            for c in ("from", "to", "driver")}
+    tops = {}
+    if any(any(v) for v in cols.values()):
+        tops = topology.net_topologies(net.to_numpy(object), seg["row"].to_numpy(), cols["from"], cols["to"],
+                                       cols["driver"], seg["length"].to_numpy(float), seg["delay"].to_numpy(float),
+                                       seg["load_pf_given"].to_numpy(bool), src)
+    on = np.ones(len(seg), bool)
+    step = np.arange(len(seg))                 # position along the main path (listed order for a chain)
+    for ix, t in tops.values():
+        ix = np.asarray(ix)
+        on[ix] = False
+        on[ix[list(t.path)]] = True
+        step[ix[list(t.path)]] = ix[0] + np.arange(len(t.path))
+    classes = {c.name: c for c in rules.classes}
+    frac_of = {c: rules.value("ignore_shorter_than_tr", classes.get(c)) for c in pd.unique(seg["net_class"])}
+    frac = seg["net_class"].map(frac_of).to_numpy(float)
+    tr = seg.groupby("net", sort=False)["rise_time"].transform("min").to_numpy(float)
+    long_enough = on & (seg["delay"].to_numpy(float) >= frac * tr)
+    order = pd.DataFrame({"net": net, "step": np.where(on, step, len(seg)), "rank": ~long_enough})
+    first = order.sort_values(["rank", "step"], kind="stable").groupby("net", sort=False).head(1).index
+    de = np.zeros(len(seg), bool)
+    de[first] = True
+    seg["on_path"], seg["driver_end"] = on, de
+    return {n: t for n, (_, t) in tops.items()}
 
 
 def _add_loss(seg: pd.DataFrame, stackup: Stackup, xs, results, codes, solver: Solver) -> None:
@@ -267,6 +350,7 @@ def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataF
         "freq": df["freq"].to_numpy(float),
         "xs": codes,
         "mirrored": False,
+        "match_group": df["match_group"].to_numpy() if "match_group" in df.columns else "",
     })
     seg["delay"] = seg["length"] * seg["delay_per_m"]
     return seg
@@ -285,15 +369,25 @@ def _layer_paths(seg: pd.DataFrame, nets: pd.Index) -> np.ndarray:
 def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     g = seg.groupby("net", sort=False)
     first = g.first()
+    # length, delay and loss along the main path (driver to the farthest receiver); all rows when not marked
+    on = seg["on_path"].to_numpy(bool) if "on_path" in seg.columns else np.ones(len(seg), bool)
+    gp = pd.DataFrame({"net": seg["net"], **{c: np.where(on, seg[c].to_numpy(float), 0.0)
+                                             for c in ("length", "delay", "loss_db", "via_delay")
+                                             if c in seg.columns}}).groupby("net", sort=False)
+    if "driver_end" in seg.columns:      # the driver-end segment's impedance, not the first row's
+        de = seg[seg["driver_end"].to_numpy(bool)].groupby("net", sort=False).first().reindex(first.index)
+        first = first.assign(zdiff=de["zdiff"], z0=de["z0"], zodd=de["zodd"])
     nets = pd.DataFrame({
         "net": first.index.to_numpy(),
         "net_class": first["net_class"].to_numpy(),
         "pair": first["pair"].to_numpy(),
         "segments": g.size().to_numpy(),
         "layers": _layer_paths(seg, first.index),
-        "length": g["length"].sum().to_numpy(),
-        "delay": g["delay"].sum().to_numpy(),
-        "loss_db": g["loss_db"].sum().to_numpy(),
+        "length": gp["length"].sum().to_numpy(),
+        "copper_length": g["length"].sum().to_numpy(),
+        # vias' barrel delay (review._add_vias) belongs to the net's delay
+        "delay": (gp["delay"].sum() + (gp["via_delay"].sum() if "via_delay" in seg else 0.0)).to_numpy(),
+        "loss_db": gp["loss_db"].sum().to_numpy(),
         "freq": first["freq"].to_numpy(),
         "rise_time": g["rise_time"].min().to_numpy(),
         "driver_ohm": first["driver_ohm"].to_numpy(),

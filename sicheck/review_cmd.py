@@ -9,7 +9,9 @@ from sicheck.errors import InputError
 
 def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path | None, json_out: Path | None,
                solver: str, units: list[str] | None, maps: list[str] | None, sheet: str | None,
-               quiet: bool = False, no_cache: bool = False) -> int:
+               quiet: bool = False, no_cache: bool = False, previous: Path | None = None,
+               waivers: Path | None = None, change_pct: float | None = None,
+               markdown: Path | None = None, coupling: Path | None = None) -> int:
     from rich.console import Console
 
     from sicheck.reports.atomic import refuse_inputs, write_text_atomic
@@ -22,31 +24,86 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
     from sicheck.stackup import load_stackup
     from sicheck.traces import parse_map_option, parse_units_option, read_traces
 
-    inputs = [traces, stackup] + list(rules or [])
+    inputs = [traces, stackup] + list(rules or []) + [p for p in (previous, waivers, coupling) if p is not None]
     if out is not None:
         refuse_inputs(out, inputs, "--out", suffix=".xlsx")
     if json_out is not None:
         refuse_inputs(json_out, inputs, "--json")
     if out is not None and json_out is not None and Path(out).resolve() == Path(json_out).resolve():
         raise InputError("--out and --json name the same file")
+    if markdown is not None:
+        refuse_inputs(markdown, inputs, "--markdown")
+        if any(o is not None and Path(o).resolve() == Path(markdown).resolve() for o in (out, json_out)):
+            raise InputError("--markdown names the same file as --out or --json")
+    # the sign-off inputs are read first: a typo there should not cost a whole review
+    prior, wv = _signoff_inputs(previous, waivers, change_pct)
     st = load_stackup(stackup)
     rs = load_rule_sets(rules)
     aliases = dict(rs.columns)
     aliases.update(parse_map_option(maps))
     tl = read_traces(traces, parse_units_option(units), aliases, sheet)
-    rv = build_review(tl, st, rs, solver_fn(solver, no_cache, not quiet), solver)
+    cp = None
+    if coupling is not None:
+        from sicheck.crosstalk_review import read_couplings
+        cp = read_couplings(coupling, parse_units_option(units))
+    rv = build_review(tl, st, rs, solver_fn(solver, no_cache, not quiet), solver, couplings=cp)
+    if previous is not None or waivers is not None:
+        from sicheck.signoff import CHANGE_PCT, sign_off
+        rv.findings, rv.signoff = sign_off(rv.findings, prior, None if previous is None else str(previous), wv,
+                                           None if waivers is None else str(waivers),
+                                           change_pct=CHANGE_PCT if change_pct is None else change_pct)
     console = Console(highlight=False)
     if not quiet:
         print_summary(rv, console)
+        _print_signoff(rv, console)
     if out is not None:
-        write_workbook(rv, out)
+        extra = None
+        if rv.signoff is not None and rv.signoff.previous:
+            from sicheck.reports.changes_sheet import changes_sheet
+            extra = [changes_sheet]
+        write_workbook(rv, out, extra_sheets=extra)
         if not quiet:
             console.print(f"workbook: {out}")
     if json_out is not None:
         write_text_atomic(json_out, review_json(rv))
         if not quiet:
             console.print(f"json: {json_out}")
+    if markdown is not None:
+        from sicheck.reports.markdown import review_markdown
+        write_text_atomic(markdown, review_markdown(rv))
+        if not quiet:
+            console.print(f"markdown: {markdown}")
     return rv.exit_code
+
+
+def _signoff_inputs(previous: Path | None, waivers: Path | None, change_pct: float | None):
+    prior = wv = None
+    if change_pct is not None and not (0 <= change_pct < 100):
+        raise InputError(f"--change-pct must be from 0 to 100 (a percentage), not {change_pct:g}")
+    if change_pct is not None and previous is None:
+        raise InputError("--change-pct needs --previous (it says when a finding's value has changed)")
+    if previous is not None:
+        from sicheck.signoff import read_previous
+        prior = read_previous(previous)
+    if waivers is not None:
+        from sicheck.waivers import load_waivers
+        wv = load_waivers(waivers)
+    return prior, wv
+
+
+def _print_signoff(rv, console) -> None:
+    from rich.markup import escape
+
+    from sicheck.reports.signoff_columns import changes_sentence
+    so = rv.signoff
+    if so is None:
+        return
+    if so.previous:
+        console.print(f"since {escape(Path(so.previous).name)}: {changes_sentence(so)}")
+    if so.waivers:
+        n = so.counts()["waived"]
+        console.print(f"waived: {n} finding{'s' if n != 1 else ''} (kept with their severity; not counted for "
+                      "the exit code)")
 
 
 def run_demo(out: Path, json_out: Path | None, solver: str, no_cache: bool) -> int:

@@ -8,6 +8,7 @@ A rule set file may hold these tables (all optional):
   [columns]      "header in the export" = "sicheck column"
   [[net_class]]  name, match (globs), the net's own values (rise_time, width, gap, driver_ohm, load_pf,
                  swing, freq) and any per-class check parameter (z0, zdiff, tolerance_pct, ...)
+  [[match_group]] name, match (globs), max_skew (a time), optional reference net (sicheck/skew.py)
 Files are applied in order (a folder in name order): a later file overrides only what it sets and adds
 net classes; a class name may be defined once in the whole set.
 """
@@ -21,6 +22,7 @@ from typing import Iterable
 
 from sicheck.checks import CHECKS, SEVERITIES, SEVERITY_CHOICES, Param, all_params, class_params, section_params
 from sicheck.errors import InputError
+from sicheck.skew import MatchGroup, read_match_groups
 from sicheck.tomlsrc import TomlSource
 from sicheck.units import UnitError, parse_quantity
 
@@ -89,10 +91,11 @@ class Rules:
     columns: dict = field(default_factory=dict)
     classes: tuple[NetClass, ...] = ()
     notes: tuple[tuple[str, str], ...] = ()                  # (where, note) for the rules-note check
+    match_groups: tuple[MatchGroup, ...] = ()
 
     def __init__(self, name: str = "built-in", sources: tuple[str, ...] = (), settings: dict | None = None,
                  severity: dict | None = None, columns: dict | None = None, classes: tuple = (),
-                 notes: tuple = (), **params):
+                 notes: tuple = (), match_groups: tuple = (), **params):
         # parameters may also be given by name (Rules(tolerance_pct=5), replace(rules, max_nets=2))
         unknown = set(params) - set(all_params())
         if unknown:
@@ -103,7 +106,8 @@ class Rules:
         sev = _default_severity()
         sev.update(severity or {})
         for k, v in (("name", name), ("sources", tuple(sources)), ("settings", st), ("severity", sev),
-                     ("columns", dict(columns or {})), ("classes", tuple(classes)), ("notes", tuple(notes))):
+                     ("columns", dict(columns or {})), ("classes", tuple(classes)), ("notes", tuple(notes)),
+                     ("match_groups", tuple(match_groups))):
             object.__setattr__(self, k, v)
 
     def __getattr__(self, name: str):
@@ -192,7 +196,7 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
     src = TomlSource(path, "rules")
     d = src.data
     sections = section_params()
-    top_keys = {"name", "severity", "columns", "net_class"} | set(sections)
+    top_keys = {"name", "severity", "columns", "net_class", "match_group"} | set(sections)
     for key in d:
         if key not in top_keys:
             raise src.error(f"unknown key '{key}' (allowed: {', '.join(sorted(top_keys))})", key)
@@ -256,7 +260,8 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
         kw["params"] = {key: _param_value(src, p, c[key], "net_class", i) for key, p in per_class.items() if key in c}
         classes.append(NetClass(**kw))
     upd: dict = {"settings": settings, "severity": sev, "columns": cols, "classes": tuple(classes),
-                 "notes": tuple(notes), "sources": rules.sources + (str(path),)}
+                 "notes": tuple(notes), "sources": rules.sources + (str(path),),
+                 "match_groups": read_match_groups(src, d.get("match_group", []), rules.match_groups)}
     if "name" in d:
         if not isinstance(d["name"], str):
             raise src.error(f"'name' must be text (got {d['name']!r})", "name")

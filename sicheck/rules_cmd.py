@@ -44,6 +44,9 @@ def run_rules(rules: list[Path] | None) -> int:
                   _g(c.driver_ohm, 1, " ohm"))
     con.print(t)
     con.print(f"Nets that match no class are in class '{UNCLASSIFIED}'.")
+    for g in rs.match_groups:
+        con.print(escape(f"match group {g.name}: {' '.join(g.match) or '(match_group column)'}, max_skew "
+                         f"{g.max_skew * 1e12:g} ps" + (f", reference {g.reference}" if g.reference else "")))
     for where, note in rs.notes:
         con.print(escape(f"note: {where}: {note}"))
     return 0

@@ -20,12 +20,20 @@ def solver_fn(name: str, no_cache: bool = False, show_progress: bool = True):
     if name == "formula":
         return solve_formula
 
+    chosen: dict[str, bool] = {}
+
     def field(xs_list):
         from sicheck.field_solve import AUTO_FIELD_LIMIT, solve_field_all
-        if name == "auto" and len(xs_list) > AUTO_FIELD_LIMIT:
-            _err_console().print(f"{len(xs_list)} unique cross-sections: more than {AUTO_FIELD_LIMIT}, so 'auto' "
-                                 "uses the closed forms (use --solver field to force the field solver)")
-            return solve_formula(xs_list)
+        if name == "auto":
+            # the first call (a board's nominal cross-sections) decides for the whole command, so that the
+            # fabrication band's and the loss's extra solves use the nominal's solver
+            if "closed" not in chosen:
+                chosen["closed"] = len(xs_list) > AUTO_FIELD_LIMIT
+                if chosen["closed"]:
+                    _err_console().print(f"{len(xs_list)} unique cross-sections: more than {AUTO_FIELD_LIMIT}, so "
+                                         "'auto' uses the closed forms (use --solver field to force the field solver)")
+            if chosen["closed"]:
+                return solve_formula(xs_list)
         if not show_progress:
             return solve_field_all(xs_list, use_cache=not no_cache)
         from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn

@@ -16,14 +16,15 @@ from pathlib import Path
 from sicheck import plausible
 from sicheck.errors import InputError
 from sicheck.physics.cross_section import CrossSection, Stratum
+from sicheck.stackup_vias import ViaSpec, parse_plane_net, parse_vias
 from sicheck.units import COPPER_OZ, UnitError, parse_quantity
 
 LAYER_TYPES = ("mask", "signal", "plane", "dielectric")
-TOP_KEYS = {"name", "units", "layers"}
+TOP_KEYS = {"name", "units", "layers", "vias"}
 LAYER_KEYS = {
     "mask": {"type", "name", "thickness", "er", "loss_tangent", "freq"},
     "signal": {"type", "name", "thickness", "copper", "etch_factor", "roughness", "huray_radius", "huray_ratio"},
-    "plane": {"type", "name", "thickness", "copper"},
+    "plane": {"type", "name", "thickness", "copper", "net"},
     "dielectric": {"type", "name", "thickness", "er", "loss_tangent", "kind", "freq"},
 }
 BARE_UNITS = ("mm", "um", "mil", "in")
@@ -44,6 +45,7 @@ class Layer:
     roughness: float | None = None     # RMS copper roughness (Hammerstad-Jensen)
     huray_radius: float | None = None
     huray_ratio: float | None = None
+    net: str | None = None             # plane only: the net its copper carries (default: the plane's name)
 
     @property
     def copper(self) -> bool:
@@ -55,6 +57,7 @@ class Stackup:
     name: str
     layers: tuple[Layer, ...]
     source: str
+    vias: ViaSpec = ViaSpec()          # how signal vias are built (the [vias] table)
 
     @property
     def signal_layers(self) -> list[Layer]:
@@ -189,7 +192,10 @@ def load_stackup(path: str | Path) -> Stackup:
 def parse_stackup(data: dict, raw: str, src: str) -> Stackup:
     text_lines = raw.splitlines()
     block_starts = [n for n, l in enumerate(text_lines) if re.match(r"^\s*\[\[\s*layers\s*\]\]", l)]
-    block_ends = block_starts[1:] + [len(text_lines)]
+    # the last block ends at the next table header (e.g. [vias]), not at the end of the file
+    last_end = next((n for n in range(block_starts[-1] + 1, len(text_lines)) if re.match(r"^\s*\[", text_lines[n])),
+                    len(text_lines)) if block_starts else len(text_lines)
+    block_ends = block_starts[1:] + [last_end]
     head_end = block_starts[0] if block_starts else len(text_lines)
 
     for key in data:
@@ -316,14 +322,16 @@ def parse_stackup(data: dict, raw: str, src: str) -> Stackup:
             rough["huray_ratio"] = float(hr)
         if ("huray_radius" in rough) != ("huray_ratio" in rough):
             fail("Huray's model needs both huray_radius and huray_ratio", "huray_radius")
+        net = parse_plane_net(lr["net"], fail) if "net" in lr else (str(name).strip() if ltype == "plane" else None)
         layers.append(Layer(index=i, type=ltype, name=str(label), thickness=float(thickness),
                             er=None if er is None else float(er), loss_tangent=float(tand), kind=kind,
                             etch_factor=None if ef is None else float(ef), line=start + 1, freq=freq,
                             roughness=rough.get("roughness"), huray_radius=rough.get("huray_radius"),
-                            huray_ratio=rough.get("huray_ratio")))
+                            huray_ratio=rough.get("huray_ratio"), net=net))
 
     layers = _name_by_place(layers, unnamed)
-    st = Stackup(name=str(data.get("name") or Path(src).stem), layers=tuple(layers), source=src)
+    st = Stackup(name=str(data.get("name") or Path(src).stem), layers=tuple(layers), source=src,
+                 vias=parse_vias(data, text_lines, src, units))
     _check_structure(st, src)
     return st
 

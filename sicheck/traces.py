@@ -32,6 +32,14 @@ COLUMNS = {
     "net_class": (None, None, False),
     "driver_ohm": ("resistance", "ohm", False),
     "load_pf": ("capacitance", "pF", False),
+    "spacing": ("length", None, False),     # crosstalk: edge-to-edge clearance to the nearest aggressor
+    "parallel": ("length", None, False),    # crosstalk: coupled length (default: the segment's length)
+    # topology (sicheck/topology.py): each segment's end nodes and the net's driver node
+    "from": (None, None, False),
+    "to": (None, None, False),
+    "driver": (None, None, False),
+    "match_group": (None, None, False),         # a [[match_group]] of the rules (sicheck/skew.py)
+    "vias": ("count", None, False),       # vias the export counts on the row, beyond layer changes (via_table)
 }
 _HEADER_UNIT = re.compile(r"^(.*?)[\s_]*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
 
@@ -267,6 +275,25 @@ def _numeric_column(cells: pd.Series, rows: pd.Series, canon: str, header_label:
     return out
 
 
+def _count_column(cells: pd.Series, rows: pd.Series, label: str, src: str) -> np.ndarray:
+    """A whole number per row (empty = 0), within its plausible range."""
+    out = np.zeros(len(cells))
+    for i, v in enumerate(cells.tolist()):
+        text = "" if v is None else str(v).strip()
+        if text == "":
+            continue
+        try:
+            x = float(text)
+        except ValueError:
+            x = float("nan")
+        if not (np.isfinite(x) and x == int(x)):
+            raise InputError(f"'{text}' is not a whole number", file=src, row=int(rows.iloc[i]), column=label)
+        if bad := plausible.check("via_count", x):
+            raise InputError(f"'{text}': {bad}", file=src, row=int(rows.iloc[i]), column=label)
+        out[i] = x
+    return out
+
+
 def read_traces(path: str | Path, units: dict[str, str] | None = None, aliases: dict[str, str] | None = None,
                 sheet: str | None = None) -> TraceList:
     """Read and validate a trace list. Raises InputError naming file, row and column."""
@@ -298,6 +325,9 @@ def read_traces(path: str | Path, units: dict[str, str] | None = None, aliases: 
             continue
         j, unit, label = mapping[canon]
         cells = raw[j]
+        if dim == "count":
+            out[canon] = _count_column(cells, rows, label, src)
+            continue
         if dim is None:
             text = cells.map(lambda v: "" if v is None else str(v)).str.strip()
             if required:

@@ -66,9 +66,11 @@ POOL_MIN_NETS = 400      # below this a process pool costs more than it saves
 
 def _choose_one(args):
     """One net's termination choice: (before, after) candidates, or the reason it cannot be simulated."""
-    z, td, rise, drv, swing, cap, limits, zd, losses = args
+    z, td, rise, drv, swing, cap, limits, zd, losses, tree = args
+    parents, receivers, driver_end = tree if tree is not None else (None, None, None)
     try:
-        before, after, _ = choose(z, td, rise, drv, swing, cap, limits, zdiff=zd, keep_waves=True, losses=losses)
+        before, after, _ = choose(z, td, rise, drv, swing, cap, limits, zdiff=zd, keep_waves=True, losses=losses,
+                                  parents=parents, receivers=receivers, driver_end=driver_end)
     except ValueError as e:
         return str(e)
     return before, after
@@ -99,7 +101,7 @@ def run_jobs(jobs: list) -> list:
     return out
 
 
-def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list | None = None
+def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list | None = None, topology=None
                   ) -> tuple[pd.DataFrame, dict]:
     classes = {c.name: c for c in rules.classes}
     n = len(nets)
@@ -112,6 +114,8 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
     violations = np.full(n, "", dtype=object)
     lossy = np.full(n, None, dtype=object)
     inputs = np.full(n, None, dtype=object)
+    rx_out = np.full(n, None, dtype=object)     # every receiver's metrics (before, after)
+    topology = topology or {}
     waves: dict[str, tuple] = {}
 
     flagged = nets.index[nets["termination"] != "not-needed"]
@@ -121,14 +125,15 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
     area = (np.array([_trace_area(x) for x in xs], dtype=float) if xs is not None else None)
     pos = {net: np.asarray(ix) for net, ix in seg.groupby("net", sort=False).indices.items()}
     arr = {c: seg[c].to_numpy() for c in ("z0", "zodd", "delay", "length", "freq", "conductor_loss_db_per_m",
-                                          "dielectric_loss_db_per_m", "xs", "rise_time")}
+                                          "dielectric_loss_db_per_m", "xs", "rise_time", "load_pf")}
     given = {c: (seg[f"{c}_given"].to_numpy(bool) if f"{c}_given" in seg.columns else np.zeros(len(seg), bool))
              for c in ("driver_ohm", "load_pf", "rise_time")}
+    driver_end = seg["driver_end"].to_numpy(bool) if "driver_end" in seg.columns else None
     done_pair: dict[frozenset, int] = {}
     partners: list[tuple[int, int]] = []
     jobs: list = []
     pending: dict = {}
-    copy_cols = (scheme, part, power, meets, notes, violations, lossy, inputs)
+    copy_cols = (scheme, part, power, meets, notes, violations, lossy, inputs, rx_out)
     rows = {i: r for i, r in zip(nets.index, nets.to_dict("records"))}
     for i in order:
         r = rows[i]
@@ -157,6 +162,23 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         if np.isnan(cap):
             cap = rules.load_pf
             assumed.append(f"load {cap:g} pF")
+        topo = topology.get(net)
+        # the segment whose impedance the driver sees (review._topology: not a short neck-down)
+        de_local = int(np.argmax(driver_end[ix])) if driver_end is not None else 0
+        tree, rx_used = (None, None, de_local), [{"receiver": "far end", "load_pf": cap, "source": cap_src}]
+        if topo is not None:       # a tree: each receiver its own load, the driver end on the main path
+            rx_used, rx = [], []
+            for name, k in zip(topo.receivers, topo.receiver_segment):
+                c_k = float(arr["load_pf"][ix[k]])
+                src_k = _source(bool(given["load_pf"][ix[k]]), cls, "load_pf", "load_pf")
+                if np.isnan(c_k):
+                    c_k = rules.load_pf
+                rx.append((int(k), c_k * 1e-12, name))
+                rx_used.append({"receiver": name, "load_pf": c_k, "source": src_k})
+            assumed = [a for a in assumed if not a.startswith("load ")] + (
+                [f"load {rules.load_pf:g} pF"] if any(u["source"].startswith(RULES_SRC) for u in rx_used) else [])
+            tree = (list(topo.parent), rx, de_local)
+            cap, cap_src = rx_used[0]["load_pf"], rx_used[0]["source"]
         swing = cls.swing if cls and cls.swing else None
         swing_src = f"net class '{cls.name}'" if swing is not None else f"{RULES_SRC} swing"
         if swing is None:
@@ -180,13 +202,18 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         loss_db = float(np.nansum(arr["length"][ix] * (arr["conductor_loss_db_per_m"][ix]
                                                        + arr["dielectric_loss_db_per_m"][ix])))
         used = {
-            "engine": "frequency domain: the chain of lines solved with exact delays (a model of the net: an estimate)",
+            "engine": ("frequency domain: the chain of lines solved with exact delays (a model of the net: an estimate)"
+                       if tree is None else "frequency domain: the tree of lines (each branch a shunt input admittance "
+                       "at its node) solved with exact delays (a model of the net: an estimate)"),
             "source": f"linear ramp 0-100 % in {rise / 0.8 * 1e12:.4g} ps (Tr/0.8) behind the driver resistance",
             "mode": "odd mode of the pair: one leg, half the swing, Zodd per segment" if pair else "single-ended",
             "segments": int(len(ix)),
-            "delay_ps": {"value": float(td.sum() * 1e12), "source": "segments (field solver or closed form)"},
+            "delay_ps": {"value": float((td.sum() if topo is None else td[list(topo.path)].sum()) * 1e12),
+                         "source": "segments (field solver or closed form)" + ("" if topo is None else
+                                                                               ", along the main path")},
             "driver_ohm": {"value": drv, "source": drv_src},
             "load_pf": {"value": cap, "source": cap_src},
+            "receivers": rx_used,
             "swing_v": {"value": swing, "source": swing_src},
             "rise_time_ps": {"value": rise * 1e12, "source": rise_src + " (fastest edge on the net's rows)"},
             "max_overshoot_pct": {"value": over, "source": over_src},
@@ -202,7 +229,11 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                                "impedance from the DC resistance (copper resistivity over the trace section), "
                                "dielectric as a Djordjevic-Sarkar wideband loss tangent"},
         }
-        jobs.append((i, (z, td, rise, drv, leg_swing, cap * 1e-12, limits, zd, losses)))
+        if topo is not None:
+            used["topology"] = {"driver": topo.driver, "driver_source": topo.driver_source,
+                                "open_ends": list(topo.open_ends),
+                                "stubs": [{"node": b.node, "end": b.end, "length_mm": b.length * 1e3} for b in topo.stubs]}
+        jobs.append((i, (z, td, rise, drv, leg_swing, cap * 1e-12, limits, zd, losses, tree)))
         pending[i] = (net, used, has_loss, loss_db, float(arr["freq"][ix][0]), assumed)
 
     for i, result in run_jobs(jobs):
@@ -224,6 +255,14 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         loss_note = (f"simulated with loss ({loss_db:.2f} dB at {f0 * 1e-9:.3g} GHz)" if has_loss
                      else "simulated lossless (no loss data)")
         notes[i] = loss_note + ("; assumed " + ", ".join(assumed) + f" ({RULES_SRC})" if assumed else "")
+        rx_used = used["receivers"]
+        rx_out[i] = [{"receiver": u["receiver"], "load_pf": u["load_pf"], "before": b["metrics"], "after": a["metrics"],
+                      "meets": a["meets"]} for u, b, a in zip(rx_used, before.receivers, after.receivers)]
+        if len(rx_used) > 1:
+            notes[i] += (f"; multi-drop, {len(rx_used)} receivers, worst '{rx_used[after.worst]['receiver']}'"
+                         + ("" if after.meets else "; no scheme that fits a multi-drop net (series at the driver; "
+                            f"parallel, Thevenin or RC at the far end of the main path, '{rx_used[0]['receiver']}') "
+                            "meets the limits at every receiver"))
         waves[net] = (before.wave, after.wave, before.metrics["v_final"] if before.wave else None)
     for i, j in partners:
         for c in cols:
@@ -241,6 +280,7 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
     out["waveform_assumptions"] = notes
     out["waveform_loss"] = lossy
     out["waveform_inputs"] = inputs
+    out["receivers"] = rx_out
     worst = out.loc[order].sort_values("before_overshoot_pct", ascending=False)
     keep, seen = [], set()
     for net, pair in zip(worst["net"], worst["pair"]):

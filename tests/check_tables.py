@@ -29,19 +29,19 @@ def segments(*rows: dict) -> pd.DataFrame:
              "eps_eff": eps, "delay_per_m": math.sqrt(eps) / C0, "rise_time": r.get("rise_ps", 500.0) * 1e-12,
              "driver_ohm": r.get("driver_ohm", math.nan), "load_pf": math.nan, "freq": r.get("freq", 1e9),
              "xs": r.get("xs", 0), "mirrored": False, "loss_db": r.get("loss_db", 0.0),
-             "model": r.get("model", "test")}
+             "model": r.get("model", "test"), "match_group": r.get("match_group", "")}
         d["delay"] = d["length"] * d["delay_per_m"]
         out.append(d)
     return pd.DataFrame(out)
 
 
-def rules(classes=(), severity=None, **settings) -> Rules:
+def rules(classes=(), severity=None, match_groups=(), **settings) -> Rules:
     base = Rules()
     sev = dict(base.severity)
     sev.update(severity or {})
     st = dict(base.settings)
     st.update(settings)
-    return Rules(settings=st, severity=sev, classes=tuple(classes))
+    return Rules(settings=st, severity=sev, classes=tuple(classes), match_groups=tuple(match_groups))
 
 
 def cls(name: str, match=(), **params) -> NetClass:

@@ -38,7 +38,10 @@ def test_review_field_solver_keys_cache_and_formula_finding(run, board, tmp_path
     tr, st = board("net,layer,length,width,rise_time,pair,gap\nA,S,50mm,0.1mm,300ps,,\n"
                    "B,S,50mm,0.1mm,300ps,,\nP,S,50mm,0.1mm,300ps,N,0.12mm\n", stackup=OFFSET)
     js = tmp_path / "r.json"
-    code, out, err = run("review", tr, "--stackup", st, "--solver", "field", "--json", js)
+    # no fabrication band here (zero tolerances): this test counts the nominal solves
+    nb = tmp_path / "noband.toml"
+    nb.write_text("[fabrication]\nwidth_tol = '0mm'\ndielectric_tol_pct = 0\ner_tol_pct = 0\ncopper_tol_pct = 0\n")
+    code, out, err = run("review", tr, "--stackup", st, "--solver", "field", "--json", js, "--rules", nb)
     assert code in (0, 1), err
     d = json.loads(js.read_text())
     segs = {s["net"]: s for s in d["segments"]}
@@ -56,9 +59,9 @@ def test_review_field_solver_keys_cache_and_formula_finding(run, board, tmp_path
     monkeypatch.setenv("SICHECK_WORKERS", "1")      # solve in this process so that the spy sees every solve
     real = field_solve._solve_one
     monkeypatch.setattr(field_solve, "_solve_one", lambda a: calls.append(1) or real(a))
-    code, _, err = run("review", tr, "--stackup", st, "--solver", "field", "--json", js)
+    code, _, err = run("review", tr, "--stackup", st, "--solver", "field", "--json", js, "--rules", nb)
     assert calls == []                 # warm cache: nothing solved again
-    code, _, err = run("review", tr, "--stackup", st, "--solver", "field", "--no-cache", "--json", js)
+    code, _, err = run("review", tr, "--stackup", st, "--solver", "field", "--no-cache", "--json", js, "--rules", nb)
     assert len(calls) == 2
 
 
@@ -80,12 +83,14 @@ def test_damaged_cache_entry_is_recomputed(tmp_path, monkeypatch):
 
 def test_pair_listed_from_either_leg_gives_the_same_numbers(board, run, tmp_path, monkeypatch):
     monkeypatch.setenv("SICHECK_CACHE_DIR", str(tmp_path / "c"))
+    nb = tmp_path / "noband.toml"        # the nominal numbers only: no fabrication band solves
+    nb.write_text("[fabrication]\nwidth_tol = '0mm'\ndielectric_tol_pct = 0\ner_tol_pct = 0\ncopper_tol_pct = 0\n")
     out = []
     for first, second in (("P", "N"), ("N", "P")):
         tr, st = board(f"net,layer,length,width,rise_time,pair,gap\n{first},S,40mm,0.1mm,300ps,{second},0.12mm\n",
                        stackup=OFFSET)
         js = tmp_path / f"{first}.json"
-        run("review", tr, "--stackup", st, "--solver", "field", "--json", js)
+        run("review", tr, "--stackup", st, "--solver", "field", "--json", js, "--rules", nb)
         out.append(json.loads(js.read_text()))
     za = out[0]["segments"][0]["zdiff_ohm"]
     zb = out[1]["segments"][0]["zdiff_ohm"]

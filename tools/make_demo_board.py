@@ -14,7 +14,7 @@ from openpyxl import Workbook
 
 OUT = Path(__file__).resolve().parent.parent / "demo_boards" / "harbor_lidar"
 HEADER = ["Net", "Layer", "Length [mm]", "Width [mm]", "Rise Time", "Pair", "Gap [mm]", "Net Class",
-          "Driver Ohm", "Load pF"]
+          "Driver Ohm", "Load pF", "From", "To", "Driver"]
 
 
 def rows() -> list[list]:
@@ -77,6 +77,48 @@ def rows() -> list[list]:
     seg("USB_D_P", "TOP", 41.0, pair="USB_D_N")
     seg("USB_D_P", "IN3", 25.0, pair="USB_D_N", gap=0.1)     # tight gap on the offset layer
     seg("LASER_TRIG_P", "IN6", 210.0, pair="LASER_TRIG_N", cls="LVDS")
+
+    # ---- vias and return paths (issue 9) ----
+    # A 28 Gb/s optical uplink that dives from TOP to IN3 through through-vias: the barrel below IN3 is a
+    # long stub (via-stub). Widths from `sicheck plan --zdiff 100 --gap-rule fixed:0.15mm`.
+    seg("UPLINK_TX_P", "TOP", 5.0, width=0.089, pair="UPLINK_TX_N")
+    seg("UPLINK_TX_P", "IN3", 48.0, width=0.116, pair="UPLINK_TX_N")
+    seg("UPLINK_TX_P", "TOP", 4.0, width=0.089, pair="UPLINK_TX_N")
+    # An SPI clock that changes from TOP (over GND) to BOT (over the +3V3 plane): return-path warning.
+    seg("SPI_DAC_SCK", "TOP", 22.0)
+    seg("SPI_DAC_SCK", "BOT", 38.0)
+    # ---- end vias and return paths ----
+
+    # ---- multi-drop bus with branches (issue 11: from/to/driver) ----
+    # The FPGA (U1) writes the configuration of the two laser drivers (U7, U8) over a shared bus: a via
+    # (V) to a trunk on IN3, a T, a branch to each driver, and a test pad (TP) on TOP at the via. Rows are
+    # listed as exported (not in route order): from/to give the shape, the driver column names U1's pin.
+    # CFG0 branches early (long branches, a long pad stub); CFG1-3 branch next to the drivers.
+    for k, (trunk, b7, b8, pad) in enumerate(((40.0, 27.0, 33.0, 14.0), (66.0, 6.0, 9.0, 2.0),
+                                             (65.0, 7.0, 8.5, 2.5), (67.0, 5.5, 9.5, 2.0))):
+        net, pin = f"LDRV_CFG{k}", 20 + k
+        for layer, ln, frm, to, drv, load in (
+                ("IN3", b7, f"T{k}", f"U7.{pin}", "", 4),
+                ("TOP", 6.0, f"U1.{pin}", f"V{k}", f"U1.{pin}", ""),
+                ("IN3", trunk, f"V{k}", f"T{k}", "", ""),
+                ("TOP", pad, f"V{k}", f"TP{k + 30}", "", ""),
+                ("IN3", b8, f"T{k}", f"U8.{pin}", "", 4)):
+            out.append([net, layer, ln, 0.15, "600ps", "", "", "", 20, load, frm, to, drv])
+    # ---- end multi-drop bus ----
+
+    # ---- timing block (match group, skewed pair; keep it a block of its own at the end) ----
+    # TDC capture bus: four data bits matched to their strobe (rules: [[match_group]] "TDC bus", 10 ps).
+    # TDC_D1 has the strobe's length but runs 20 mm of it on TOP (microstrip, faster): lengths match, delays
+    # do not. TDC_D3 detours 7 mm around a mounting hole: outside the group and over the class's delay budget.
+    seg("TDC_STB", "TOP", 4.0, drv=20)
+    seg("TDC_STB", "IN3", 52.0)
+    for i, (top, inner) in enumerate(((4.0, 52.3), (24.0, 32.0), (4.0, 51.8), (4.0, 59.0))):
+        seg(f"TDC_D{i}", "TOP", top)
+        seg(f"TDC_D{i}", "IN3", inner)
+    # Frame-sync pair from the lidar head, both legs listed: the N leg is 2.5 mm longer (a connector pin swap).
+    seg("HEAD_SYNC_P", "IN6", 80.0, pair="HEAD_SYNC_N", cls="LVDS")
+    seg("HEAD_SYNC_N", "IN6", 82.5, pair="HEAD_SYNC_P", cls="LVDS")
+    # ---- end timing block ----
     return out
 
 
@@ -87,7 +129,7 @@ def main() -> None:
         w = csv.writer(f)
         w.writerow(HEADER)
         for r in data:
-            r = list(r)
+            r = list(r) + [""] * (len(HEADER) - len(r))
             if r[4] == "" and r[0].startswith("CLK_"):
                 r[4] = "400ps"
             w.writerow(r)

@@ -12,7 +12,10 @@ from sicheck.checks.engine import (DOC_PARTS, REGISTRY, SETTINGS, SEVERITIES, SE
                                    ReviewContext, check, run_checks, setting)
 
 # Registration: importing a family module registers its checks.
-from sicheck.checks import impedance, fabrication, loss, length, waveform, model_accuracy, rule_set  # noqa: E402,F401
+from sicheck.checks import impedance, fabrication, fabrication_band, loss, length, stub, pair, waveform, model_accuracy, rule_set  # noqa: E402,F401
+from sicheck.checks import timing  # noqa: E402,F401
+from sicheck.checks import crosstalk  # noqa: E402,F401
+from sicheck.checks import vias, return_path  # noqa: E402,F401
 
 CHECKS: tuple[Check, ...] = tuple(REGISTRY)
 

@@ -156,18 +156,24 @@ class ReviewContext:
 
     segments: one row per trace-list row (pairs listed on one leg appear once). Columns: row, net, pair,
         layer, net_class, kind, length, width, gap, z0, zdiff, zodd, zeven, eps_eff, delay_per_m, delay,
-        rise_time, freq, loss_db, model, uncertainty_pct, xs, ...
+        rise_time, freq, loss_db, model, uncertainty_pct, xs, z_min_ohm, z_max_ohm, z_rss_ohm, zdiff_min_ohm, ...
     nets: one row per net, both legs of a pair (a partner listed only through `pair` is mirrored). Columns:
         net, net_class, pair, layers, length, delay, rise_time, td_over_tr, electrical, termination,
         loss_db, freq, critical_length, advice, and the waveform stage's columns when it ran.
     cross_sections: (CrossSection, LineResult) per unique cross-section; segments["xs"] indexes it
     rules: the merged rule set; classes: class name -> NetClass
+    crosstalk: crosstalk_review.CrosstalkTables when spacings were given (segments then also carry spacing,
+        parallel, next_pct, fext_pct, xt_aggressor, xt_rise), else None
+    vias: one row per via (sicheck.via_table.VIA_COLUMNS), mirrored partners included
     """
     segments: Any
     nets: Any
     rules: Any
     stackup: Any = None
     cross_sections: list = field(default_factory=list)
+    crosstalk: Any = None
+    topology: dict = field(default_factory=dict)   # net -> topology.Topology, for nets whose rows name nodes
+    vias: Any = None            # via_table.via_table(...) of all nets (None: the via checks derive it)
 
     def __post_init__(self):
         self.classes = {c.name: c for c in getattr(self.rules, "classes", ())}

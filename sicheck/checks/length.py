@@ -56,6 +56,9 @@ def electrical_length(ctx, chk):
         msg = (f"one-way delay {_fmt_ps(r.delay)} is {r.td_over_tr:.2f} x the {_fmt_ps(r.rise_time)} rise time "
                f"(critical length {r.critical_length * 1e3:.1f} mm on its layers, net is {r.length * 1e3:.1f} mm): "
                f"transmission line, termination {r.termination}")
+        note = getattr(r, "topology_note", "")
+        if isinstance(note, str) and note:      # how the path was found (from/to nodes, or rows in series)
+            msg += f"; route: {note}"
         if simulated(r):
             msg += (f". Simulated: {r.termination_part} (overshoot {r.before_overshoot_pct:.0f} % -> "
                     f"{r.after_overshoot_pct:.0f} %, ringback {r.before_ringback_pct:.0f} % -> "

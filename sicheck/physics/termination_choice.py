@@ -15,6 +15,12 @@ one vectorised run: the net as it is with the series values; then the RC values;
 parallel and Thevenin values. A later stage runs only when nothing so far meets the limits
 (a series part or an RC costs no static power, so nothing later could beat one that meets).
 Every segment is kept with its exact delay (and its loss, when given).
+
+A branched net (a tree of lines: `parents`) has a receiver at each of its listed leaves, each
+with its own input capacitance. The schemes that fit such a multi-drop net are tried: series at
+the driver, and the far-end schemes at the far end of the main path (the first receiver). A
+candidate meets the limits only when every receiver does; its metrics are the worst receiver's,
+and every receiver's are kept (`Candidate.receivers`).
 """
 
 from __future__ import annotations
@@ -51,7 +57,9 @@ class Candidate:
     end_cap: float | None = None
     meets: bool = False
     violations: list[str] = field(default_factory=list)
-    wave: tuple | None = None      # (t, v) decimated, for charts
+    wave: tuple | None = None      # (t, v) decimated, for charts (the worst receiver's)
+    receivers: list[dict] = field(default_factory=list)   # per receiver: name, metrics, meets, violations
+    worst: int = 0                 # index of the worst receiver
 
 
 @functools.lru_cache(maxsize=4096)
@@ -104,64 +112,127 @@ def _decimate(wf, n=160):
     return wf.t[idx], wf.v_rx[idx]
 
 
+def tree_network(z: Sequence[float], td: Sequence[float], losses: Sequence[LineLoss | None],
+                 parents: Sequence[int]) -> tuple[Network, list[int]]:
+    """The lines as a tree rooted at the driver: line i starts at the far end of line parents[i] (-1: the
+    driver). Returns the network and each line's far-end node."""
+    below: dict[int, list[int]] = {}
+    for i, p in enumerate(parents):
+        below.setdefault(int(p), []).append(i)
+    net = Network()
+    node = {-1: 0}
+    todo = [-1]
+    while todo:
+        p = todo.pop()
+        for i in below.get(p, []):
+            node[i] = net.add(node[p], Line(float(z[i]), float(td[i]), losses[i]))
+            todo.append(i)
+    if len(node) != len(z) + 1:
+        raise ValueError("the lines' parents do not form a tree rooted at the driver")
+    return net, [node[i] for i in range(len(z))]
+
+
+def _badness(c: Candidate):
+    return (not c.meets, len(c.violations), max(c.metrics["overshoot_pct"], 0.0) + c.metrics["ringback_pct"]
+            + c.metrics["settle_ns"])
+
+
 def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: float, swing: float, load_cap: float,
            limits: Limits, zdiff: float | None = None, keep_waves: bool = False,
-           losses: Sequence[LineLoss | None] | None = None) -> tuple[Candidate, Candidate, list[Candidate]]:
+           losses: Sequence[LineLoss | None] | None = None, parents: Sequence[int] | None = None,
+           receivers: Sequence[tuple[int, float, str]] | None = None, driver_end: int | None = None,
+           ) -> tuple[Candidate, Candidate, list[Candidate]]:
     """(unterminated, recommended, all candidates simulated) for one net: a chain of lines, driver end first.
 
     ``losses``: one LineLoss (or None for a lossless section) per line; None: all lossless.
     For a pair, z are the odd-mode impedances and swing is one leg's.
+    A tree: ``parents[i]`` is the line before line i toward the driver (-1 at the driver); ``receivers``
+    (line, input capacitance F, name) names the line ending at each receiver, the main path's far end
+    first (``load_cap`` is then unused); ``driver_end`` is the line whose Z the series value matches
+    (default: the first line on the way to the first receiver).
     """
     if losses is None:
         losses = [None] * len(z)
     if not (len(z) == len(td) == len(losses)) or not len(z):
         raise ValueError("need one impedance, delay and loss entry per line")
-    net, end = Network.chain([Line(float(a), float(b), l) for a, b, l in zip(z, td, losses)])
-    td_total = float(sum(td))
+    if parents is None:
+        parents = list(range(-1, len(z) - 1))
+    if receivers is None:
+        receivers = [(len(z) - 1, load_cap, "receiver")]
+    net, far = tree_network(z, td, losses, parents)
+    main_line = receivers[0][0]
+    path = [main_line]
+    while parents[path[-1]] >= 0:
+        path.append(parents[path[-1]])
+    path.reverse()
+    if driver_end is None:
+        driver_end = path[0]
+    end = far[main_line]
+    rx_nodes = [far[i] for i, _, _ in receivers]
+    names = [name for _, _, name in receivers]
+    others = {far[i]: LoadSet.of([Load(cap=c)]) for i, c, _ in receivers[1:]}
+    load_cap = receivers[0][1]
+    # where a far-end part goes: on a multi-drop net, the far end of the main path (named)
+    at = "the receiver" if len(receivers) == 1 else f"'{names[0]}', the far end of the main path"
+    rx_at = "the receiver" if len(receivers) == 1 else f"the receiver '{names[0]}' (far end of the main path)"
+    td_total = float(sum(td[i] for i in path))
     cands: list[Candidate] = []
 
     ramp = rise * RAMP_PER_RISE
 
+    def loads_of(specs):
+        return {**others, end: LoadSet.of([sp[3] for sp in specs])}
+
     def window(specs):
         rs = np.array([sp[2] for sp in specs], dtype=float)
-        return float(settle_window(net, rs, {end: LoadSet.of([sp[3] for sp in specs])}, ramp).max())
+        return float(settle_window(net, rs, loads_of(specs), ramp).max())
 
     def stage(specs, t_end=None):
         """specs: (scheme, text, r_source, Load, power, extra fields); simulated together."""
         if not specs:
             return []
         rs = np.array([sp[2] for sp in specs], dtype=float)
-        res = simulate_network(net, [end], swing, rise, rs, {end: LoadSet.of([sp[3] for sp in specs])},
-                               t_end=t_end)[end]
+        res = simulate_network(net, rx_nodes, swing, rise, rs, loads_of(specs), t_end=t_end)
         out = []
-        for sp, wf in zip(specs, res):
-            c = Candidate(sp[0], sp[1], wf.metrics, sp[4], **sp[5])
+        for k, sp in enumerate(specs):
+            per = []
+            for node in rx_nodes:
+                c = Candidate(sp[0], sp[1], res[node][k].metrics, sp[4], **sp[5])
+                _evaluate(c, td_total, rise, limits)
+                per.append(c)
+            w = max(range(len(per)), key=lambda j: _badness(per[j]))
+            c = per[w]
+            c.worst = w
+            c.meets = all(p.meets for p in per)
+            if len(per) > 1:
+                c.violations = [f"at {names[j]}: {v}" for j, p in enumerate(per) for v in p.violations]
+            c.receivers = [{"receiver": names[j], "metrics": p.metrics, "meets": p.meets,
+                            "violations": list(p.violations)} for j, p in enumerate(per)]
             if keep_waves:
-                c.wave = _decimate(wf)
-            _evaluate(c, td_total, rise, limits)
+                c.wave = _decimate(res[rx_nodes[w]][k])
             out.append(c)
         return out
 
     base = ("none", "unterminated", driver_ohm, Load(cap=load_cap), 0.0, {})
     if zdiff is not None:
         # odd mode: each leg sees Zodd; the differential resistor is R/2 from each leg to the centre
-        specs = [base] + [("differential", f"{r:g} ohm across the receiver", driver_ohm,
+        specs = [base] + [("differential", f"{r:g} ohm across {rx_at}", driver_ohm,
                            Load(cap=load_cap, end_ohm=r / 2), (swing * 2) ** 2 / (r + 2 * driver_ohm), {"end_ohm": r})
                           for r in _neighbours(zdiff)]
         cands = stage(specs)
         return cands[0], _pick(cands, cands[0]), cands
 
-    z_drv, z_end = float(z[0]), float(z[-1])
+    z_drv, z_end = float(z[driver_end]), float(z[main_line])
     ideal = z_drv - driver_ohm
     series = [("series", f"{r:g} ohm in series at the driver", driver_ohm + r, Load(cap=load_cap), 0.0,
                {"series_ohm": r}) for r in (_neighbours(ideal) if ideal >= 1.0 else [])]
     vt = swing / 2.0
     r2 = eseries.nearest(2.0 * z_end)
     req, veq = thevenin(r2, r2, swing)
-    ends = ([("parallel", f"{r:g} ohm to {vt:g} V at the receiver", driver_ohm,
+    ends = ([("parallel", f"{r:g} ohm to {vt:g} V at {at}", driver_ohm,
               Load(cap=load_cap, end_ohm=r, end_volts=vt), _power_parallel(swing, driver_ohm, r, vt),
               {"end_ohm": r}) for r in _neighbours(z_end, spread=1)]
-            + [("thevenin", f"{r2:g} ohm to the supply and {r2:g} ohm to ground at the receiver", driver_ohm,
+            + [("thevenin", f"{r2:g} ohm to the supply and {r2:g} ohm to ground at {at}", driver_ohm,
                 Load(cap=load_cap, end_ohm=req, end_volts=veq), _power_thevenin(swing, driver_ohm, r2, r2),
                 {"end_ohm": r2})])
     # the first and last stages share one window, so the last reuses the first's line two-ports
@@ -175,7 +246,7 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
         return none, _pick(cands, none), cands
     r_end = eseries.nearest(z_end)
     c_min = 3.0 * 2.0 * td_total / r_end
-    rc_specs = [("rc", f"{r_end:g} ohm + {cval * 1e12:g} pF to ground at the receiver", driver_ohm,
+    rc_specs = [("rc", f"{r_end:g} ohm + {cval * 1e12:g} pF to ground at {at}", driver_ohm,
                  Load(cap=load_cap, end_ohm=r_end, end_cap=cval), 0.0, {"end_ohm": r_end, "end_cap": cval})
                 for cval in _neighbours(c_min, "E12", 1)[1:]]
     # An RC's capacitor charges for several of its time constants; pass or fail is decided by the

@@ -8,7 +8,9 @@ import math
 import numpy as np
 
 from sicheck import __version__
+from sicheck.reports.signoff_columns import finding_json, signoff_json
 from sicheck.review import Review
+from sicheck.skew import group_timing, pair_skew
 
 
 def _num(x, digits=6):
@@ -70,8 +72,13 @@ def segments_json(seg) -> list[dict]:
         "loss_db_per_mm": _col(seg, "loss_db_per_m", 1e-3), "loss_db": _col(seg, "loss_db"),
         "freq_ghz": _col(seg, "freq", 1e-9), "loss_uncertainty_pct": _col(seg, "loss_uncertainty_pct"),
     }
+    band = [k for k in ("z_min_ohm", "z_max_ohm", "z_rss_ohm", "zdiff_min_ohm", "zdiff_max_ohm", "zdiff_rss_ohm")
+            if k in seg.columns]         # the fabrication band (sicheck.physics.fab_band)
+    cols.update({k: _col(seg, k, 1, 5) for k in band})
     net, layer, pair, kind, model, row = (seg[c].tolist() for c in ("net", "layer", "pair", "kind", "model", "row"))
     row = [int(r) for r in row]
+    xt = ((_col(seg, "spacing", 1e3), _col(seg, "parallel", 1e3), _col(seg, "next_pct", 1, 4),
+           _col(seg, "fext_pct", 1, 4)) if "next_pct" in seg else None)       # crosstalk inputs given
     out = []
     for i in range(len(seg)):
         d = {"row": row[i], "net": net[i], "layer": layer[i], "kind": kind[i],
@@ -85,6 +92,7 @@ def segments_json(seg) -> list[dict]:
              "dielectric_loss_db_per_mm": cols["dielectric_loss_db_per_mm"][i],
              "loss_db_per_mm": cols["loss_db_per_mm"][i], "loss_db": cols["loss_db"][i],
              "loss_uncertainty_pct": cols["loss_uncertainty_pct"][i]}
+        d.update({k: cols[k][i] for k in band if pair[i] or not k.startswith("zdiff")})
         if pair[i]:
             d.update(pair=pair[i], gap_mm=cols["gap_mm"][i], zdiff_ohm=cols["zdiff_ohm"][i],
                      zodd_ohm=cols["zodd_ohm"][i], zeven_ohm=cols["zeven_ohm"][i])
@@ -92,6 +100,8 @@ def segments_json(seg) -> list[dict]:
                 d["formula_zdiff_ohm"] = cols["formula_zdiff_ohm"][i]
         if cols["formula_z_ohm"][i] is not None:
             d["formula_z0_ohm"] = cols["formula_z_ohm"][i]
+        if xt is not None:
+            d.update(spacing_mm=xt[0][i], parallel_mm=xt[1][i], next_pct=xt[2][i], fext_pct=xt[3][i])
         out.append(d)
     return out
 
@@ -99,7 +109,7 @@ def segments_json(seg) -> list[dict]:
 def nets_json(nets) -> list[dict]:
     n = len(nets)
     c = {k: _col(nets, name, scale, digits) for k, name, scale, digits in (
-        ("length_mm", "length", 1e3, 6), ("delay_ps", "delay", 1e12, 6), ("rise_time_ps", "rise_time", 1e12, 6),
+        ("length_mm", "length", 1e3, 6), ("copper_length_mm", "copper_length", 1e3, 6), ("delay_ps", "delay", 1e12, 6), ("rise_time_ps", "rise_time", 1e12, 6),
         ("td_over_tr", "td_over_tr", 1, 4), ("freq_ghz", "freq", 1e-9, 4), ("loss_db", "loss_db", 1, 4),
         ("knee_ghz", "knee_hz", 1e-9, 4), ("wavelength_at_knee_mm", "wavelength_at_knee", 1e3, 6),
         ("lumped_limit_mm", "lumped_limit_length", 1e3, 6), ("critical_length_mm", "critical_length", 1e3, 6),
@@ -119,16 +129,24 @@ def nets_json(nets) -> list[dict]:
         wave = {f"{w}_{k}": _col(nets, f"{w}_{k}", 1, 4) for w in ("before", "after") for k in WAVE_KEYS}
         loss_inc = nets["waveform_loss"].tolist() if "waveform_loss" in nets.columns else [False] * n
     inputs = nets["waveform_inputs"].tolist() if "waveform_inputs" in nets.columns else [None] * n
+    rx = nets["receivers"].tolist() if "receivers" in nets.columns else [None] * n
+    xt = (_col(nets, "next_pct", 1, 4), _col(nets, "fext_pct", 1, 4)) if "next_pct" in nets.columns else None
+    pair_skew_ps = round_sig(pair_skew(nets) * 1e12, 4)
+    has_vias = "vias" in nets.columns       # via count and lowest stub resonance (review._add_vias)
+    if has_vias:
+        n_vias = [int(v) for v in nets["vias"].tolist()]
+        f_stub = _col(nets, "via_stub_resonance", 1e-9, 4)
     out = []
     for i in range(n):
         d = {"net": net[i], "net_class": cls[i] or None, "pair": pair[i] or None, "segments": segs[i],
-             "layers": layers[i], "length_mm": c["length_mm"][i], "delay_ps": c["delay_ps"][i],
+             "layers": layers[i], "length_mm": c["length_mm"][i], "copper_length_mm": c["copper_length_mm"][i],
+             "delay_ps": c["delay_ps"][i],
              "rise_time_ps": c["rise_time_ps"][i], "td_over_tr": c["td_over_tr"][i], "freq_ghz": c["freq_ghz"][i],
              "loss_db": c["loss_db"][i], "knee_ghz": c["knee_ghz"][i],
              "wavelength_at_knee_mm": c["wavelength_at_knee_mm"][i], "lumped_limit_mm": c["lumped_limit_mm"][i],
              "critical_length_mm": c["critical_length_mm"][i], "electrical": el[i], "termination": term[i],
              "series_ohm": series[i], "z_driver_end_ohm": c["z_driver_end_ohm"][i], "advice": advice[i] or None,
-             "listed_via_partner": mirrored[i]}
+             "listed_via_partner": mirrored[i], "pair_skew_ps": pair_skew_ps[i]}
         if has_wave and isinstance(part[i], str) and part[i]:
             d["recommended_termination"] = part[i]
             d["termination_scheme"] = scheme[i]
@@ -145,8 +163,17 @@ def nets_json(nets) -> list[dict]:
             d["recommended_termination"] = None
             if has_wave and isinstance(assumptions[i], str) and assumptions[i]:
                 d["assumptions"] = assumptions[i]
+        if isinstance(rx[i], list):         # every receiver's metrics (one for a chain)
+            d["receivers"] = [{"receiver": x["receiver"], "load_pf": _num(x["load_pf"]), "meets_limits": bool(x["meets"]),
+                               "before": {k: _num(x["before"][k], 4) for k in WAVE_KEYS},
+                               "after": {k: _num(x["after"][k], 4) for k in WAVE_KEYS}} for x in rx[i]]
+        if has_vias:
+            d["vias"] = n_vias[i]
+            d["via_stub_resonance_ghz"] = f_stub[i]
         if isinstance(inputs[i], dict):
             d["simulation"] = inputs[i]      # every value the waveform simulation used, with its source
+        if xt is not None:
+            d["next_pct"], d["fext_pct"] = xt[0][i], xt[1][i]
         out.append(d)
     return out
 
@@ -167,8 +194,33 @@ def review_dict(rv: Review) -> dict:
         "electrical": {k: rv.net_counts[k] for k in ("lumped", "transmission-line")},
         "exit_code": rv.exit_code,
     }
-    return {"summary": summary, "nets": nets_json(nets), "segments": segments_json(rv.segments),
-            "findings": [f.as_dict() for f in rv.findings]}
+    out = {"summary": summary, "nets": nets_json(nets), "segments": segments_json(rv.segments),
+           "findings": [f.as_dict() | finding_json(rv.signoff, f) for f in rv.findings],
+           "match_groups": match_groups_json(rv), **signoff_json(rv.signoff)}
+    if getattr(rv, "crosstalk", None) is not None:
+        from sicheck.reports.crosstalk_report import crosstalk_json
+        out["crosstalk"] = crosstalk_json(rv.crosstalk)
+    return out
+
+
+def match_groups_json(rv: Review) -> list[dict]:
+    """Each [[match_group]] of the rules with its nets' delays on this board (a pair's legs are two nets)."""
+    found = {gt.group.name: gt for gt in group_timing(rv.segments, rv.nets, rv.rules.match_groups)}
+    out = []
+    for g in rv.rules.match_groups:
+        gt = found.get(g.name)
+        d = {"name": g.name, "nets": [], "reference": g.reference, "min_delay_ps": None, "max_delay_ps": None,
+             "skew_ps": None, "limit_ps": _num(g.max_skew * 1e12), "reference_on_board": False,
+             "fastest": None, "slowest": None, "main_layer": None, "skew_mm": None, "over_limit": False,
+             "delays_ps": []}       # delays_ps: one per net, in the order of "nets"
+        if gt is not None:
+            d.update(nets=gt.nets, min_delay_ps=_num(gt.min_delay * 1e12), max_delay_ps=_num(gt.max_delay * 1e12),
+                     skew_ps=_num(gt.skew * 1e12), reference_on_board=gt.reference is not None,
+                     fastest=gt.fastest, slowest=gt.slowest, main_layer=gt.main_layer or None,
+                     skew_mm=_num(gt.skew_length * 1e3), over_limit=bool(gt.over),
+                     delays_ps=round_sig(gt.delays * 1e12))
+        out.append(d)
+    return out
 
 
 def review_json(rv: Review) -> str:

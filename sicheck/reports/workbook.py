@@ -22,6 +22,7 @@ import xlsxwriter
 from sicheck import __version__
 from sicheck.reports.atomic import atomic_path
 from sicheck.reports.sheet_rows import column_letters, rows_xml, splice_rows
+from sicheck.reports.signoff_columns import finding_cells, finding_columns, summary_lines
 from sicheck.review import Review
 
 FORMULA_START = ("=", "+", "-", "@", "\t")
@@ -258,6 +259,11 @@ def key_value_sheet(book: Book, name: str, title: str, rows: list[tuple[str, obj
     return ws, r
 
 
+def fab_band_text(rules) -> str:
+    from sicheck.checks.fabrication_band import describe, tolerances
+    return (f"{describe(tolerances(rules))} ([fabrication]); each segment's band is on the Segments sheet")
+
+
 def _summary(book: Book, rv: Review):
     counts = rv.counts
     nets = rv.nets
@@ -267,6 +273,7 @@ def _summary(book: Book, rv: Review):
         ("Trace list", rv.traces_source),
         ("Rule sets", "; ".join(rv.rules.sources)),
         ("Impedance solver", rv.solver),
+        ("Fabrication tolerances", fab_band_text(rv.rules)),
         ("sicheck version", __version__),
         ("Generated", date.today().isoformat()),
         ("", ""),
@@ -287,6 +294,7 @@ def _summary(book: Book, rv: Review):
                     "test coupons. No high-voltage creepage/clearance or product-safety checks."),
         ("", ""),
     ]
+    rows += summary_lines(rv.signoff)       # what changed since the previous review; waivers
     ws, r = key_value_sheet(book, "Summary", "Signal-integrity review", rows)
     book.text(ws, r, 0, "Sign-off", bold=True, font_size=14)
     for k in ("Reviewed by", "Date", "Decision (approve / rework)", "Notes"):
@@ -298,7 +306,7 @@ def _findings(book: Book, rv: Review):
     # the message wraps in a column a page can hold, so a printed row reads without a second page
     cols = [("ID", None, 7), ("Severity", None, 9), ("Rule", None, 16), ("Net", None, 18), ("Layer", None, 10),
             ("Finding", None, -70), ("Trace row", "0", 7), ("Disposition", None, 12), ("Reviewer", None, 12),
-            ("Comment", None, -24)]
+            ("Comment", None, -24)] + finding_columns(rv.signoff)
     fs = rv.findings
     sh = _Sheet(book, "Findings", cols, fit={3: [f.net for f in fs], 4: [f.layer for f in fs]})
     n = max(len(fs), 1)
@@ -306,7 +314,7 @@ def _findings(book: Book, rv: Review):
                                        "error_title": "Disposition", "error_message": "Choose accept, fix or waive"})
     sh.header()
     for i, f in enumerate(fs):
-        sh.row([f"F{i + 1:04d}", f.severity, f.rule, f.net, f.layer, f.message, f.row],
+        sh.row([f"F{i + 1:04d}", f.severity, f.rule, f.net, f.layer, f.message, f.row] + finding_cells(rv.signoff, f),
                fill=SEVERITY_FILL[f.severity], fill_cols=(1,))
     sh.finish()
 
@@ -324,6 +332,9 @@ def _nets(book: Book, rv: Review):
             ("Settled before [ns]", "0.00", 9), ("Settled after [ns]", "0.00", 9), ("Flight time [ns]", "0.000", 8),
             ("Termination power [mW]", "0.0", 10), ("Meets limits", None, 7), ("First-order advice", None, -50)]
     nets = rv.nets
+    has_xt = "next_pct" in nets.columns       # crosstalk inputs given
+    if has_xt:
+        cols = cols + [("Worst NEXT [%]", "0.00", 8), ("Worst FEXT [%]", "0.00", 8)]
     sh = _Sheet(book, "Nets", cols, fit={0: nets["net"], 1: nets["net_class"], 2: nets["pair"], 3: nets["layers"],
                                          9: nets["electrical"], 10: nets["termination"]})
     sh.header()
@@ -349,7 +360,7 @@ def _nets(book: Book, rv: Review):
                 num("termination_power_w", 1e3), [m if s else None for m, s in zip(meets, sim)]]
     else:
         wave = [empty] * 10
-    columns = base + wave + [nets["advice"].tolist()]
+    columns = base + wave + [nets["advice"].tolist()] + ([num("next_pct"), num("fext_pct")] if has_xt else [])
     term = nets["termination"].tolist()
     for i, values in enumerate(zip(*columns)):
         sh.row(list(values), fill=fills.get(term[i]), fill_cols=(10,))
@@ -365,7 +376,13 @@ def _segments(book: Book, rv: Review):
             ("L [nH/mm]", "0.0000", 8), ("C [pF/mm]", "0.0000", 8), ("Model", None, 16),
             ("Uncertainty [%]", "0.00", 8), ("Closed-form Z [ohm]", "0.0", 9), ("Freq [GHz]", "0.000", 7),
             ("Loss [dB/mm]", "0.0000", 8), ("Conductor [dB/mm]", "0.0000", 9), ("Dielectric [dB/mm]", "0.0000", 9),
-            ("Loss [dB]", "0.000", 7)]
+            ("Loss [dB]", "0.000", 7),
+            # fabrication band of Z0 (Zdiff for a pair): worst case of the tolerances, and the RSS spread
+            ("Band min [ohm]", "0.0", 7), ("Band max [ohm]", "0.0", 7), ("Band RSS +/- [ohm]", "0.0", 7)]
+    has_xt = "next_pct" in seg.columns        # crosstalk inputs given
+    if has_xt:
+        cols = cols + [("Spacing [mm]", "0.000", 8), ("Coupled length [mm]", "0.0", 9), ("NEXT [%]", "0.00", 7),
+                       ("FEXT [%]", "0.00", 7)]
     sh = _Sheet(book, "Segments", cols, fit={1: seg["net"], 2: seg["pair"], 3: seg["layer"], 17: seg["model"]},
                 key_cols=2)
     sh.header()
@@ -381,8 +398,53 @@ def _segments(book: Book, rv: Review):
                num("c_per_m", 1e9), seg["model"].tolist(), num("uncertainty_pct"), zf, num("freq", 1e-9),
                num("loss_db_per_m", 1e-3), num("conductor_loss_db_per_m", 1e-3),
                num("dielectric_loss_db_per_m", 1e-3), num("loss_db")]
+    paired = seg["pair"].to_numpy() != ""
+    for a, b in (("z_min_ohm", "zdiff_min_ohm"), ("z_max_ohm", "zdiff_max_ohm"), ("z_rss_ohm", "zdiff_rss_ohm")):
+        columns.append(np.where(paired, seg[b].to_numpy(float), seg[a].to_numpy(float)).tolist()
+                       if a in seg.columns else [None] * len(seg))
+    if has_xt:
+        columns += [num("spacing", 1e3), num("parallel", 1e3), num("next_pct"), num("fext_pct")]
     for values in zip(*columns):
         sh.row(values)
+    sh.finish()
+
+
+def _timing(book: Book, rv: Review):
+    """Match groups (a row per net, its delay relative to the reference or the group's median) and pairs whose
+    legs both have rows (their skew); written when the board has either."""
+    from sicheck.skew import group_timing, pair_skew
+    nets = rv.nets
+    length = dict(zip(nets["net"], nets["length"].to_numpy(float)))
+    layers = dict(zip(nets["net"], nets["layers"]))
+    rows = []
+    for gt in group_timing(rv.segments, nets, rv.rules.match_groups):
+        over = "yes" if gt.over else "no"
+        for net, d in zip(gt.nets, gt.delays):
+            rows.append(([gt.group.name, net, "yes" if net == gt.reference else "", d * 1e12,
+                          gt.offsets[net] * 1e12, length[net] * 1e3, layers[net], gt.skew * 1e12,
+                          gt.group.max_skew * 1e12, gt.skew_length * 1e3, gt.main_layer, over], gt.over))
+    skew = pair_skew(nets)
+    done = set()
+    for r, s in zip(nets.itertuples(index=False), skew):
+        if not np.isfinite(s) or frozenset((r.net, r.pair)) in done:
+            continue
+        done.add(frozenset((r.net, r.pair)))
+        limit = rv.rules.value("max_pair_skew", rv.rules.class_named(r.net_class) if r.net_class else None)
+        over = limit is not None and s > limit
+        rows.append((["(pair)", f"{r.net}/{r.pair}", "", r.delay * 1e12, None, r.length * 1e3, r.layers, s * 1e12,
+                      None if limit is None else limit * 1e12, s * r.length / r.delay * 1e3 if r.delay > 0 else None,
+                      "", "yes" if over else "no"], over))
+    if not rows:
+        return
+    cols = [("Match group", None, 14), ("Net", None, 18), ("Reference", None, 9), ("Delay [ps]", "0.0", 9),
+            ("From reference or median [ps]", "0.0", 10), ("Length [mm]", "0.00", 9), ("Layers", None, 14), ("Skew [ps]", "0.0", 8),
+            ("Limit [ps]", "0.0", 8), ("Skew as length [mm]", "0.00", 9), ("Main layer", None, 9),
+            ("Over limit", None, 7)]
+    sh = _Sheet(book, "Timing", cols, fit={0: [v[0] for v, _ in rows], 1: [v[1] for v, _ in rows],
+                                           6: [v[6] for v, _ in rows]})
+    sh.header()
+    for values, over in rows:
+        sh.row(values, fill=SEVERITY_FILL["warning"] if over else None, fill_cols=(11,))
     sh.finish()
 
 
@@ -433,6 +495,10 @@ def _rules(wb: Book, rv: Review):
             vals.append(f"Rdrv {c.driver_ohm:g} ohm")
         vals += [f"{k} {v:g}" for k, v in c.params.items() if k not in ("z0", "zdiff", "tolerance_pct")]
         sh.row([f"class {c.name}", ", ".join(vals), "[[net_class]]", " ".join(c.match) or "(by net_class column)"])
+    for g in r.match_groups:
+        sh.row([f"match group {g.name}", f"max_skew {g.max_skew * 1e12:g} ps" +
+                (f", reference {g.reference}" if g.reference else ""), "[[match_group]]",
+                " ".join(g.match) or "(by match_group column)"])
     sh.finish()
 
 
@@ -502,10 +568,14 @@ def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
         _findings(book, rv)
         _nets(book, rv)
         _segments(book, rv)
+        _timing(book, rv)
         _stackup(book, rv)
         _rules(book, rv)
         if rv.waves:
             _waveforms(book, rv)
+        if getattr(rv, "crosstalk", None) is not None:
+            from sicheck.reports.crosstalk_report import crosstalk_sheet
+            crosstalk_sheet(book, rv)
         for fn in extra_sheets or ():
             fn(book, rv)
         book.close()

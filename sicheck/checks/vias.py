@@ -1,0 +1,92 @@
+"""Via checks: the unused barrel of a via (its stub) resonating inside the signal's band."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label
+
+MIN_RESONANCE_RATIO = Param(
+    "min_resonance_ratio", "number", 3.0, "x f", "a via stub's quarter-wave resonance must lie at least this many "
+    "times above the net's frequency (class `freq`, else the knee 0.5/Tr) (common practice, from memory: keep "
+    "the stub's notch about three times above the highest frequency that matters)", section="vias", lo=1.0,
+    lo_open=False, hi=100)
+
+
+def vias_of(ctx):
+    """The review's via table, or one derived from the context's segments and stackup (None without a stackup)."""
+    if ctx.vias is not None:
+        return ctx.vias
+    if ctx.stackup is None:
+        return None
+    from sicheck.via_table import via_table
+    ctx.vias = via_table(ctx.segments, ctx.stackup)
+    return ctx.vias
+
+
+def transition_label(a: str, b: str, how: str) -> str:
+    if how == "export":
+        return f"{b} (via counted by the export)"
+    return f"{a} → {b}" + (" (escape via)" if how == "escape" else "")
+
+
+def grouped(vias, ctx):
+    """Vias grouped per net (a pair once) and per pair of layers (either direction), in trace-list order.
+
+    Yields (ident, label, first via row, all via rows of the group)."""
+    groups: dict[tuple, list] = {}
+    for r in vias.itertuples(index=False):
+        ident, label = (pair_id(r.net, r.pair), pair_label(r.net, r.pair)) if r.pair else (r.net, r.net)
+        key = (ident, r.how == "export", frozenset((r.from_layer.lower(), r.to_layer.lower())))
+        if key not in groups:
+            groups[key] = [ident, label, []]
+        groups[key][2].append(r)
+    for ident, label, rows in groups.values():
+        # a pair listed on both legs has each via twice: count one leg's
+        legs = {r.net for r in rows}
+        one = [r for r in rows if r.net == min(legs)] if len(legs) > 1 else rows
+        yield ident, label, one[0], one
+
+
+@check("via-stub", "warning", params=(MIN_RESONANCE_RATIO,))
+def via_stub(ctx, chk):
+    """A via's stub resonates too close to the net's frequency.
+
+    What it checks: every via of a net (each layer change between consecutive rows, an escape via where the
+    net starts or ends on an inner layer, and vias the export counts in a `vias` column). The stub is the
+    barrel beyond the outermost connected layer, set by the stackup's `[vias]` construction (through,
+    blind, or backdrilled with its residual stub); its quarter-wave resonance f = c / (4 L sqrt(er))
+    (er: the thickness-weighted mean of the dielectrics it passes) must lie at least `min_resonance_ratio`
+    times above the net's frequency (class `freq`, else the knee 0.5/Tr, Johnson & Graham 1993).
+    Why it matters: an open stub is a quarter-wave resonator; near its resonance it shorts the signal
+    to nothing (a deep notch in the channel's response) and well below it still adds capacitance and
+    reflections.
+    How to fix: back-drill the via (stackup `[vias] kind = "backdrilled"`), use a blind via, or route the
+    net on a layer nearer the far side the stub reaches, so less barrel is left.
+    """
+    vias = vias_of(ctx)
+    if vias is None or vias.empty:
+        return
+    ratio = float(ctx.param("min_resonance_ratio"))
+    kind = ctx.stackup.vias.kind if ctx.stackup is not None else "through"
+    cls_freq = {name: c.freq for name, c in ctx.classes.items() if c.freq}
+    net_class = dict(zip(ctx.nets["net"], ctx.nets["net_class"]))        # mirrored partners included
+    for ident, label, first, rows in grouped(vias, ctx):
+        bad = [r for r in rows if np.isfinite(r.stub_resonance) and r.stub_resonance < ratio * r.freq]
+        if not bad:
+            continue
+        worst = min(bad, key=lambda r: r.stub_resonance / r.freq)
+        where = transition_label(worst.from_layer, worst.to_layer, worst.how)
+        cls = net_class.get(worst.net, "")
+        fsrc = f"class {cls} freq" if cls in cls_freq else "knee 0.5/Tr"
+        n = sum(r.count for r in bad)
+        what = {"through": "through via", "blind": "blind via", "backdrilled": "back-drilled via"}[kind]
+        yield chk.finding(
+            label, where,
+            f"{where}: {n} {what}{'s' if n > 1 else ''} leave{'s' if n == 1 else ''} a "
+            f"{worst.stub_length * 1e3:.2f} mm stub to {worst.stub_to} (er {worst.stub_er:.2f}) resonating at "
+            f"{worst.stub_resonance * 1e-9:.1f} GHz, below {ratio:g} x the net's {worst.freq * 1e-9:.3g} GHz "
+            f"({fsrc}) = {ratio * worst.freq * 1e-9:.3g} GHz. Back-drill the via, use a blind via, or route on a "
+            f"layer nearer {worst.stub_to} so less barrel is left",
+            row=int(worst.row), key=make_key(chk.id, ident, where), value=float(worst.stub_resonance * 1e-9),
+            limit=float(ratio * worst.freq * 1e-9), unit="GHz")

@@ -1,0 +1,206 @@
+"""Where a board's signal vias are and what each leaves behind: one row per via (or per export count).
+
+A via is inferred wherever a net's consecutive trace-list rows change layer, and where a net's first or
+last row lies on an inner layer (an escape via from the component side's outer layer). The optional
+trace-list column `vias` adds vias the export counts itself (see `via_table`).
+
+Geometry (positions from the stackup's layer thicknesses, top down):
+- a through via's barrel runs from the top face of the first copper layer to the bottom face of the last;
+- a blind via's barrel runs from the component side's outer face to the connected layer farthest from it;
+- a backdrilled via is a through via drilled out from the side away from the components, leaving the
+  stackup's `stub` (or less, where the geometry leaves less);
+- a stub runs from the face of the outermost connected layer toward it to the barrel's end; the barrel
+  between the two connected layers is measured from the middle of one layer's copper to the other's.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+import pandas as pd
+
+from sicheck.physics.via_stub import barrel_delay, quarter_wave_resonance, weighted_er
+
+VIA_COLUMNS = ["net", "pair", "row", "from_layer", "to_layer", "how", "count", "stub_length", "stub_er",
+               "stub_to", "stub_resonance", "barrel_length", "barrel_delay", "freq", "mirrored"]
+
+
+@dataclass(frozen=True)
+class Transition:
+    """One via between two copper layers: its stub (the longer one when both ends leave one) and barrel."""
+    stub_length: float
+    stub_er: float
+    stub_to: str                 # the copper layer the stub ends at
+    stub_resonance: float        # Hz (inf without a stub)
+    barrel_length: float         # between the two connected layers
+    barrel_er: float
+    barrel_delay: float          # s
+
+
+def _positions(stackup) -> tuple[dict[int, tuple[float, float]], list[tuple[float, float, float]]]:
+    """Copper layer index -> (top z, bottom z); and the dielectrics as (top z, bottom z, er). z grows downward."""
+    z = 0.0
+    copper: dict[int, tuple[float, float]] = {}
+    diel: list[tuple[float, float, float]] = []
+    for l in stackup.layers:
+        if l.copper:
+            copper[l.index] = (z, z + l.thickness)
+        elif l.type == "dielectric":          # masks lie outside the barrel
+            diel.append((z, z + l.thickness, float(l.er)))
+        z += l.thickness
+    return copper, diel
+
+
+def _span_er(diel, a: float, b: float) -> float:
+    """Thickness-weighted er of the dielectric between depths a < b (only the overlapping parts count)."""
+    t = [max(0.0, min(b, d1) - max(a, d0)) for d0, d1, _ in diel]
+    return weighted_er(t, [e for _, _, e in diel])
+
+
+@lru_cache(maxsize=4096)
+def transition(stackup, a: str, b: str) -> Transition:
+    """The via joining copper layers ``a`` and ``b`` (names) under the stackup's [vias] construction."""
+    by_name = {l.name.lower(): l for l in stackup.layers if l.copper}
+    la, lb = by_name[a.lower()], by_name[b.lower()]
+    copper, diel = _positions(stackup)
+    first, last = min(copper), max(copper)
+    up, dn = (la, lb) if la.index <= lb.index else (lb, la)
+    spec = stackup.vias
+    top_end, bot_end = copper[first][0], copper[last][1]
+    top_name, bot_name = stackup.layers[first].name, stackup.layers[last].name
+    if spec.kind == "blind":      # drilled from the component side down to the farther connected layer
+        if spec.component_side == "top":
+            bot_end, bot_name = copper[dn.index][1], dn.name
+        else:
+            top_end, top_name = copper[up.index][0], up.name
+    stubs = [(max(0.0, copper[up.index][0] - top_end), top_end, copper[up.index][0], top_name, "top"),
+             (max(0.0, bot_end - copper[dn.index][1]), copper[dn.index][1], bot_end, bot_name, "bottom")]
+    if spec.kind == "backdrilled":   # drilled from the side away from the components
+        far = "bottom" if spec.component_side == "top" else "top"
+        stubs = [(min(s[0], spec.stub), *s[1:]) if s[4] == far else s for s in stubs]
+    best = None
+    for length, z0, z1, name, _side in stubs:
+        er = _span_er(diel, z0, z1) if length > 0 else 1.0
+        f = float(quarter_wave_resonance(length, er))
+        if best is None or f < best[3]:
+            best = (length, er, name, f)
+    zm_up = sum(copper[up.index]) / 2
+    zm_dn = sum(copper[dn.index]) / 2
+    blen = zm_dn - zm_up
+    ber = _span_er(diel, zm_up, zm_dn) if blen > 0 else 1.0
+    length, er, name, f = best
+    if length <= 0:
+        name = ""
+    return Transition(length, er, name, f, blen, ber, float(barrel_delay(blen, ber)))
+
+
+def component_layer(stackup) -> str:
+    """The outer copper layer on the component side (where escape vias start)."""
+    cu = [l for l in stackup.layers if l.copper]
+    return (cu[0] if stackup.vias.component_side == "top" else cu[-1]).name
+
+
+def inner_layers(stackup) -> set[str]:
+    """Signal layers that are not an outer copper layer."""
+    cu = [l for l in stackup.layers if l.copper]
+    return {l.name for l in cu[1:-1] if l.type == "signal"}
+
+
+def _tree_vias(layers: list[str], t, inner: set[str]) -> list[tuple[int, str, str, str]]:
+    """(segment, from layer, to layer, how) for a net whose rows name nodes: a via wherever a segment leaves
+    its parent's layer (one per node and layer pair, however many branches share it), an escape via at the
+    driver and at each open end on an inner layer."""
+    out, seen = [], set()
+    children = {p for p in t.parent if p >= 0}
+    for k in t.order:
+        p = t.parent[k]
+        if p < 0:
+            if layers[k] in inner:
+                out.append((k, "", layers[k], "escape"))
+        elif layers[p] != layers[k] and (t.near[k], layers[p], layers[k]) not in seen:
+            seen.add((t.near[k], layers[p], layers[k]))
+            out.append((k, layers[p], layers[k], "layer change"))
+        if k not in children and layers[k] in inner:
+            out.append((k, layers[k], "", "escape"))
+    return out
+
+
+def via_table(seg: pd.DataFrame, stackup, topology: dict | None = None) -> pd.DataFrame:
+    """One row per via of each net in ``seg`` (trace-list order within a net).
+
+    A net in ``topology`` (net -> topology.Topology, from the `from`/`to` columns) has its vias where its
+    tree changes layer (`_tree_vias`); any other net's rows are in series in the order listed.
+
+    `how`: "layer change" (between consecutive rows), "escape" (first or last row on an inner layer) or
+    "export" (the row's `vias` count: vias the export counts beyond those sicheck sees; each is taken as
+    joining the row's layer to the component side, like an escape via, and counted `count` times; its delay
+    is not added because sicheck cannot tell whether the signal runs through it; on the component side's
+    own layer it joins nothing sicheck knows, so it is counted with no stub).
+    """
+    comp = component_layer(stackup)
+    inner = inner_layers(stackup)
+    out: list[tuple] = []
+    has_export = "vias" in seg.columns
+    mirrored = seg["mirrored"].to_numpy(bool) if "mirrored" in seg.columns else np.zeros(len(seg), bool)
+    cols = [seg[c].to_numpy() for c in ("net", "pair", "row", "layer", "freq")]
+    extra = seg["vias"].to_numpy(float) if has_export else np.zeros(len(seg))
+    order: dict[str, list[int]] = {}
+    for i, net in enumerate(cols[0]):
+        order.setdefault(net, []).append(i)
+
+    def add(i, a, b, how, count=1, with_delay=True):
+        t = transition(stackup, a, b)
+        out.append((cols[0][i], cols[1][i], int(cols[2][i]), a, b, how, count, t.stub_length, t.stub_er, t.stub_to,
+                    t.stub_resonance, t.barrel_length, t.barrel_delay if with_delay else 0.0, float(cols[4][i]),
+                    bool(mirrored[i])))
+
+    topology = topology or {}
+    for net, idx in order.items():
+        layers = [cols[3][i] for i in idx]
+        t = topology.get(net)
+        if t is not None and len(t.parent) == len(idx):
+            for k, a, b, how in _tree_vias(layers, t, inner):
+                add(idx[k], a or comp, b or comp, how)
+        else:
+            if layers[0] in inner:
+                add(idx[0], comp, layers[0], "escape")
+            for k in range(1, len(idx)):
+                if layers[k] != layers[k - 1]:
+                    add(idx[k], layers[k - 1], layers[k], "layer change")
+            if layers[-1] in inner:
+                add(idx[-1], layers[-1], comp, "escape")
+        for i in idx:
+            n = extra[i]
+            if n > 0:
+                if cols[3][i].lower() == comp.lower():
+                    out.append((cols[0][i], cols[1][i], int(cols[2][i]), comp, comp, "export", int(n), 0.0, 1.0, "",
+                                math.inf, 0.0, 0.0, float(cols[4][i]), bool(mirrored[i])))
+                else:
+                    add(i, comp, cols[3][i], "export", int(n), with_delay=False)
+    return pd.DataFrame(out, columns=VIA_COLUMNS)
+
+
+def via_delay_per_row(seg: pd.DataFrame, vias: pd.DataFrame) -> np.ndarray:
+    """Each segment's share of barrel delay (the vias entered on its row), aligned with ``seg``'s rows.
+
+    Matched on (net, row): a mirrored partner's rows carry the same row numbers as its listed leg's."""
+    add = vias.groupby(["net", "row"])["barrel_delay"].sum()
+    if add.empty:
+        return np.zeros(len(seg))
+    # a net's row may repeat only when the export lists a row twice; share the vias' delay among them
+    keys = pd.MultiIndex.from_arrays([seg["net"].to_numpy(), seg["row"].to_numpy()])
+    counts = pd.Series(1, index=keys).groupby(level=[0, 1]).transform("size").to_numpy()
+    return add.reindex(keys).fillna(0.0).to_numpy(float) / counts
+
+
+def net_via_summary(nets: pd.DataFrame, vias: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    """(number of vias, lowest stub resonance in Hz or NaN) per net of ``nets``."""
+    if vias.empty:
+        return np.zeros(len(nets), int), np.full(len(nets), np.nan)
+    count = vias.groupby("net")["count"].sum()
+    fres = vias[np.isfinite(vias["stub_resonance"])].groupby("net")["stub_resonance"].min()
+    n = nets["net"]
+    return n.map(count).fillna(0).to_numpy(int), n.map(fres).to_numpy(float)
