@@ -65,12 +65,9 @@ def test_round_trip_any_text_and_number(tmp_path_factory, data):
     for k, (s, x) in enumerate(data, start=2):
         want = None
         if s:
-            want = "".join("\ufffd" if (ord(ch) < 32 and ch not in "\t\n\r") or ord(ch) == 127
+            want = "".join("\ufffd" if (ord(ch) < 32 and ch not in "\t\n") or ord(ch) == 127
                            or 0xD800 <= ord(ch) <= 0xDFFF or ch in "\ufffe\uffff" else ch for ch in s)
         got = ws.cell(k, 1).value
-        if want is not None and "\r" in want:
-            want = want.replace("\r\n", "\n").replace("\r", "\n")     # XML normalises line ends
-            got = got.replace("\r\n", "\n").replace("\r", "\n") if got else got
         assert got == want, (s, got)
         assert ws.cell(k, 2).value == x or math.isclose(ws.cell(k, 2).value, x, rel_tol=0, abs_tol=0)
         assert float(cal[k - 1][1]) == x
