@@ -92,8 +92,14 @@ def _what_if(traces, stackups, rules, solver, units, maps, sheet, no_cache) -> t
     aliases.update(parse_map_option(maps))
     tl = read_traces(traces, parse_units_option(units), aliases, sheet)
     fn = solver_fn(solver, no_cache, True)
-    a, b = (review_dict(build_review(tl, st, rs, fn, solver)) for st in sts)
-    return a, b
+    out = []
+    for path, st in zip(stackups, sts):
+        try:
+            out.append(review_dict(build_review(tl, st, rs, fn, solver)))
+        except InputError as e:     # say which of the two stackups the trace list does not fit
+            e.message = f"{e.message} (reviewing on stackup {path})"
+            raise InputError(e.message, file=e.file, row=e.row, line=e.line, column=e.column, key=e.key) from None
+    return out[0], out[1]
 
 
 def _print(c, console, worst: int = 25) -> None:

@@ -104,6 +104,12 @@ def _print_signoff(rv, console) -> None:
         n = so.counts()["waived"]
         console.print(f"waived: {n} finding{'s' if n != 1 else ''} (kept with their severity; not counted for "
                       "the exit code)")
+        shown = [f for f in rv.findings if so.mark(f).waived and f.severity in ("error", "warning")]
+        for f in shown[:10]:
+            console.print(f"  waived {f.severity} {f.rule} {escape(f.net)} ({escape(f.layer)}): "
+                          f"{escape(so.mark(f).waiver.describe())}")
+        if len(shown) > 10:
+            console.print(f"  ... {len(shown) - 10} more in the workbook")
 
 
 def run_demo(out: Path, json_out: Path | None, solver: str, no_cache: bool) -> int:

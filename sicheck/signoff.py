@@ -269,8 +269,8 @@ def decisions(priors: list[Prior], file: str) -> list[dict]:
     """The accepted and waived findings of a signed review, each with its reviewer (required)."""
     out = []
     for p in priors:
-        if p.disposition not in ("accept", "waive"):
-            continue
+        if p.disposition not in ("accept", "waive") or p.key.startswith("waiver-"):
+            continue            # findings about a waiver file are settled in that file, not by another waiver
         if not p.reviewer:
             raise InputError(f"'{p.disposition}' without a reviewer (finding '{p.key}'): a waiver says who decided; "
                              "fill in the reviewer", file=file, row=p.row, column=H_REVIEWER if p.row else None,

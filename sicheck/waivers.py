@@ -81,7 +81,15 @@ def glob_match(pattern: str, name: str) -> bool:
 
 def _known_rules() -> set[str]:
     from sicheck.checks import CHECKS
-    return {c.id for c in CHECKS} | {EXPIRED_RULE, UNUSED_RULE}
+    return {c.id for c in CHECKS}
+
+
+def _rule_problem(rule: str, known: set[str]) -> str | None:
+    if rule in (EXPIRED_RULE, UNUSED_RULE):
+        return f"'{rule}' findings are about the waiver file itself and cannot be waived: renew or remove that waiver"
+    if rule not in known:
+        return f"'{rule}' is not a check of sicheck (see `sicheck rules`)"
+    return None
 
 
 def _date(v, src: TomlSource, i: int) -> dt.date:
@@ -129,14 +137,15 @@ def load_waivers(path: str | Path) -> list[Waiver]:
             for k in ("rule", "net", "layer"):
                 if k in e:
                     raise err(f"give either 'key' or 'rule' with 'net', not both ('{k}' beside 'key')", k)
-            rule = e["key"].split("|", 1)[0]
-            if rule not in known:
-                raise err(f"the key's rule '{rule}' is not a check of sicheck (see `sicheck rules`)", "key")
+            problem = _rule_problem(e["key"].split("|", 1)[0], known)
+            if problem:
+                raise err(f"the key's rule: {problem}", "key")
         else:
             if "rule" not in e:
                 raise err("give 'key' (one finding) or 'rule' with 'net' (a glob)", None)
-            if e["rule"] not in known:
-                raise err(f"'{e['rule']}' is not a check of sicheck (see `sicheck rules`)", "rule")
+            problem = _rule_problem(e["rule"], known)
+            if problem:
+                raise err(problem, "rule")
             if "net" not in e:
                 raise err("'net' is missing: give the net name or a glob such as \"DDR_*\" (\"*\" for all)", None)
         until = _date(e["until"], src, i) if "until" in e else None

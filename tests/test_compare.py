@@ -134,3 +134,11 @@ def test_review_markdown_summary(run, board, tmp_path):
     assert "<b>" not in text and "\\+5V\\_SENSE" in text
     code, _, err = run("review", tr, "--stackup", st_, "--rules", rl, "--markdown", tr)
     assert code == 2 and "overwrite" in err
+
+
+def test_what_if_names_the_stackup_a_trace_list_does_not_fit(run, board, tmp_path):
+    tr, st_a, rl = board(TRACES.format(clk=12), rules=RULES)
+    st_b = tmp_path / "renamed.toml"
+    st_b.write_text(st_a.read_text().replace('name = "L3"', 'name = "IN2"'))
+    code, _, err = run("compare", tr, "--stackup", st_a, "--stackup", st_b, "--rules", rl, "--solver", "formula")
+    assert code == 2 and "layer 'L3'" in err and "renamed.toml" in err and "column 'layer'" in err

@@ -190,6 +190,7 @@ def test_waived_errors_pass_and_keep_their_severity(review, tmp_path):
     code, out, err = review(30, "--waivers", w, "--json", js)
     assert code == 0, err
     assert "waived: 3 findings" in out
+    assert "waived error z0-target +5V_SENSE (L3): =cmd: sense line, DC only" in out
     d = json.loads(js.read_text())
     errors = [f for f in d["findings"] if f["severity"] == "error"]
     assert len(errors) == 3 and all(f["waived"] for f in errors)
@@ -259,6 +260,8 @@ def test_waivers_command_reproduces_the_sign_off(review, run, tmp_path):
     ('waiver = 3\n', "line 1, key 'waiver'"),
     ('[[waiver]]\nkey = "z0-target|A"\nreason = "r\n', "line 3"),
     ('[[waivers]]\nkey = "z0-target|A"\n', "line 1, key 'waivers'"),
+    ('[[waiver]]\nkey = "waiver-expired|z0-target|A"\nreason = "r"\nby = "x"\n', "line 2, key 'key'"),
+    ('[[waiver]]\nkey = "zo-target|A"\nreason = "r"\nby = "x"\n', "line 2, key 'key': waiver 1: the key's rule"),
 ])
 def test_malformed_waiver_files_name_file_line_and_key(tmp_path, text, where):
     p = tmp_path / "w.toml"
@@ -373,3 +376,46 @@ def test_rule_waiver_matches_a_pair_in_either_order_and_one_of_its_layers():
         w = Waiver(index=1, line=1, reason="r", by="b", rule="zdiff-target", net=net, layer=layer)
         assert w.matches(f) is hit, (net, layer)
     assert not Waiver(index=1, line=1, reason="r", by="b", rule="z0-target", net="*").matches(f)
+
+
+@pytest.fixture(scope="module")
+def small_review(tmp_path_factory):
+    """One review built in-process (closed forms, no waveforms), to write workbooks from."""
+    from sicheck.review import build_review
+    from sicheck.rules import load_rule_sets
+    from sicheck.stackup import load_stackup
+    from sicheck.traces import read_traces
+    from conftest import FOUR_LAYER
+    d = tmp_path_factory.mktemp("small")
+    (d / "t.csv").write_text(TRACES.format(clk=30))
+    (d / "s.toml").write_text(FOUR_LAYER)
+    (d / "r.toml").write_text(RULES)
+    rs = load_rule_sets([d / "r.toml"])
+    return build_review(read_traces(d / "t.csv", {}, dict(rs.columns), None), load_stackup(d / "s.toml"), rs,
+                        waveforms=False), d
+
+
+TEXT = st.text(st.characters(blacklist_categories=("Cs", "Cc")), max_size=40).map(str.strip)
+
+
+@settings(max_examples=25, deadline=None)
+@given(TEXT, TEXT)
+def test_decisions_survive_our_workbook_as_text(small_review, reviewer, comment):
+    """Whatever a reviewer typed (=SUM(A1), +5V, @x) is written back as text and read back unchanged."""
+    from sicheck.reports.workbook import write_workbook
+    from sicheck.signoff import Mark, SignOff
+    rv, d = small_review
+    k = rv.findings[0].key
+    rv.signoff = SignOff(previous="old.xlsx", marks={k: Mark(status="unchanged", disposition="waive",
+                                                             reviewer=reviewer, comment=comment)})
+    try:
+        write_workbook(rv, d / "w.xlsx")
+    finally:
+        rv.signoff = None
+    back = {p.key: p for p in read_previous(d / "w.xlsx")}
+    assert (back[k].disposition, back[k].reviewer, back[k].comment) == ("waive", reviewer, comment)
+    for p, f in zip(back.values(), rv.findings):         # values read back as written (the next status)
+        assert p.key == f.key and (p.value is None) == (f.value is None)
+        assert p.value is None or p.value == pytest.approx(f.value, rel=1e-12)
+    ws = load_workbook(d / "w.xlsx")["Findings"]
+    assert all(c.data_type != "f" for row in ws.iter_rows() for c in row)
