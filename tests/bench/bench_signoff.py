@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import argparse
 import datetime as dt
+import json
 import sys
 import tempfile
 import time
@@ -68,6 +69,11 @@ def main() -> None:
         t = time.perf_counter()
         prior = read_previous(p)
         t_read = time.perf_counter() - t
+        pj = Path(d) / "old.json"
+        pj.write_text(json.dumps({"findings": [f.as_dict() for f in old]}))
+        t = time.perf_counter()
+        read_previous(pj)
+        t_json = time.perf_counter() - t
     t = time.perf_counter()
     _, so = sign_off(new, prior, "old.xlsx")
     t_carry = time.perf_counter() - t
@@ -80,7 +86,7 @@ def main() -> None:
     t_apply = time.perf_counter() - t
     c = so.counts()
     print(f"{a.findings} findings: write workbook {t_write:.2f} s, read it back {t_read:.2f} s, "
-          f"carry {t_carry:.3f} s ({c['new']} new, {c['changed']} changed, {c['resolved']} resolved)")
+          f"(as JSON {t_json:.2f} s), carry {t_carry:.3f} s ({c['new']} new, {c['changed']} changed, {c['resolved']} resolved)")
     print(f"{a.waivers} waivers: apply {t_apply:.3f} s ({len(covered)} findings waived, {len(notes)} notes)")
 
 
