@@ -225,3 +225,26 @@ def test_spacing_search_meets_each_budget_and_stops_at_the_minimum_feature(board
             assert r.steps <= 6
     assert spacings == sorted(spacings, reverse=True)
     assert spacings[-1] == pytest.approx(75e-6)          # even the closest spacing meets a 45 % budget
+
+
+def test_semicolons_mils_decimal_commas_and_hostile_names_in_the_coupling_file(run, board, tmp_path):
+    # a semicolon export in mils with decimal commas; names that look like formulas stay text in the workbook
+    tr, st, rules = board("net;layer;length [mil];width [mil];rise_time;spacing [mil]\n"
+                          "=CLK;L1;2400;8;150ps;6\n@VICTIM;L1;1500;8;150ps;\n", rules=RULES)
+    cp = tmp_path / "c.csv"
+    cp.write_text("Victim;Aggressor;Layer;Spacing [mil];Length [mil]\n@VICTIM;=CLK;L1;5,5;1200\n", encoding="utf-8")
+    js, xl = tmp_path / "r.json", tmp_path / "r.xlsx"
+    code, _, err = run("review", tr, "--stackup", st, "--rules", rules, "--coupling", cp, "--solver", "formula",
+                       "--json", js, "--out", xl)
+    assert code in (0, 1), err
+    d = json.loads(js.read_text())
+    (c,) = d["crosstalk"]["couplings"]
+    assert c["spacing_mm"] == pytest.approx(5.5 * 0.0254) and c["length_mm"] == pytest.approx(1200 * 0.0254)
+    assert c["edge_from"] == "aggressor" and c["width_mm"] == pytest.approx(8 * 0.0254)
+    seg = {s["net"]: s for s in d["segments"]}
+    assert seg["=CLK"]["spacing_mm"] == pytest.approx(6 * 0.0254)
+    assert seg["@VICTIM"]["spacing_mm"] is None              # no class spacing for the default class either
+    wb = openpyxl.load_workbook(xl)
+    cells = [cell for row in wb["Couplings"].iter_rows(min_row=2) for cell in row if cell.value in ("=CLK", "@VICTIM")]
+    assert len(cells) == 2 and all(cell.data_type == "s" for cell in cells)
+    assert any(f["rule"] == "crosstalk" and f["net"] == "@VICTIM" for f in d["findings"])

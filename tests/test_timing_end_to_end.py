@@ -140,7 +140,9 @@ def test_match_group_pair_and_budget_end_to_end(run, board, tmp_path):
     cells = [c for r in wb["Timing"].iter_rows() for c in r if c.value is not None]
     names = [c for c in cells if c.value == "=BUS+1"]
     assert len(names) == 3 and all(c.data_type == "s" for c in names)        # stored as text, not a formula
-    assert any(c.value == "P_P/P_N" for c in cells)
+    (pair_row,) = [r for r in wb["Timing"].iter_rows(values_only=True) if r[1] == "P_P/P_N"]
+    assert pair_row[3] == pytest.approx(nets["P_N"]["delay_ps"], rel=1e-5)           # the slower leg
+    assert pair_row[7] == pytest.approx(want, rel=1e-4) and pair_row[11] == "yes"
 
 
 def test_unknown_match_group_in_trace_list_names_row_and_column(run, board):

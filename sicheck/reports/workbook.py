@@ -119,7 +119,7 @@ class _Sheet:
     """
 
     def __init__(self, book: Book, title: str, columns: list[tuple[str, str | None, int]], header_row: int = 1,
-                 fit: dict[int, object] | None = None, key_cols: int = 1):
+                 fit: dict[int, object] | None = None, key_cols: int = 1, print_cols: int | None = None):
         self.book = book
         self.columns = columns
         self.n = len(columns)
@@ -134,7 +134,9 @@ class _Sheet:
                 w = min(max(w, _longest(fit[j]) + 2), MAX_FIT_WIDTH)
             widths.append(w)
             wraps.append(wrap)
-        self.ws = book.sheet(title, pages_wide=max(1, math.ceil(sum(widths) / PRINT_CHARS)),
+        # print_cols: only the first columns print (the others are for the screen and for tools)
+        self.print_cols = print_cols or self.n
+        self.ws = book.sheet(title, pages_wide=max(1, math.ceil(sum(widths[:self.print_cols]) / PRINT_CHARS)),
                              repeat_rows=header_row, repeat_cols=key_cols)
         # column formats apply to every cell written without its own format: numbers need no per-cell style
         self._col_props = []
@@ -200,6 +202,8 @@ class _Sheet:
 
     def finish(self):
         self.ws.autofilter(self.header_row - 1, 0, max(self.rows, self.header_row), self.n - 1)
+        if self.print_cols < self.n:
+            self.ws.print_area(0, 0, max(self.rows, self.header_row), self.print_cols - 1)
 
 
 def key_value_sheet(book: Book, name: str, title: str, rows: list[tuple[str, object]], widths=(34, 70)):
@@ -272,11 +276,13 @@ def _summary(book: Book, rv: Review):
 
 def _findings(book: Book, rv: Review):
     # the message wraps in a column a page can hold, so a printed row reads without a second page
-    cols = [("ID", None, 7), ("Severity", None, 9), ("Rule", None, 16), ("Net", None, 18), ("Layer", None, 10),
+    # Net and Layer wrap too (a finding may name many nets), and the Key (last) does not print: the finding and
+    # its sign-off columns then fit one page across
+    cols = [("ID", None, 7), ("Severity", None, 9), ("Rule", None, 16), ("Net", None, -22), ("Layer", None, -12),
             ("Finding", None, -70), ("Trace row", "0", 7), ("Disposition", None, 12), ("Reviewer", None, 12),
             ("Comment", None, -24)] + finding_columns(rv.signoff)
     fs = rv.findings
-    sh = _Sheet(book, "Findings", cols, fit={3: [f.net for f in fs], 4: [f.layer for f in fs]})
+    sh = _Sheet(book, "Findings", cols, print_cols=len(cols) - 1)
     n = max(len(fs), 1)
     sh.ws.data_validation(1, 7, n, 7, {"validate": "list", "source": list(DISPOSITIONS), "ignore_blank": True,
                                        "error_title": "Disposition", "error_message": "Choose accept, fix or waive"})
@@ -384,6 +390,7 @@ def _timing(book: Book, rv: Review):
     nets = rv.nets
     length = dict(zip(nets["net"], nets["length"].to_numpy(float)))
     layers = dict(zip(nets["net"], nets["layers"]))
+    delays = dict(zip(nets["net"], nets["delay"].to_numpy(float)))
     rows = []
     for gt in group_timing(rv.segments, nets, rv.rules.match_groups):
         over = "yes" if gt.over else "no"
@@ -399,8 +406,10 @@ def _timing(book: Book, rv: Review):
         done.add(frozenset((r.net, r.pair)))
         limit = rv.rules.value("max_pair_skew", rv.rules.class_named(r.net_class) if r.net_class else None)
         over = limit is not None and s > limit
-        rows.append((["(pair)", f"{r.net}/{r.pair}", "", r.delay * 1e12, None, r.length * 1e3, r.layers, s * 1e12,
-                      None if limit is None else limit * 1e12, s * r.length / r.delay * 1e3 if r.delay > 0 else None,
+        slow = r.net if delays[r.net] >= delays[r.pair] else r.pair        # the slower leg's delay and length
+        d, ln = delays[slow], length[slow]
+        rows.append((["(pair)", f"{r.net}/{r.pair}", "", d * 1e12, None, ln * 1e3, layers[slow], s * 1e12,
+                      None if limit is None else limit * 1e12, s * ln / d * 1e3 if d > 0 else None,
                       "", "yes" if over else "no"], over))
     if not rows:
         return
@@ -435,7 +444,7 @@ def _stackup(book: Book, rv: Review):
 
 def _rules(wb: Book, rv: Review):
     """Every registered check with its severity here and its parameters in effect, then the net classes."""
-    from sicheck.checks import CHECKS, SETTINGS
+    from sicheck.checks import CHECKS, SETTINGS, all_params
     r = rv.rules
     cols = [("Item", None, 30), ("Value", None, 18), ("Set in", None, 20), ("Meaning", None, 90)]
     sh = _Sheet(wb, "Rules", cols)
@@ -461,7 +470,9 @@ def _rules(wb: Book, rv: Review):
             vals.append(f"gap {c.gap * 1e3:g} mm")
         if c.driver_ohm is not None:
             vals.append(f"Rdrv {c.driver_ohm:g} ohm")
-        vals += [f"{k} {v:g}" for k, v in c.params.items() if k not in ("z0", "zdiff", "tolerance_pct")]
+        # in each parameter's display unit (a length or a time is stored in SI)
+        vals += [f"{k} {all_params()[k].shown(v)}" for k, v in c.params.items()
+                 if k not in ("z0", "zdiff", "tolerance_pct")]
         sh.row([f"class {c.name}", ", ".join(vals), "[[net_class]]", " ".join(c.match) or "(by net_class column)"])
     for g in r.match_groups:
         sh.row([f"match group {g.name}", f"max_skew {g.max_skew * 1e12:g} ps" +
