@@ -144,7 +144,7 @@ def test_via_stub_pair_reported_once():
                    {"net": "S_N", "pair": "S_P", "layer": "TOP", "freq": 12e9},
                    {"net": "S_N", "pair": "S_P", "layer": "IN1", "freq": 12e9})
     fs = via_findings(seg, rules(), stackup(), "via-stub")
-    assert [f.net for f in fs] == ["S_P/S_N"] and "2 through vias" in fs[0].message   # one layer change + escape
+    assert [f.net for f in fs] == ["S_P & S_N"] and "2 through vias" in fs[0].message   # one layer change + escape
 
 
 def test_via_stub_off():
