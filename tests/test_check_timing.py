@@ -114,7 +114,7 @@ def test_pair_skew_passes_within_default():
 
 def test_pair_skew_fails_once_per_pair():
     (f,) = findings(_pair(50.0, 51.0), rules(), "pair-skew")                 # 6.7 ps > 5 ps
-    assert f.severity == "warning" and f.key == "pair-skew|D_N/D_P" and f.net == "D_P/D_N" and f.row == 3
+    assert f.severity == "warning" and f.key == "pair-skew|D_N & D_P" and f.net == "D_P & D_N" and f.row == 3
     assert f.value == pytest.approx(td_ps(1.0)) and f.limit == pytest.approx(5.0) and f.unit == "ps"
     assert "lengthen D_P" in f.message and "1.00 mm" in f.message
 
@@ -165,7 +165,7 @@ def test_delay_budget_fails_over_budget():
 def test_delay_budget_pair_once_by_slower_leg():
     seg = _pair(60.0, 62.0, net_class="BUS")
     (f,) = findings(seg, rules([cls("BUS", max_delay=400e-12)]), "delay-budget")
-    assert f.value == pytest.approx(td_ps(62.0)) and f.key == "delay-budget|D_N/D_P"
+    assert f.value == pytest.approx(td_ps(62.0)) and f.key == "delay-budget|D_N & D_P"
 
 
 def test_delay_budget_off():
