@@ -218,21 +218,29 @@ def _numeric_column(cells: pd.Series, rows: pd.Series, canon: str, header_label:
         fallback_unit = default_units[dim]
     elif implied:
         fallback_unit = implied
-    parts = text.str.extract(QUANTITY_RE)
-    bad = ~empty & parts[0].isna()
-    if bad.any():
-        i = int(np.argmax(bad.to_numpy()))
-        raise InputError(f"'{text.iloc[i]}' is not a number with a {dim} unit (e.g. "
-                         f"{'5mil, 0.127mm' if dim == 'length' else '350ps, 0.5ns' if dim == 'time' else '22'})",
-                         file=src, row=int(rows.iloc[i]), column=header_label)
-    nums = parts[0].fillna("")
-    has_comma = nums.str.contains(",", regex=False)
-    if has_comma.any() and not decimal_comma:
-        i = int(np.argmax(has_comma.to_numpy()))
-        raise InputError(f"'{text.iloc[i]}' uses a decimal comma in a comma-separated file; use a decimal point",
-                         file=src, row=int(rows.iloc[i]), column=header_label)
-    values = pd.to_numeric(nums.str.replace(",", ".", regex=False).where(~empty), errors="coerce").to_numpy(float)
-    units = parts[1].fillna("")
+    # most cells are plain numbers: parse those in one vectorised call; only the rest (units, decimal
+    # commas, typos) go through the pattern
+    values = pd.to_numeric(text.where(~empty), errors="coerce").to_numpy(float, copy=True)
+    need = ~empty.to_numpy() & np.isnan(values)
+    units = np.full(len(text), "", dtype=object)
+    if need.any():
+        at = np.nonzero(need)[0]
+        parts = text.iloc[at].str.extract(QUANTITY_RE)
+        bad = parts[0].isna().to_numpy()
+        if bad.any():
+            i = int(at[np.argmax(bad)])
+            raise InputError(f"'{text.iloc[i]}' is not a number with a {dim} unit (e.g. "
+                             f"{'5mil, 0.127mm' if dim == 'length' else '350ps, 0.5ns' if dim == 'time' else '22'})",
+                             file=src, row=int(rows.iloc[i]), column=header_label)
+        nums = parts[0]
+        has_comma = nums.str.contains(",", regex=False).to_numpy()
+        if has_comma.any() and not decimal_comma:
+            i = int(at[np.argmax(has_comma)])
+            raise InputError(f"'{text.iloc[i]}' uses a decimal comma in a comma-separated file; use a decimal point",
+                             file=src, row=int(rows.iloc[i]), column=header_label)
+        values[at] = pd.to_numeric(nums.str.replace(",", ".", regex=False), errors="coerce").to_numpy(float)
+        units[at] = parts[1].fillna("").to_numpy(object)
+    units = pd.Series(units, index=text.index)
     factors = np.ones(len(text))
     for u in pd.unique(units[~empty]):
         mask = (units == u).to_numpy() & ~empty.to_numpy()

@@ -11,8 +11,10 @@ from __future__ import annotations
 import datetime as dt
 import re
 from dataclasses import dataclass, replace
+from functools import lru_cache
 from pathlib import Path
 
+from sicheck.checks.engine import PAIR_SEP
 from sicheck.errors import InputError
 from sicheck.findings import Finding
 from sicheck.tomlsrc import TomlSource
@@ -61,11 +63,11 @@ class Waiver:
 
 
 def _names(net: str) -> tuple[str, ...]:
-    """A finding's net as shown, and a pair ("A/B") also the other way round ("B/A")."""
-    if "/" not in net:
+    """A finding's net as shown, and a pair ("A & B") also the other way round ("B & A")."""
+    if PAIR_SEP not in net:
         return (net,)
-    a, b = net.split("/", 1)
-    return (net, f"{b}/{a}")
+    a, b = net.split(PAIR_SEP, 1)
+    return (net, f"{b}{PAIR_SEP}{a}")
 
 
 def finding_key(f: Finding) -> str:
@@ -73,10 +75,15 @@ def finding_key(f: Finding) -> str:
     return f.key or f"{f.rule}|{f.net}"
 
 
+@lru_cache(maxsize=4096)
+def _glob_rx(pattern: str) -> re.Pattern:
+    return re.compile("".join(".*" if c == "*" else "." if c == "?" else re.escape(c) for c in pattern),
+                      re.IGNORECASE | re.DOTALL)
+
+
 def glob_match(pattern: str, name: str) -> bool:
     """Case-insensitive glob with * and ? only: net names such as DATA[0] or +5V stay literal."""
-    rx = "".join(".*" if c == "*" else "." if c == "?" else re.escape(c) for c in pattern)
-    return re.fullmatch(rx, name, re.IGNORECASE | re.DOTALL) is not None
+    return _glob_rx(pattern).fullmatch(name) is not None
 
 
 def _known_rules() -> set[str]:
@@ -165,6 +172,13 @@ def apply(findings: list[Finding], waivers: list[Waiver], today: dt.date,
     covered: dict[str, Waiver] = {}
     notes: list[Finding] = []
     where = f"{source}, " if source else ""
+    # index once: a key waiver looks its finding up, a rule waiver scans only that rule's findings
+    by_key: dict[str, list[Finding]] = {}
+    by_rule: dict[str, list[Finding]] = {}
+    for f in findings:
+        if f.rule not in (EXPIRED_RULE, UNUSED_RULE):
+            by_key.setdefault(finding_key(f), []).append(f)
+            by_rule.setdefault(f.rule, []).append(f)
     for w in waivers:
         place = f"{where}waiver {w.index}" + (f" (line {w.line})" if w.line else "")
         if w.expired(today):
@@ -175,8 +189,8 @@ def apply(findings: list[Finding], waivers: list[Waiver], today: dt.date,
                 key=f"{EXPIRED_RULE}|{w.target}"))
             continue
         used = False
-        for f in findings:
-            if f.rule in (EXPIRED_RULE, UNUSED_RULE) or not w.matches(f):
+        for f in (by_key.get(w.key, []) if w.key is not None else by_rule.get(w.rule, [])):
+            if not w.matches(f):
                 continue
             used = True
             covered.setdefault(finding_key(f), w)

@@ -66,7 +66,7 @@ def test_crosstalk_fails_on_the_far_end_with_its_magnitude():
 def test_crosstalk_fails_once_for_a_pair_at_its_class_spacing():
     seg = _seg(("D_P", 6.0, 0.0, "D_N"), ("D_N", 6.0, 0.0, "D_P"))
     (f,) = _findings(seg, rules([cls("FAST")]))
-    assert f.net == "D_P/D_N" and f.key == "crosstalk|D_N/D_P"
+    assert f.net == "D_P & D_N" and f.key == "crosstalk|D_N & D_P"
 
 
 def test_crosstalk_fails_on_a_listed_coupling_with_the_aggressors_edge():

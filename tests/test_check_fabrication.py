@@ -18,7 +18,7 @@ def test_min_feature_fails_on_width():
 def test_min_feature_fails_on_gap_once_per_pair():
     seg = segments({"net": "D_P", "pair": "D_N", "gap_mm": 0.06}, {"net": "D_N", "pair": "D_P", "gap_mm": 0.06})
     (f,) = findings(seg, rules(), "min-feature")
-    assert "gap 0.060 mm" in f.message and f.net == "D_P/D_N"
+    assert "gap 0.060 mm" in f.message and f.net == "D_P & D_N"
 
 
 def test_min_feature_off():

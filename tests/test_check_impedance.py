@@ -63,7 +63,7 @@ def test_zdiff_target_fails_once_per_pair():
     seg = segments({"net": "D_P", "pair": "D_N", "net_class": "LV", "zdiff": 120.0},
                    {"net": "D_N", "pair": "D_P", "net_class": "LV", "zdiff": 120.0})
     (f,) = findings(seg, rules([cls("LV", zdiff=100.0)]), "zdiff-target")
-    assert f.net == "D_P/D_N" and f.key.startswith("zdiff-target|D_N/D_P|") and f.unit == "ohm"
+    assert f.net == "D_P & D_N" and f.key.startswith("zdiff-target|D_N & D_P|") and f.unit == "ohm"
 
 
 def test_zdiff_target_off():
@@ -99,7 +99,7 @@ def test_z_step_fails_once_per_pair_naming_zdiff():
         rows += [{"net": net, "pair": partner, "layer": "TOP", "zdiff": 100.0},
                  {"net": net, "pair": partner, "layer": "IN3", "zdiff": 85.0}]
     (f,) = findings(segments(*rows), rules(), "z-step")
-    assert f.message.startswith("Zdiff changes 18 %") and "pair" in f.message and f.key.startswith("z-step|D_N/D_P|")
+    assert f.message.startswith("Zdiff changes 18 %") and "pair" in f.message and f.key.startswith("z-step|D_N & D_P|")
 
 
 def test_z_step_passes_on_lumped_net():

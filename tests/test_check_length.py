@@ -27,7 +27,7 @@ def test_electrical_length_recommended_is_info():
 def test_electrical_length_pair_once():
     seg = segments({"net": "D_P", "pair": "D_N", "length_mm": 60.0}, {"net": "D_N", "pair": "D_P", "length_mm": 61.0})
     (f,) = findings(seg, rules(), "electrical-length")
-    assert f.net == "D_N/D_P" and f.key == "electrical-length|D_N/D_P"
+    assert f.net == "D_N & D_P" and f.key == "electrical-length|D_N & D_P"
 
 
 def test_electrical_length_off():

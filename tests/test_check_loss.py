@@ -17,7 +17,7 @@ def test_loss_budget_passes():
 def test_loss_budget_fails_once_per_pair():
     (f,) = findings(_pair(1.0), rules([cls("LV", max_loss_db=1.5)]), "loss-budget")
     assert (f.value, f.limit, f.unit, f.severity) == (2.0, 1.5, "dB", "error")
-    assert f.key == "loss-budget|D_N/D_P" and f.row == 2 and "exceeds the LV budget of 1.5 dB" in f.message
+    assert f.key == "loss-budget|D_N & D_P" and f.row == 2 and "exceeds the LV budget of 1.5 dB" in f.message
 
 
 def test_loss_budget_off():

@@ -26,16 +26,16 @@ def test_pair_mismatch_fails_on_different_layers():
     seg = _pair([{"layer": "TOP", "zdiff": 108.0, "length_mm": 40.0}],
                 [{"layer": "IN3", "zdiff": 99.0, "length_mm": 40.0}])
     (f,) = findings(seg, rules(), "pair-mismatch")
-    assert f.severity == "warning" and f.net == "D_P/D_N" and f.row == 2
+    assert f.severity == "warning" and f.net == "D_P & D_N" and f.row == 2
     assert "D_P on TOP (Zdiff 108.0 ohm" in f.message and "D_N on IN3 (Zdiff 99.0 ohm" in f.message
-    assert f.value == 9.0 and f.unit == "ohm" and f.key == "pair-mismatch|D_N/D_P|layers"
+    assert f.value == 9.0 and f.unit == "ohm" and f.key == "pair-mismatch|D_N & D_P|layers"
 
 
 def test_pair_mismatch_fails_on_different_gaps_and_reports_once():
     seg = _pair([{"layer": "IN3", "gap_mm": 0.10, "zdiff": 108.0}], [{"layer": "IN3", "gap_mm": 0.15, "zdiff": 117.0}])
     (f,) = findings(seg, rules(), "pair-mismatch")
     assert "D_P 0.100 mm (Zdiff 108.0 ohm), D_N 0.150 mm (Zdiff 117.0 ohm)" in f.message
-    assert f.layer == "IN3" and f.key == "pair-mismatch|D_N/D_P|IN3|gap"
+    assert f.layer == "IN3" and f.key == "pair-mismatch|D_N & D_P|IN3|gap"
 
 
 def test_pair_mismatch_off():

@@ -65,7 +65,7 @@ def test_return_path_escape_via_counts_as_a_layer_change():
 def test_return_path_pair_once():
     seg = segments(*_net("TOP", "BOT", net="D_P", pair="D_N"), *_net("TOP", "BOT", net="D_N", pair="D_P"))
     fs = [f for f in via_findings(seg, rules(), stackup(), "return-path") if f.layer == "TOP → BOT"]
-    assert [f.net for f in fs] == ["D_P/D_N"] and "(1 via)" in fs[0].message
+    assert [f.net for f in fs] == ["D_P & D_N"] and "(1 via)" in fs[0].message
 
 
 def test_return_path_off():

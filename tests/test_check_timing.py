@@ -9,8 +9,10 @@ from __future__ import annotations
 import math
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
-from check_tables import C0, cls, findings, rules, segments
+from check_tables import C0, cls, context, findings, rules, segments
 from sicheck.skew import MatchGroup, group_timing
 
 PS_PER_MM_4 = 1e-3 * 2.0 / C0 * 1e12          # 6.671 ps per mm at eps_eff 4
@@ -54,7 +56,7 @@ def test_delay_skew_net_on_two_layers_uses_each_segments_layer():
     seg = segments({"net": "D0", "layer": "IN2", "length_mm": 50.0},
                    {"net": "D1", "layer": "TOP", "eps_eff": 3.0, "length_mm": 25.0},
                    {"net": "D1", "layer": "IN2", "length_mm": 25.0})
-    (gt,) = group_timing(seg, __import__("check_tables").context(seg, rules()).nets, [group()])
+    (gt,) = group_timing(seg, context(seg, rules()).nets, [group()])
     assert gt.delays[1] * 1e12 == pytest.approx(td_ps(25, 3.0) + td_ps(25, 4.0), rel=1e-12)
     assert gt.main_layer == "IN2" and gt.fastest == "D1" and gt.slowest == "D0"
     assert gt.skew_length == pytest.approx(gt.skew / (PS_PER_MM_4 * 1e-9), rel=1e-9)
@@ -112,7 +114,7 @@ def test_pair_skew_passes_within_default():
 
 def test_pair_skew_fails_once_per_pair():
     (f,) = findings(_pair(50.0, 51.0), rules(), "pair-skew")                 # 6.7 ps > 5 ps
-    assert f.severity == "warning" and f.key == "pair-skew|D_N/D_P" and f.net == "D_P/D_N" and f.row == 3
+    assert f.severity == "warning" and f.key == "pair-skew|D_N & D_P" and f.net == "D_P & D_N" and f.row == 3
     assert f.value == pytest.approx(td_ps(1.0)) and f.limit == pytest.approx(5.0) and f.unit == "ps"
     assert "lengthen D_P" in f.message and "1.00 mm" in f.message
 
@@ -163,10 +165,38 @@ def test_delay_budget_fails_over_budget():
 def test_delay_budget_pair_once_by_slower_leg():
     seg = _pair(60.0, 62.0, net_class="BUS")
     (f,) = findings(seg, rules([cls("BUS", max_delay=400e-12)]), "delay-budget")
-    assert f.value == pytest.approx(td_ps(62.0)) and f.key == "delay-budget|D_N/D_P"
+    assert f.value == pytest.approx(td_ps(62.0)) and f.key == "delay-budget|D_N & D_P"
 
 
 def test_delay_budget_off():
     seg = segments({"net": "A", "length_mm": 70.0, "net_class": "BUS"})
     assert findings(seg, rules([cls("BUS", max_delay=400e-12)], severity={"delay-budget": "off"}),
                     "delay-budget") == []
+
+
+# ---------------------------------------------------------------- invariants of the group table
+
+_nets = st.lists(st.tuples(st.floats(1.0, 200.0), st.sampled_from([3.0, 3.5, 4.2])), min_size=2, max_size=6)
+
+
+@settings(max_examples=25, deadline=None)
+@given(nets=_nets, ref=st.booleans(), k=st.floats(0.5, 3.0), seed=st.randoms(use_true_random=False))
+def test_group_skew_invariants(nets, ref, k, seed):
+    rows = [{"net": f"D{i}", "length_mm": ln, "eps_eff": e} for i, (ln, e) in enumerate(nets)]
+
+    def skew(rws):
+        seg = segments(*rws)
+        (gt,) = group_timing(seg, context(seg, rules()).nets, [group(reference="D0" if ref else None)])
+        return gt
+    gt = skew(rows)
+    spread = gt.max_delay - gt.min_delay
+    assert gt.skew >= 0 and gt.min_delay <= gt.max_delay
+    if ref:      # distance from one member: at most the spread, at least half of it
+        assert spread / 2 - 1e-18 <= gt.skew <= spread + 1e-18
+    else:
+        assert gt.skew == pytest.approx(spread, rel=1e-12, abs=1e-18)
+    shuffled = list(rows)
+    seed.shuffle(shuffled)
+    assert skew(shuffled).skew == pytest.approx(gt.skew, rel=1e-12, abs=1e-18)     # row order does not matter
+    scaled = [{**r, "length_mm": r["length_mm"] * k} for r in rows]
+    assert skew(scaled).skew == pytest.approx(gt.skew * k, rel=1e-9, abs=1e-18)    # TD is linear in length

@@ -39,7 +39,7 @@ def test_tolerance_band_fails_for_a_pair_once_with_zdiff():
     seg = _with_band(segments({"net": "D_P", "pair": "D_N", "net_class": "LVDS", "zdiff": 98.0},
                               {"net": "D_N", "pair": "D_P", "net_class": "LVDS", "zdiff": 98.0}), 85.0, 105.0)
     (f,) = findings(seg, rules([cls("LVDS", ["D_*"], zdiff=100)]), "tolerance-band")
-    assert f.net == "D_P/D_N" and f.value == 85.0 and f.message.startswith("Zdiff band 85.0-105.0")
+    assert f.net == "D_P & D_N" and f.value == 85.0 and f.message.startswith("Zdiff band 85.0-105.0")
 
 
 def test_tolerance_band_passes_when_the_nominal_misses_too():

@@ -25,7 +25,7 @@ def test_headline_counts_a_pair_once_and_json_has_finding_keys(run, board, tmp_p
         assert {"rule", "severity", "net", "layer", "message", "row", "key", "value", "limit", "unit"} <= set(f)
         assert f["key"].startswith(f["rule"] + "|")
     el = [f for f in d["findings"] if f["rule"] == "electrical-length"]
-    assert sorted(f["key"] for f in el) == ["electrical-length|D_N/D_P", "electrical-length|S1"]
+    assert sorted(f["key"] for f in el) == ["electrical-length|D_N & D_P", "electrical-length|S1"]
     assert all(f["unit"] == "x Tr" and f["value"] > f["limit"] for f in el)
 
 

@@ -46,7 +46,7 @@ K_CLK_Z = "z0-target|CLK|L1|w0.762mm"          # only at 30 mil
 K_CLK_MODEL = "model-accuracy|L1|w0.762mm"     # only at 30 mil (a wide microstrip outside a formula's range)
 K_CLK_LEN = "electrical-length|CLK"
 K_5V_Z = "z0-target|+5V_SENSE|L3|w0.152mm"
-K_RX_Z = "zdiff-target|RX_N/RX_P|L3|w0.102mm,gap0.203mm"
+K_RX_Z = "zdiff-target|RX_N & RX_P|L3|w0.102mm,gap0.203mm"
 
 
 @pytest.fixture
@@ -76,8 +76,8 @@ def _expect_round_trip(findings: list[dict], resolved: list[dict]):
     assert {k for k, s in status.items() if s == "new"} == set()
     assert {k for k, s in status.items() if s == "changed"} == {K_CLK_LEN}
     assert {k for k, s in status.items() if s == "unchanged"} == {
-        K_5V_Z, K_RX_Z, "electrical-length|+5V_SENSE", "electrical-length|RX_N/RX_P",
-        "model-accuracy|L3|w0.1016mmg0.2032mm", "waveform|RX_N/RX_P"}
+        K_5V_Z, K_RX_Z, "electrical-length|+5V_SENSE", "electrical-length|RX_N & RX_P",
+        "model-accuracy|L3|w0.1016mmg0.2032mm", "waveform|RX_N & RX_P"}
     assert {r["key"] for r in resolved} == {K_CLK_Z, K_CLK_MODEL}
     by_key = {f["key"]: f for f in findings}
     for k in (K_CLK_LEN, K_RX_Z):        # carried whatever the status
@@ -171,7 +171,7 @@ by = "=cmd"
 
 [[waiver]]
 rule = "zdiff-target"
-net = "RX_?/RX_?"
+net = "RX_? & RX_?"
 reason = "coupon 104 ohm"
 by = "lab"
 
@@ -369,9 +369,9 @@ def test_readme_waiver_example_is_a_valid_waiver_file(tmp_path):
 
 
 def test_rule_waiver_matches_a_pair_in_either_order_and_one_of_its_layers():
-    f = Finding(rule="zdiff-target", severity="error", net="RX_P/RX_N", layer="L1 > L3", message="m",
-                key="zdiff-target|RX_N/RX_P|short")
-    for net, layer, hit in (("RX_N/RX_P", None, True), ("rx_p/rx_n", "l3", True), ("RX_?/RX_?", "L1", True),
+    f = Finding(rule="zdiff-target", severity="error", net="RX_P & RX_N", layer="L1 > L3", message="m",
+                key="zdiff-target|RX_N & RX_P|short")
+    for net, layer, hit in (("RX_N & RX_P", None, True), ("rx_p & rx_n", "l3", True), ("RX_? & RX_?", "L1", True),
                             ("RX_P", None, False), ("RX_*", "L2", False)):
         w = Waiver(index=1, line=1, reason="r", by="b", rule="zdiff-target", net=net, layer=layer)
         assert w.matches(f) is hit, (net, layer)

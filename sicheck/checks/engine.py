@@ -140,14 +140,19 @@ def make_key(rule: str, net: str, *where: str) -> str:
     return "|".join([rule, net, *[w for w in where if w]])
 
 
+# Between a pair's two net names: not "/", which hierarchical net names contain ("/usb3/RX1+"); EDA tools
+# do not put a space on both sides of "&" in a net name.
+PAIR_SEP = " & "
+
+
 def pair_label(a: str, b: str) -> str:
     """A pair's name as shown (listed leg first)."""
-    return f"{a}/{b}"
+    return f"{a}{PAIR_SEP}{b}"
 
 
 def pair_id(a: str, b: str) -> str:
     """A pair's name for keys: the same whichever leg the export lists first."""
-    return "/".join(sorted((a, b)))
+    return PAIR_SEP.join(sorted((a, b)))
 
 
 @dataclass

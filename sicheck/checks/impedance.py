@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label
+from sicheck.checks.engine import PAIR_SEP, Param, check, make_key, pair_id, pair_label
 
 TOLERANCE = Param("tolerance_pct", "number", 10.0, "%", "allowed deviation from the class's target, +/- "
                   "(common practice fabrication tolerance)", section="impedance", per_class=True, hi=100)
@@ -69,7 +69,7 @@ def _target_check(ctx, chk, diff: bool):
         worst = max(idx, key=lambda j: abs(err[j]))
         total = float(seg["length"].to_numpy(float)[idx].sum())
         layers = " > ".join(dict.fromkeys(seg["layer"].iat[j] for j in idx))
-        ident = pair_id(*label.split("/", 1)) if diff else label
+        ident = pair_id(*label.split(PAIR_SEP, 1)) if diff else label
         yield chk.finding(
             label, layers,
             f"{len(idx)} segment(s) shorter than {frac:g} x Tr ({total * 1e3:.1f} mm in all) miss the "
@@ -124,24 +124,27 @@ def z_step(ctx, chk):
     lines = set(nets.loc[nets["electrical"] != "lumped", "net"])
     limit = ctx.param("z_step_pct")
     paired = (seg["pair"] != "").to_numpy()
-    t = pd.DataFrame({"net": seg["net"].to_numpy(), "paired": paired,
-                      "z": np.where(paired, seg["zdiff"].to_numpy(float), seg["z0"].to_numpy(float))})
+    z = np.where(paired, seg["zdiff"].to_numpy(float), seg["z0"].to_numpy(float))
+    t = pd.DataFrame({"net": seg["net"].to_numpy(), "paired": paired, "z": z})
     t = t[t["net"].isin(lines)]
     g = t.groupby(["net", "paired"], sort=False)["z"]
     stats = pd.DataFrame({"lo": g.min(), "hi": g.max(), "lo_at": g.idxmin(), "hi_at": g.idxmax()})
     stats = stats[(stats["hi"] - stats["lo"]) / stats["lo"] * 100.0 > limit]      # vectorised; loop over steps only
+    # plain arrays in the loop: a large board has tens of thousands of steps (iterrows costs ~50 us each)
+    pair_col, layer_col, row_col = seg["pair"].to_numpy(), seg["layer"].to_numpy(), seg["row"].to_numpy()
     done: set = set()
-    for (net, is_pair), r in stats.iterrows():
-        partner = seg["pair"].iat[int(r.lo_at)] if is_pair else ""
+    for (net, is_pair), lo, hi, lo_at, hi_at in zip(stats.index, stats["lo"].to_numpy(), stats["hi"].to_numpy(),
+                                                    stats["lo_at"].to_numpy(), stats["hi_at"].to_numpy()):
+        partner = pair_col[int(lo_at)] if is_pair else ""
         ident = pair_id(net, partner) if is_pair else net
         if ident in done:
             continue
         done.add(ident)
         q = "Zdiff" if is_pair else "Z0"
-        a, b = sorted((int(r.lo_at), int(r.hi_at)))       # in the order the net runs
-        za, zb = t.at[a, "z"], t.at[b, "z"]
-        la, lb = seg["layer"].iat[a], seg["layer"].iat[b]
-        step = (r.hi - r.lo) / r.lo * 100.0
+        a, b = sorted((int(lo_at), int(hi_at)))       # in the order the net runs
+        za, zb = z[a], z[b]
+        la, lb = layer_col[a], layer_col[b]
+        step = (hi - lo) / lo * 100.0
         where = la if la == lb else f"{la} → {lb}"
         label = pair_label(net, partner) if is_pair else net
         fix = "width and gap" if is_pair else "width"
@@ -149,7 +152,7 @@ def z_step(ctx, chk):
             label, where,
             f"{q} changes {step:.0f} % along the {'pair' if is_pair else 'net'}: {za:.1f} ohm on {la} → "
             f"{zb:.1f} ohm on {lb}; each step reflects part of the edge (match the {fix} across layers)",
-            row=int(seg["row"].iat[b]), key=make_key(chk.id, ident, where), value=float(step), limit=float(limit),
+            row=int(row_col[b]), key=make_key(chk.id, ident, where), value=float(step), limit=float(limit),
             unit="%")
 
 

@@ -25,13 +25,14 @@ def _proposal(r) -> str:
 
 
 def _pair_label(net: str, pair: str) -> str:
-    """LASER_TRIG_P/LASER_TRIG_N -> LASER_TRIG_P/N: the partner without the prefix both names share."""
+    """LASER_TRIG_P, LASER_TRIG_N -> "LASER_TRIG_P & N": the partner without the prefix both names share."""
     if not pair:
         return net
     k = 0
     while k < min(len(net), len(pair)) - 1 and net[k] == pair[k]:
         k += 1
-    return f"{net}/{pair[k:]}"
+    from sicheck.checks.engine import PAIR_SEP
+    return f"{net}{PAIR_SEP}{pair[k:]}"
 
 
 def _table(title: str) -> Table:

@@ -21,11 +21,14 @@ import xlsxwriter
 
 from sicheck import __version__
 from sicheck.reports.atomic import atomic_path
+from sicheck.reports.sheet_rows import column_letters, rows_xml, splice_rows
 from sicheck.reports.signoff_columns import finding_cells, finding_columns, summary_lines
+from sicheck.checks.engine import pair_label
 from sicheck.review import Review
 
 FORMULA_START = ("=", "+", "-", "@", "\t")
-_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f]")
+# characters a cell cannot hold: controls, and what XML 1.0 forbids (lone surrogates, U+FFFE, U+FFFF)
+_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f\ud800-\udfff\ufffe\uffff]")
 MAX_TEXT = 32767                      # characters in one cell (the file format's limit)
 SEVERITY_FILL = {"error": "#F4C7C3", "warning": "#FCE8B2", "info": "#D9E7F5"}
 HEADER_FILL = "#1F3B57"
@@ -46,6 +49,12 @@ def clean_text(value) -> tuple[str, bool]:
     return s, s.startswith(FORMULA_START)
 
 
+def _xf(fmt) -> int:
+    """A format's style index in the file (0 = the default style). XlsxWriter assigns it on first use,
+    as it does when it writes a cell itself."""
+    return 0 if fmt is None else fmt._get_xf_index()
+
+
 class Book:
     """An XlsxWriter workbook with the formats the sheets share (created once, cached by their properties)."""
 
@@ -54,6 +63,8 @@ class Book:
             "constant_memory": True, "strings_to_formulas": False, "strings_to_numbers": False,
             "strings_to_urls": False})
         self._formats: dict[tuple, object] = {}
+        self.path = path
+        self._tables: list["_Sheet"] = []     # table sheets whose rows are spliced in at close (sheet_rows)
 
     def fmt(self, **props):
         key = tuple(sorted(props.items()))
@@ -85,7 +96,12 @@ class Book:
         ws.write_string(r, c, s, self.fmt(**props))
 
     def close(self):
+        for sh in self._tables:              # style indices are fixed now, before XlsxWriter writes styles
+            sh.register_styles()
         self.wb.close()
+        bodies = {f"xl/worksheets/sheet{sh.ws.index + 1}.xml": sh.body() for sh in self._tables if sh.buffered}
+        if bodies:
+            splice_rows(self.path, bodies)
 
 
 LINE_PT = 15.0                        # height of one line of 11 pt text
@@ -119,7 +135,7 @@ class _Sheet:
     """
 
     def __init__(self, book: Book, title: str, columns: list[tuple[str, str | None, int]], header_row: int = 1,
-                 fit: dict[int, object] | None = None, key_cols: int = 1):
+                 fit: dict[int, object] | None = None, key_cols: int = 1, print_cols: int | None = None):
         self.book = book
         self.columns = columns
         self.n = len(columns)
@@ -134,7 +150,9 @@ class _Sheet:
                 w = min(max(w, _longest(fit[j]) + 2), MAX_FIT_WIDTH)
             widths.append(w)
             wraps.append(wrap)
-        self.ws = book.sheet(title, pages_wide=max(1, math.ceil(sum(widths) / PRINT_CHARS)),
+        # print_cols: only the first columns print (the others are for the screen and for tools)
+        self.print_cols = print_cols or self.n
+        self.ws = book.sheet(title, pages_wide=max(1, math.ceil(sum(widths[:self.print_cols]) / PRINT_CHARS)),
                              repeat_rows=header_row, repeat_cols=key_cols)
         # column formats apply to every cell written without its own format: numbers need no per-cell style
         self._col_props = []
@@ -151,6 +169,8 @@ class _Sheet:
         self.wrap_cols = [j for j, wrap in enumerate(wraps) if wrap]
         self.header_row = header_row
         self.rows = header_row - 1          # zero-based index of the last row written
+        self._buf: list = []
+        book._tables.append(self)
 
     def header(self):
         r = self.header_row - 1
@@ -162,44 +182,61 @@ class _Sheet:
                            text_wrap=True, valign="top")
 
     def row(self, values: list, fill: str | None = None, fill_cols: tuple[int, ...] = ()):
+        """Add a data row. Rows are kept and written as XML when the book closes (see sheet_rows):
+        nothing else may be written to this sheet below the header once rows are added."""
         self.rows += 1
-        r = self.rows
-        ws = self.ws
-        book = self.book
         lines = 1
         for j in self.wrap_cols:
             v = values[j] if j < len(values) else None
             if isinstance(v, str) and len(v) > self.widths[j] - 3:
                 lines = max(lines, text_lines(v, self.widths[j]))
-        if lines > 1:
-            ws.set_row(r, LINE_PT * min(lines, 27))         # 409 pt is the largest row height
-        for j, v in enumerate(values):
-            if v is None:
-                continue
-            filled = fill is not None and j in fill_cols
-            if isinstance(v, str):
-                if not v:
-                    continue
-                if filled or v.startswith(FORMULA_START) or _CONTROL.search(v) or len(v) > MAX_TEXT:
-                    props = dict(self._col_props[j])
-                    if filled:
-                        props["bg_color"] = fill
-                    book.text(ws, r, j, v, **props)
-                else:
-                    ws.write_string(r, j, v)
-            elif isinstance(v, (bool, np.bool_)):
-                ws.write_boolean(r, j, bool(v))
+        over = None
+        if fill is not None and fill_cols:
+            over = {}
+            for j in fill_cols:
+                v = values[j] if j < len(values) else None
+                quote = isinstance(v, str) and clean_text(v)[1]
+                over[j] = self.book.fmt(**self._col_props[j], bg_color=fill, **({"quote_prefix": True} if quote else {}))
+        self._buf.append((self.rows, values, LINE_PT * min(lines, 27) if lines > 1 else None, over))  # 409 pt max
+
+    @property
+    def buffered(self) -> bool:
+        return bool(self._buf)
+
+    def register_styles(self):
+        """Give every style the buffered rows use its index (XlsxWriter writes only indexed styles)."""
+        fmts = [self.book.fmt(**p) for p in self._col_props]
+        self._quote = [self.book.fmt(**p, quote_prefix=True) for p in self._col_props]
+        self._col_style = [_xf(f) for f in fmts]
+        for f in self._quote:
+            _xf(f)
+        for _, _, _, over in self._buf:
+            if over:
+                for j, f in over.items():
+                    over[j] = _xf(f)
+
+    def body(self) -> tuple[str, object]:
+        """(used range, row XML chunks) for sheet_rows.splice_rows."""
+        quote_style = [_xf(f) for f in self._quote]
+        col_style = self._col_style
+        formula_start = FORMULA_START
+
+        def text_cell(j: int, v: str, over: dict | None) -> tuple[str, int]:
+            if v.startswith(formula_start) or len(v) > MAX_TEXT or _CONTROL.search(v):
+                v, quote = clean_text(v)
             else:
-                f = float(v)
-                if not math.isfinite(f):
-                    continue
-                if filled:
-                    ws.write_number(r, j, f, book.fmt(**self._col_props[j], bg_color=fill))
-                else:
-                    ws.write_number(r, j, f)
+                quote = False
+            if over is not None and j in over:
+                return v, over[j]
+            return v, quote_style[j] if quote else col_style[j]
+
+        last = column_letters(self.n)[-1]
+        return f"A1:{last}{self.rows + 1}", rows_xml(self._buf, self.n, col_style, text_cell)
 
     def finish(self):
         self.ws.autofilter(self.header_row - 1, 0, max(self.rows, self.header_row), self.n - 1)
+        if self.print_cols < self.n:
+            self.ws.print_area(0, 0, max(self.rows, self.header_row), self.print_cols - 1)
 
 
 def key_value_sheet(book: Book, name: str, title: str, rows: list[tuple[str, object]], widths=(34, 70)):
@@ -272,11 +309,13 @@ def _summary(book: Book, rv: Review):
 
 def _findings(book: Book, rv: Review):
     # the message wraps in a column a page can hold, so a printed row reads without a second page
-    cols = [("ID", None, 7), ("Severity", None, 9), ("Rule", None, 16), ("Net", None, 18), ("Layer", None, 10),
+    # Net and Layer wrap too (a finding may name many nets), and the Key (last) does not print: the finding and
+    # its sign-off columns then fit one page across
+    cols = [("ID", None, 7), ("Severity", None, 9), ("Rule", None, 16), ("Net", None, -22), ("Layer", None, -12),
             ("Finding", None, -70), ("Trace row", "0", 7), ("Disposition", None, 12), ("Reviewer", None, 12),
             ("Comment", None, -24)] + finding_columns(rv.signoff)
     fs = rv.findings
-    sh = _Sheet(book, "Findings", cols, fit={3: [f.net for f in fs], 4: [f.layer for f in fs]})
+    sh = _Sheet(book, "Findings", cols, print_cols=len(cols) - 1)
     n = max(len(fs), 1)
     sh.ws.data_validation(1, 7, n, 7, {"validate": "list", "source": list(DISPOSITIONS), "ignore_blank": True,
                                        "error_title": "Disposition", "error_message": "Choose accept, fix or waive"})
@@ -303,6 +342,9 @@ def _nets(book: Book, rv: Review):
     has_xt = "next_pct" in nets.columns       # crosstalk inputs given
     if has_xt:
         cols = cols + [("Worst NEXT [%]", "0.00", 8), ("Worst FEXT [%]", "0.00", 8)]
+    has_vias = "vias" in nets.columns          # review._add_vias
+    if has_vias:
+        cols = cols + [("Vias", "0", 6), ("Lowest via stub resonance [GHz]", "0.0", 10)]
     sh = _Sheet(book, "Nets", cols, fit={0: nets["net"], 1: nets["net_class"], 2: nets["pair"], 3: nets["layers"],
                                          9: nets["electrical"], 10: nets["termination"]})
     sh.header()
@@ -329,6 +371,8 @@ def _nets(book: Book, rv: Review):
     else:
         wave = [empty] * 10
     columns = base + wave + [nets["advice"].tolist()] + ([num("next_pct"), num("fext_pct")] if has_xt else [])
+    if has_vias:
+        columns += [num("vias"), num("via_stub_resonance", 1e-9)]
     term = nets["termination"].tolist()
     for i, values in enumerate(zip(*columns)):
         sh.row(list(values), fill=fills.get(term[i]), fill_cols=(10,))
@@ -384,6 +428,7 @@ def _timing(book: Book, rv: Review):
     nets = rv.nets
     length = dict(zip(nets["net"], nets["length"].to_numpy(float)))
     layers = dict(zip(nets["net"], nets["layers"]))
+    delays = dict(zip(nets["net"], nets["delay"].to_numpy(float)))
     rows = []
     for gt in group_timing(rv.segments, nets, rv.rules.match_groups):
         over = "yes" if gt.over else "no"
@@ -399,8 +444,10 @@ def _timing(book: Book, rv: Review):
         done.add(frozenset((r.net, r.pair)))
         limit = rv.rules.value("max_pair_skew", rv.rules.class_named(r.net_class) if r.net_class else None)
         over = limit is not None and s > limit
-        rows.append((["(pair)", f"{r.net}/{r.pair}", "", r.delay * 1e12, None, r.length * 1e3, r.layers, s * 1e12,
-                      None if limit is None else limit * 1e12, s * r.length / r.delay * 1e3 if r.delay > 0 else None,
+        slow = r.net if delays[r.net] >= delays[r.pair] else r.pair        # the slower leg's delay and length
+        d, ln = delays[slow], length[slow]
+        rows.append((["(pair)", pair_label(r.net, r.pair), "", d * 1e12, None, ln * 1e3, layers[slow], s * 1e12,
+                      None if limit is None else limit * 1e12, s * ln / d * 1e3 if d > 0 else None,
                       "", "yes" if over else "no"], over))
     if not rows:
         return
