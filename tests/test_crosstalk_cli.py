@@ -274,3 +274,18 @@ def test_semicolons_mils_decimal_commas_and_hostile_names_in_the_coupling_file(r
     cells = [cell for row in wb["Couplings"].iter_rows(min_row=2) for cell in row if cell.value in ("=CLK", "@VICTIM")]
     assert len(cells) == 2 and all(cell.data_type == "s" for cell in cells)
     assert any(f["rule"] == "crosstalk" and f["net"] == "@VICTIM" for f in d["findings"])
+
+
+def test_coupling_file_victim_may_be_a_pair_leg_listed_through_its_partner(run, board, tmp_path):
+    tr, st = board("net,pair,layer,length [mm],width [mm],gap [mm],rise_time\nD_P,D_N,L1,40,0.15,0.15,100ps\n"
+                   "CLK,,L1,40,0.15,,100ps\n")
+    cp = tmp_path / "c.csv"
+    cp.write_text("victim,aggressor,layer,spacing [mm],length [mm]\nD_N,CLK,L1,0.1,40\n")
+    js = tmp_path / "r.json"
+    code, _, err = run("review", tr, "--stackup", st, "--coupling", cp, "--solver", "formula", "--json", js)
+    assert code in (0, 1), err
+    d = json.loads(js.read_text())
+    (c,) = d["crosstalk"]["couplings"]
+    assert c["width_mm"] == pytest.approx(0.15) and c["edge_from"] == "aggressor"
+    net = [n for n in d["nets"] if n["net"] == "D_N"][0]
+    assert net["listed_via_partner"] and net["next_pct"] == pytest.approx(c["next_pct"], rel=1e-3)
