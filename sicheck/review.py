@@ -218,6 +218,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     if xtalk is not None and couplings is not None:
         xtr.attach_couplings(xtalk, couplings, seg, dict(zip(nets["net"], nets["rise_time"])))
     xtr.add_net_crosstalk(nets, all_seg, xtalk)
+    if waveforms:
+        xtr.add_waves(xtalk, seg, rules)
     ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
                         cross_sections=list(zip(xs, results)), topology=topology, crosstalk=xtalk,
                         vias=vias)

@@ -160,3 +160,23 @@ def test_via_stub_min_resonance_ratio():
 def test_via_stub_without_stackup_finds_nothing():
     from check_tables import findings
     assert findings(_fast(12.0), rules(), "via-stub") == []
+
+
+@given(hs.lists(hs.sampled_from(["TOP", "IN1", "IN2", "BOT"]), min_size=1, max_size=8),
+       hs.sampled_from(["through", "blind", "backdrilled"]), hs.sampled_from(["top", "bottom"]))
+def test_via_table_invariants(layers, kind, side):
+    extra = '\nstub = "0.1mm"' if kind == "backdrilled" else ""
+    st = stackup(f'[vias]\nkind = "{kind}"\ncomponent_side = "{side}"{extra}\n')
+    v = via_table(segments(*[{"net": "N", "layer": l, "row": 2 + i} for i, l in enumerate(layers)]), st)
+    comp = "TOP" if side == "top" else "BOT"
+    changes = sum(a != b for a, b in zip(layers, layers[1:]))
+    escapes = (layers[0] in ("IN1", "IN2")) + (layers[-1] in ("IN1", "IN2"))
+    assert (v["how"] == "layer change").sum() == changes and (v["how"] == "escape").sum() == escapes
+    assert set(v.loc[v["how"] == "escape", "from_layer"]) | set(v.loc[v["how"] == "escape", "to_layer"]) <= \
+        {comp, "IN1", "IN2"}
+    board = 1.505e-3                       # first copper's top face to last copper's bottom face
+    assert ((v["stub_length"] >= 0) & (v["stub_length"] <= board)).all()
+    assert ((v["barrel_delay"] > 0) & (v["barrel_delay"] <= board * 2 / C0 + 1e-18)).all()
+    if kind == "backdrilled":             # the drilled side keeps at most the stackup's stub
+        far = "BOT" if side == "top" else "TOP"
+        assert (v.loc[v["stub_to"] == far, "stub_length"] <= 0.1e-3 + 1e-12).all()

@@ -93,9 +93,14 @@ SLOW;BOT;600;6;2ns;;
 
 def test_end_to_end_review_reports_vias_and_return_paths(run, board, tmp_path):
     tr, st = board(TRACES, stackup=BOARD_MIL)
-    js = tmp_path / "out.json"
-    code, out, err = run("review", tr, "--stackup", st, "--solver", "formula", "--json", js)
+    js, xl = tmp_path / "out.json", tmp_path / "out.xlsx"
+    code, out, err = run("review", tr, "--stackup", st, "--solver", "formula", "--json", js, "--out", xl)
     assert code in (0, 1), err
+    from openpyxl import load_workbook
+    rows = list(load_workbook(xl, read_only=True)["Nets"].iter_rows(values_only=True))
+    head = next(r for r in rows if r and r[0] == "Net")
+    iv = head.index("Vias")
+    assert {r[0]: r[iv] for r in rows if r and r[0] in ("=SER+1", "SLOW")} == {"=SER+1": 3, "SLOW": 1}
     data = json.loads(js.read_text(encoding="utf-8"))
     nets = {n["net"]: n for n in data["nets"]}
     ser, slow = nets["=SER+1"], nets["SLOW"]

@@ -342,6 +342,9 @@ def _nets(book: Book, rv: Review):
     has_xt = "next_pct" in nets.columns       # crosstalk inputs given
     if has_xt:
         cols = cols + [("Worst NEXT [%]", "0.00", 8), ("Worst FEXT [%]", "0.00", 8)]
+    has_vias = "vias" in nets.columns          # review._add_vias
+    if has_vias:
+        cols = cols + [("Vias", "0", 6), ("Lowest via stub resonance [GHz]", "0.0", 10)]
     sh = _Sheet(book, "Nets", cols, fit={0: nets["net"], 1: nets["net_class"], 2: nets["pair"], 3: nets["layers"],
                                          9: nets["electrical"], 10: nets["termination"]})
     sh.header()
@@ -368,6 +371,8 @@ def _nets(book: Book, rv: Review):
     else:
         wave = [empty] * 10
     columns = base + wave + [nets["advice"].tolist()] + ([num("next_pct"), num("fext_pct")] if has_xt else [])
+    if has_vias:
+        columns += [num("vias"), num("via_stub_resonance", 1e-9)]
     term = nets["termination"].tolist()
     for i, values in enumerate(zip(*columns)):
         sh.row(list(values), fill=fills.get(term[i]), fill_cols=(10,))
@@ -586,8 +591,10 @@ def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
         if rv.waves:
             _waveforms(book, rv)
         if getattr(rv, "crosstalk", None) is not None:
-            from sicheck.reports.crosstalk_report import crosstalk_sheet
+            from sicheck.reports.crosstalk_report import crosstalk_sheet, crosstalk_waves_sheet
             crosstalk_sheet(book, rv)
+            if rv.crosstalk.waves:
+                crosstalk_waves_sheet(book, rv)
         for fn in extra_sheets or ():
             fn(book, rv)
         book.close()
