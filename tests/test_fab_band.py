@@ -14,6 +14,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy.special import ellipk
 
 from sicheck.errors import InputError
@@ -152,7 +154,10 @@ def test_review_json_carries_the_band(board, run, tmp_path):
     js = tmp_path / "r.json"
     code, _, err = run("review", tr, "--stackup", st, "--solver", "formula", "--rules", rf, "--json", js)
     assert code in (0, 1), err
-    segs = {s["net"]: s for s in json.loads(js.read_text())["segments"]}
+    data = json.loads(js.read_text())
+    assert data["summary"]["fabrication_tolerances"] == {"width_tol_mm": 0.0, "dielectric_tol_pct": 0.0,
+                                                         "er_tol_pct": 5.0, "copper_tol_pct": 0.0}
+    segs = {s["net"]: s for s in data["segments"]}
     a, d = segs["A"], segs["D_P"]
     assert a["z_min_ohm"] < a["z0_ohm"] < a["z_max_ohm"] and "zdiff_min_ohm" not in a
     assert d["zdiff_min_ohm"] < d["zdiff_ohm"] < d["zdiff_max_ohm"]
@@ -186,3 +191,21 @@ def test_auto_solver_decides_once_for_the_whole_review(monkeypatch):
     closed([MICROSTRIP, PAIR, MICROSTRIP])
     closed([MICROSTRIP])
     assert seen == [2, 16]
+
+
+@settings(max_examples=40, deadline=None)
+@given(w=st.floats(0.06e-3, 0.5e-3), h=st.floats(0.05e-3, 0.4e-3), er=st.floats(2.5, 6.0),
+       kind=st.sampled_from(["microstrip", "stripline"]), pair=st.booleans(), scale=st.floats(0.2, 1.0))
+def test_band_holds_the_nominal_and_grows_with_the_tolerances(w, h, er, kind, pair, scale):
+    """Invariants: min <= nominal <= max; zero tolerances give zero width; smaller tolerances a narrower band."""
+    above = (Stratum(h, er),) if kind == "stripline" else ()
+    xs = [CrossSection(kind, w, 18e-6, (Stratum(h, er),), above, gap=0.15e-3 if pair else None)]
+    nominal = solve_formula(xs)
+    big = tolerance_band(xs, nominal, solve_formula, TOL)
+    small = tolerance_band(xs, nominal, solve_formula, Tolerances(TOL.width * scale, 10 * scale, 5 * scale, 10 * scale))
+    for b in (big, small):
+        assert b.z_min[0] <= b.z[0] <= b.z_max[0]
+        assert b.z_rss[0] <= max(b.z_max[0] - b.z[0], b.z[0] - b.z_min[0]) * 1.0001 + 1e-12
+    assert big.z_min[0] <= small.z_min[0] + 1e-9 and small.z_max[0] <= big.z_max[0] + 1e-9
+    if pair:
+        assert big.zdiff_min[0] <= big.zdiff[0] <= big.zdiff_max[0]

@@ -181,6 +181,13 @@ def nets_json(nets) -> list[dict]:
 WAVE_KEYS = ("overshoot_pct", "ringback_pct", "settle_ns", "flight_ns")
 
 
+def _tolerances(rules) -> dict:
+    from sicheck.checks.fabrication_band import tolerances
+    t = tolerances(rules)
+    return {"width_tol_mm": _num(t.width * 1e3), "dielectric_tol_pct": t.dielectric_pct, "er_tol_pct": t.er_pct,
+            "copper_tol_pct": t.copper_pct}
+
+
 def review_dict(rv: Review) -> dict:
     nets = rv.nets
     summary = {
@@ -193,6 +200,7 @@ def review_dict(rv: Review) -> dict:
         "termination": {k: rv.net_counts[k] for k in ("not-needed", "recommended", "required")},
         "electrical": {k: rv.net_counts[k] for k in ("lumped", "transmission-line")},
         "exit_code": rv.exit_code,
+        "fabrication_tolerances": _tolerances(rv.rules),      # what the segments' band was computed with
     }
     out = {"summary": summary, "nets": nets_json(nets), "segments": segments_json(rv.segments),
            "findings": [f.as_dict() | finding_json(rv.signoff, f) for f in rv.findings],

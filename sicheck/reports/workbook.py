@@ -594,8 +594,10 @@ def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
         if rv.waves:
             _waveforms(book, rv)
         if getattr(rv, "crosstalk", None) is not None:
-            from sicheck.reports.crosstalk_report import crosstalk_sheet
+            from sicheck.reports.crosstalk_report import crosstalk_sheet, crosstalk_waves_sheet
             crosstalk_sheet(book, rv)
+            if rv.crosstalk.waves:
+                crosstalk_waves_sheet(book, rv)
         for fn in extra_sheets or ():
             fn(book, rv)
         book.close()
