@@ -41,6 +41,7 @@ class CrosstalkTables:
     couplings: pd.DataFrame | None = None       # the --coupling rows with their numbers
     notes: list[str] = field(default_factory=list)
     solver: Solver | None = None                # the review's solver, for the check's spacing search
+    waves: list[dict] = field(default_factory=list)   # the worst couplings simulated with their real ends
 
     def _index(self, layer, width, spacing) -> int:
         return int(_lookup(self.sections, [layer], [width], [spacing])[0])
@@ -242,3 +243,64 @@ def add_net_crosstalk(nets: pd.DataFrame, all_seg: pd.DataFrame, tables: Crossta
     worst_fext = pd.Series(allx.loc[idx.astype(int), "fext_pct"].to_numpy(), index=idx.index)
     nets["next_pct"] = nets["net"].map(worst_next).to_numpy(float)
     nets["fext_pct"] = nets["net"].map(worst_fext).to_numpy(float)
+
+
+# ------------------------------------------------------------------ waveforms of the worst couplings
+
+MAX_WAVES = 3          # couplings simulated with their real ends (the worst by peak noise in %)
+
+
+def add_waves(tables: CrosstalkTables | None, seg: pd.DataFrame, rules, max_waves: int = MAX_WAVES) -> None:
+    """The victim's near- and far-end noise of the worst few couplings with the real ends (in ``tables.waves``).
+
+    Ends: the aggressor's driver (swing behind its driver_ohm) at its near end, the victim's quiet driver
+    (its driver_ohm) at its near end, and the receivers' load_pf at both far ends; class values, else the
+    [waveform] defaults. An aggressor that is not a net of the trace list gets the victim's values.
+    Only the coupled run is modelled (sicheck.physics.coupled_wave): its ends are taken as the nets' ends.
+    """
+    if tables is None:
+        return
+    from sicheck.physics.coupled_wave import End, coupled_pair_waves
+    cases = []        # (peak %, victim, aggressor, layer, width, spacing, length, rise)
+    if "next_pct" in seg:
+        s = seg[~seg["mirrored"].astype(bool) & seg["next_pct"].notna()]
+        for r in s.itertuples(index=False):
+            cases.append((max(r.next_pct, abs(r.fext_pct)), r.net, r.xt_aggressor, r.layer, r.width, r.spacing,
+                          r.parallel, r.xt_rise))
+    if tables.couplings is not None:
+        for r in tables.couplings.itertuples(index=False):
+            cases.append((max(r.next_pct, abs(r.fext_pct)), r.victim, r.aggressor, r.layer, r.width, r.spacing,
+                          r.length, r.rise))
+    cases.sort(key=lambda c: -c[0])
+    first = seg.drop_duplicates("net").set_index("net")
+    cls = {c.name: c for c in rules.classes}
+
+    def ends(net):
+        """(swing V, driver ohm, load F) of a net: its rows, its class, else the [waveform] defaults."""
+        row = first.loc[net] if net in first.index else None
+        c = cls.get(row["net_class"]) if row is not None else None
+        swing = c.swing if c is not None and c.swing is not None else rules.swing
+        drv = float(row["driver_ohm"]) if row is not None and np.isfinite(row["driver_ohm"]) else rules.driver_ohm
+        load = float(row["load_pf"]) if row is not None and np.isfinite(row["load_pf"]) else rules.load_pf
+        return float(swing), float(drv), float(load) * 1e-12
+
+    done: set = set()
+    for (_, victim, aggr, layer, w, sp, length, rise) in cases:
+        if len(tables.waves) >= max_waves:
+            break
+        i = int(_lookup(tables.sections, [layer], [w], [sp])[0])
+        if victim in done or i < 0 or not np.isfinite(rise) or not length > 0:
+            continue
+        done.add(victim)
+        sec = tables.sections.iloc[i]
+        _, r_victim, c_victim = ends(victim)
+        swing, r_aggr, c_aggr = ends(aggr if aggr in first.index else victim)
+        wv = coupled_pair_waves(float(sec["ls"]), float(sec["lm"]), float(sec["cs"]), float(sec["cm"]), float(length),
+                                float(rise), swing, r_aggr, End(r=r_victim), End(c=c_victim), End(c=c_aggr))
+        near = float(wv.victim_near[np.argmax(np.abs(wv.victim_near))])
+        far = float(wv.victim_far[np.argmax(np.abs(wv.victim_far))])
+        tables.waves.append({"victim": victim, "aggressor": aggr, "layer": layer, "width": float(w), "spacing": float(sp),
+                             "length": float(length), "rise": float(rise), "swing": swing, "aggressor_driver_ohm": r_aggr,
+                             "victim_driver_ohm": r_victim, "victim_load": c_victim, "aggressor_load": c_aggr,
+                             "near_peak_v": near, "far_peak_v": far, "t": wv.t, "near": wv.victim_near,
+                             "far": wv.victim_far})

@@ -218,6 +218,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     if xtalk is not None and couplings is not None:
         xtr.attach_couplings(xtalk, couplings, seg, dict(zip(nets["net"], nets["rise_time"])))
     xtr.add_net_crosstalk(nets, all_seg, xtalk)
+    if waveforms:
+        xtr.add_waves(xtalk, seg, rules)
     ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
                         cross_sections=list(zip(xs, results)), topology=topology, crosstalk=xtalk,
                         vias=vias)
@@ -254,9 +256,11 @@ def _topology(df: pd.DataFrame, seg: pd.DataFrame, rules: Rules, src: str) -> di
             for c in ("from", "to", "driver")}
     tops = {}
     if any(any(v) for v in cols.values()):
+        by_class = {c.name: c.driver for c in rules.classes if c.driver}
+        pats = {n: (c, by_class[c]) for n, c in zip(net, seg["net_class"]) if c in by_class}
         tops = topology.net_topologies(net.to_numpy(object), seg["row"].to_numpy(), cols["from"], cols["to"],
                                        cols["driver"], seg["length"].to_numpy(float), seg["delay"].to_numpy(float),
-                                       seg["load_pf_given"].to_numpy(bool), src)
+                                       seg["load_pf_given"].to_numpy(bool), src, pats)
     on = np.ones(len(seg), bool)
     step = np.arange(len(seg))                 # position along the main path (listed order for a chain)
     for ix, t in tops.values():

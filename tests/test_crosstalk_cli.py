@@ -170,8 +170,14 @@ def test_review_with_class_spacing_and_coupling_file(run, board, tmp_path):
     length = 0.06 if layer == "L1" else 0.04
     assert float(xt.next_fraction(c.kb, length, c.delay_per_m, 200e-12)) <= 0.03
     assert abs(float(xt.fext_fraction(c.kf, length, c.delay_per_m, 200e-12))) <= 0.04
+    # the worst couplings simulated with the nets' own ends (sicheck.physics.coupled_wave)
+    waves = d["crosstalk"]["waves"]
+    assert 1 <= len(waves) <= 3 and len({w["victim"] for w in waves}) == len(waves)
+    assert all(w["near_peak_mv"] != 0 and w["far_peak_mv"] is not None for w in waves)
+    assert waves[0]["victim"] == max(d["nets"], key=lambda n: max(n.get("next_pct") or 0, abs(n.get("fext_pct") or 0)))["net"]
+    assert any("mV at its near end" in f["message"] for f in xf)
     wb = openpyxl.load_workbook(xl, read_only=True)
-    assert "Crosstalk" in wb.sheetnames and "Couplings" in wb.sheetnames
+    assert "Crosstalk" in wb.sheetnames and "Couplings" in wb.sheetnames and "Crosstalk waves" in wb.sheetnames
     head = [c.value for c in next(wb["Segments"].iter_rows(max_row=1))]
     assert "NEXT [%]" in head and "FEXT [%]" in head
     rows = list(wb["Crosstalk"].iter_rows(values_only=True))

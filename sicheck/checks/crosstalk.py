@@ -125,6 +125,12 @@ def crosstalk(ctx, chk):
                f"the aggressor's step{volts}, with a {rise * 1e12:.0f} ps edge from {edge}{fix_text}")
         if tables is not None:
             msg += "".join(f" (caution: {m})" for m in tables.cautions(layer, w, s))
+            wave = next((x for x in tables.waves if x["victim"] == net and x["aggressor"] == aggr
+                         and x["layer"] == layer), None)
+            if wave is not None:
+                msg += (f"; with the nets' own ends (drivers {wave['victim_driver_ohm']:g} ohm, receivers "
+                        f"{wave['victim_load'] * 1e12:g} pF) the victim sees {wave['near_peak_v'] * 1e3:+.0f} mV at "
+                        f"its near end and {wave['far_peak_v'] * 1e3:+.0f} mV at its far end (Crosstalk waves sheet)")
         near = ne / nb >= abs(fe) / fb
         yield chk.finding(net, layer, msg, row=None if row is None or (isinstance(row, float) and math.isnan(row))
                           else int(row), key=key, value=float(ne if near else abs(fe)), limit=float(nb if near else fb),
