@@ -123,7 +123,7 @@ def _check_pairs(df: pd.DataFrame, src: str) -> None:
 
 def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solver = solve_formula,
                  solver_name: str = "formula", waveforms: bool = True,
-                 couplings: pd.DataFrame | None = None) -> Review:
+                 couplings: pd.DataFrame | None = None, band: bool = True) -> Review:
     src = traces.source
     df = traces.frame.copy()
     # layers
@@ -182,9 +182,9 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     results = solver(xs)
     seg = _segment_table(df, codes, xs, results)
     # fabrication band: each cross-section re-solved at its tolerance limits (sicheck.physics.fab_band)
-    band = tolerance_band(xs, results, solver, fab_tolerances(rules))
-    for name, values in band_columns(band).items():
-        seg[name] = values[codes]
+    if band:          # off (review --no-band): no band columns, so tolerance-band has nothing to check
+        for name, values in band_columns(tolerance_band(xs, results, solver, fab_tolerances(rules))).items():
+            seg[name] = values[codes]
     seg["vias"] = df["vias"].to_numpy(float) if "vias" in df else 0.0
     _add_loss(seg, stackup, xs, results, codes, solver)
     for c, m in given.items():
