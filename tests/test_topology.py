@@ -230,3 +230,13 @@ def test_class_driver_end_to_end(run, board, tmp_path):
     tr, st, rl = board(text, rules='[[net_class]]\nname = "BUS"\nmatch = ["BUS"]\ndriver = [3]\n')
     code, out, err = run("review", tr, "--stackup", st, "--rules", rl)
     assert code == 2 and "driver" in err and "Traceback" not in err
+
+
+def test_json_topology_of_a_tree(run, board, tmp_path):
+    data = _review_json(run, board, tmp_path, HEAD + TREE)
+    t = data["nets"][0]["topology"]
+    assert t["driver"] == "U1.1" and [r["node"] for r in t["receivers"]] == ["U2.1", "U3.1"]
+    assert t["receivers"][0]["length_mm"] == pytest.approx(70.0) and t["open_ends"] == ["TP7"]
+    assert {(s["node"], s["end"], s["length_mm"]) for s in t["stubs"]} == {("M", "TP7", 12.0), ("T", "U3.1", 30.0)}
+    plain = _review_json(run, board, tmp_path, "net,layer,length,width,rise_time\nA,L1,60mm,0.3mm,300ps\n")
+    assert "topology" not in plain["nets"][0]

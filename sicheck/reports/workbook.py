@@ -269,6 +269,10 @@ def fab_band_text(rules) -> str:
     return (f"{describe(tolerances(rules))} ([fabrication]); each segment's band is on the Segments sheet")
 
 
+def _band_line(rv: Review) -> str:
+    return fab_band_text(rv.rules) if "z_min_ohm" in rv.segments.columns else "not computed (review --no-band)"
+
+
 def _summary(book: Book, rv: Review):
     counts = rv.counts
     nets = rv.nets
@@ -278,7 +282,7 @@ def _summary(book: Book, rv: Review):
         ("Trace list", rv.traces_source),
         ("Rule sets", "; ".join(rv.rules.sources)),
         ("Impedance solver", rv.solver),
-        ("Fabrication tolerances", fab_band_text(rv.rules)),
+        ("Fabrication tolerances", _band_line(rv)),
         ("sicheck version", __version__),
         ("Generated", date.today().isoformat()),
         ("", ""),
