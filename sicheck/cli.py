@@ -72,12 +72,14 @@ def review(
                                                                    "their severity but do not fail the review."),
     markdown: Optional[Path] = typer.Option(None, "--markdown", help="Short Markdown summary to write (for a CI "
                                                                      "page or a pull-request comment)."),
+    no_band: bool = typer.Option(False, "--no-band", help="Skip the fabrication band (its extra solves: up to "
+                                                          "8x the field-solver time on a cold cache)."),
 ):
     """Review a board's trace list against its stackup; exit 1 when there are errors not waived."""
     from sicheck.review_cmd import run_review
     raise typer.Exit(run_review(traces, stackup, rules, out, json_out, solver, units, maps, sheet,
                                 no_cache=no_cache, previous=previous, waivers=waivers, change_pct=change_pct,
-                                markdown=markdown, coupling=coupling))
+                                markdown=markdown, coupling=coupling, band=not no_band))
 
 
 @app.command()

@@ -123,7 +123,7 @@ def _check_pairs(df: pd.DataFrame, src: str) -> None:
 
 def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solver = solve_formula,
                  solver_name: str = "formula", waveforms: bool = True,
-                 couplings: pd.DataFrame | None = None) -> Review:
+                 couplings: pd.DataFrame | None = None, band: bool = True) -> Review:
     src = traces.source
     df = traces.frame.copy()
     # layers
@@ -182,9 +182,9 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     results = solver(xs)
     seg = _segment_table(df, codes, xs, results)
     # fabrication band: each cross-section re-solved at its tolerance limits (sicheck.physics.fab_band)
-    band = tolerance_band(xs, results, solver, fab_tolerances(rules))
-    for name, values in band_columns(band).items():
-        seg[name] = values[codes]
+    if band:          # off (review --no-band): no band columns, so tolerance-band has nothing to check
+        for name, values in band_columns(tolerance_band(xs, results, solver, fab_tolerances(rules))).items():
+            seg[name] = values[codes]
     seg["vias"] = df["vias"].to_numpy(float) if "vias" in df else 0.0
     _add_loss(seg, stackup, xs, results, codes, solver)
     for c, m in given.items():
@@ -211,6 +211,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     from sicheck.topology import CHAIN_NOTE
     nets["topology_note"] = [topology[n].note if n in topology else (CHAIN_NOTE if k > 1 else "")
                              for n, k in zip(nets["net"], nets["segments"])]
+    nets["topology"] = [_topology_summary(topology[n]) if n in topology else None for n in nets["net"]]
     waves: dict = {}
     if waveforms:
         from sicheck.waveform_review import simulate_nets
@@ -256,9 +257,11 @@ def _topology(df: pd.DataFrame, seg: pd.DataFrame, rules: Rules, src: str) -> di
             for c in ("from", "to", "driver")}
     tops = {}
     if any(any(v) for v in cols.values()):
+        by_class = {c.name: c.driver for c in rules.classes if c.driver}
+        pats = {n: (c, by_class[c]) for n, c in zip(net, seg["net_class"]) if c in by_class}
         tops = topology.net_topologies(net.to_numpy(object), seg["row"].to_numpy(), cols["from"], cols["to"],
                                        cols["driver"], seg["length"].to_numpy(float), seg["delay"].to_numpy(float),
-                                       seg["load_pf_given"].to_numpy(bool), src)
+                                       seg["load_pf_given"].to_numpy(bool), src, pats)
     on = np.ones(len(seg), bool)
     step = np.arange(len(seg))                 # position along the main path (listed order for a chain)
     for ix, t in tops.values():
@@ -277,6 +280,14 @@ def _topology(df: pd.DataFrame, seg: pd.DataFrame, rules: Rules, src: str) -> di
     de[first] = True
     seg["on_path"], seg["driver_end"] = on, de
     return {n: t for n, (_, t) in tops.items()}
+
+
+def _topology_summary(t) -> dict:
+    """A net's tree for reports (lengths in m, delays in s)."""
+    return {"driver": t.driver, "driver_source": t.driver_source, "receivers": list(t.receivers),
+            "receiver_length": list(t.receiver_length), "receiver_delay": list(t.receiver_delay),
+            "open_ends": list(t.open_ends),
+            "stubs": [{"node": s.node, "end": s.end, "length": s.length, "delay": s.delay} for s in t.stubs]}
 
 
 def _add_loss(seg: pd.DataFrame, stackup: Stackup, xs, results, codes, solver: Solver) -> None:

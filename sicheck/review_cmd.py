@@ -11,7 +11,7 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
                solver: str, units: list[str] | None, maps: list[str] | None, sheet: str | None,
                quiet: bool = False, no_cache: bool = False, previous: Path | None = None,
                waivers: Path | None = None, change_pct: float | None = None,
-               markdown: Path | None = None, coupling: Path | None = None) -> int:
+               markdown: Path | None = None, coupling: Path | None = None, band: bool = True) -> int:
     from rich.console import Console
 
     from sicheck.reports.atomic import refuse_inputs, write_text_atomic
@@ -46,7 +46,7 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
     if coupling is not None:
         from sicheck.crosstalk_review import read_couplings
         cp = read_couplings(coupling, parse_units_option(units))
-    rv = build_review(tl, st, rs, solver_fn(solver, no_cache, not quiet), solver, couplings=cp)
+    rv = build_review(tl, st, rs, solver_fn(solver, no_cache, not quiet), solver, couplings=cp, band=band)
     if previous is not None or waivers is not None:
         from sicheck.signoff import CHANGE_PCT, sign_off
         rv.findings, rv.signoff = sign_off(rv.findings, prior, None if previous is None else str(previous), wv,

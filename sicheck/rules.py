@@ -49,10 +49,11 @@ class NetClass:
     freq: float | None = None          # where loss (and a dispersive dielectric) is evaluated
     params: dict = field(default_factory=dict, compare=False)   # per-class check parameters it sets (SI)
     origin: str = ""                   # "file, line n" where it was defined
+    driver: tuple[str, ...] = ()       # node-name patterns of the driver (nets with from/to; sicheck/topology.py)
 
     def __init__(self, name: str, match: tuple[str, ...] = (), rise_time=None, width=None, gap=None,
                  driver_ohm=None, load_pf=None, swing=None, freq=None, params: dict | None = None, origin: str = "",
-                 **class_params_set):
+                 driver: tuple[str, ...] = (), **class_params_set):
         # per-class check parameters may also be given by name (NetClass("CLK", z0=50), replace(c, z0=45))
         unknown = set(class_params_set) - set(class_params())
         if unknown:
@@ -61,7 +62,7 @@ class NetClass:
         merged.update({k: v for k, v in class_params_set.items() if v is not None})
         for k, v in (("name", name), ("match", tuple(match)), ("rise_time", rise_time), ("width", width),
                      ("gap", gap), ("driver_ohm", driver_ohm), ("load_pf", load_pf), ("swing", swing),
-                     ("freq", freq), ("params", merged), ("origin", origin)):
+                     ("freq", freq), ("params", merged), ("origin", origin), ("driver", tuple(driver))):
             object.__setattr__(self, k, v)
 
     def __getattr__(self, name: str):
@@ -225,7 +226,7 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
     if not isinstance(raw_classes, list):
         raise src.error("net_class must be written as [[net_class]] tables", "net_class")
     per_class = class_params()
-    class_keys = {"name", "match"} | set(CLASS_VALUES) | set(per_class)
+    class_keys = {"name", "match", "driver"} | set(CLASS_VALUES) | set(per_class)
     for i, c in enumerate(raw_classes):
         line = src.block("net_class", i)[0] + 1
         if not isinstance(c, dict):
@@ -253,7 +254,12 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
             match = [match]
         if not isinstance(match, list) or not all(isinstance(m, str) for m in match):
             raise src.error("'match' must be a list of net-name patterns", "match", "net_class", i)
-        kw: dict = {"name": name, "match": tuple(match), "origin": here}
+        driver = c.get("driver", [])
+        if isinstance(driver, str):
+            driver = [driver]
+        if not isinstance(driver, list) or not all(isinstance(m, str) and m.strip() for m in driver):
+            raise src.error("'driver' must be a list of node-name patterns (e.g. [\"U1.*\"])", "driver", "net_class", i)
+        kw: dict = {"name": name, "match": tuple(match), "origin": here, "driver": tuple(m.strip() for m in driver)}
         for key, kind in CLASS_VALUES.items():
             if key in c:
                 kw[key] = _class_value(src, key, kind, c[key], i)

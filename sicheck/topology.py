@@ -4,11 +4,12 @@ Pure table work (no files, no printing). With node names a net is a graph whose 
 segments; it must be a tree (a loop or a piece that does not connect is an input error naming the
 rows). Rooted at the driver, every segment gets a near node (toward the driver) and a far node:
 - the driver: the node the `driver` column names (any row of the net may carry it; rows that give
-  it must agree), else the first listed row's `from` (stated);
-- receivers: the leaves (one segment) other than the driver that are component pins, written
-  REF.PIN (`U3.7`, `J2.A11`), or whose segment gives `load_pf`; any other leaf (a bare test pad, a
-  via left open) is an open stub end. When no leaf qualifies, every leaf is taken as a receiver
-  (stated);
+  it must agree), else the one node matching the net class's `driver` patterns (`U1.*`), else the
+  first listed row's `from` (stated);
+- receivers: the component pins other than the driver, written REF.PIN (`U3.7`, `J2.A11`; a pin
+  passed through on a daisy chain too), and the leaves (one segment) whose segment gives
+  `load_pf`; any other leaf (a bare test pad, a via left open) is an open stub end. When nothing
+  qualifies, every leaf is taken as a receiver (stated);
 - the main path: driver to the receiver with the longest delay (ties: the receiver name first in
   sort order, so the result does not depend on the order rows are listed in);
 - stubs: what hangs off the main path at each of its nodes, measured along its longest route.
@@ -17,9 +18,10 @@ A net without node names is a chain: its rows in series in the order listed, dri
 
 from __future__ import annotations
 
+import fnmatch
 import re
 from dataclasses import dataclass
-from typing import Sequence
+from typing import Mapping, Sequence
 
 from sicheck.errors import InputError
 
@@ -80,8 +82,12 @@ def chain(lengths: Sequence[float], delays: Sequence[float]) -> Topology:
 
 
 def build(net: str, rows: Sequence[int], frm: Sequence[str], to: Sequence[str], driver: Sequence[str],
-          lengths: Sequence[float], delays: Sequence[float], load_given: Sequence[bool], src: str) -> Topology:
-    """The tree of one net whose rows name their nodes; InputError (file, row, column) when it is not one."""
+          lengths: Sequence[float], delays: Sequence[float], load_given: Sequence[bool], src: str,
+          driver_patterns: Sequence[str] = (), class_name: str = "") -> Topology:
+    """The tree of one net whose rows name their nodes; InputError (file, row, column) when it is not one.
+
+    driver_patterns: the net class's node-name globs for the driver (used when no row names one).
+    """
     n = len(rows)
     for i in range(n):
         for col, val in (("from", frm[i]), ("to", to[i])):
@@ -130,6 +136,14 @@ def build(net: str, rows: Sequence[int], frm: Sequence[str], to: Sequence[str], 
                              f"{', ...' if len(adj) > MAX_LISTED else ''})", file=src, row=int(rows[i]),
                              column="driver")
         source = f"driver '{root}' from the driver column"
+    elif driver_patterns and (hits := sorted(x for x in adj if any(fnmatch.fnmatchcase(x.upper(), p.upper())
+                                                                    for p in driver_patterns))):
+        if len(hits) > 1:
+            raise InputError(f"net '{net}': several nodes match net class '{class_name}' driver pattern "
+                             f"{', '.join(driver_patterns)}: {', '.join(hits[:MAX_LISTED])}; name the driver in a "
+                             "'driver' column", file=src, row=int(rows[0]), column="driver")
+        root = hits[0]
+        source = f"driver '{root}' from net class '{class_name}' (driver pattern {', '.join(driver_patterns)})"
     else:
         root = frm[0]
         source = f"driver '{root}' taken as the first row's 'from' (no driver given)"
@@ -162,7 +176,9 @@ def build(net: str, rows: Sequence[int], frm: Sequence[str], to: Sequence[str], 
         at_delay[far[i]] = at_delay[near[i]] + float(delays[i])
         at_length[far[i]] = at_length[near[i]] + float(lengths[i])
     leaves = sorted(x for x, e in adj.items() if len(e) == 1 and x != root)
-    rx = [x for x in leaves if PIN_RE.match(x) or load_given[seg_into[x]]]
+    # a pin passed through on the way (a daisy chain) receives too
+    through = sorted(x for x, e in adj.items() if len(e) > 1 and x != root and PIN_RE.match(x))
+    rx = [x for x in leaves if PIN_RE.match(x) or load_given[seg_into[x]]] + through
     note = source
     if not rx:
         rx = leaves
@@ -242,8 +258,12 @@ def has_nodes(frm: Sequence[str], to: Sequence[str]) -> bool:
 
 def net_topologies(net: Sequence[str], rows: Sequence[int], frm: Sequence[str], to: Sequence[str],
                    driver: Sequence[str], lengths: Sequence[float], delays: Sequence[float],
-                   load_given: Sequence[bool], src: str) -> dict[str, tuple[list[int], Topology]]:
-    """{net: (its positions in the inputs, in listed order; Topology)} for every net that names nodes."""
+                   load_given: Sequence[bool], src: str, driver_patterns: Mapping[str, tuple[str, str]] | None = None,
+                   ) -> dict[str, tuple[list[int], Topology]]:
+    """{net: (its positions in the inputs, in listed order; Topology)} for every net that names nodes.
+
+    driver_patterns: net -> (class name, its driver node patterns) where the net's class gives some.
+    """
     groups: dict[str, list[int]] = {}
     for k, name in enumerate(net):
         groups.setdefault(name, []).append(k)
@@ -258,6 +278,7 @@ def net_topologies(net: Sequence[str], rows: Sequence[int], frm: Sequence[str], 
                 raise InputError(f"net '{name}' names a driver but its rows give no 'from'/'to' nodes",
                                  file=src, row=int(rows[k]), column="driver")
             continue
+        cls_name, pats = (driver_patterns or {}).get(name, ("", ()))
         out[name] = (ix, build(name, [rows[k] for k in ix], f, t, d, [lengths[k] for k in ix],
-                               [delays[k] for k in ix], [bool(load_given[k]) for k in ix], src))
+                               [delays[k] for k in ix], [bool(load_given[k]) for k in ix], src, pats, cls_name))
     return out

@@ -180,3 +180,11 @@ def test_via_table_invariants(layers, kind, side):
     if kind == "backdrilled":             # the drilled side keeps at most the stackup's stub
         far = "BOT" if side == "top" else "TOP"
         assert (v.loc[v["stub_to"] == far, "stub_length"] <= 0.1e-3 + 1e-12).all()
+
+
+def test_via_stub_fails_on_a_blind_via_stub_with_advice_for_blind_vias():
+    seg = segments({"net": "B", "layer": "IN1", "row": 2, "freq": 50e9}, {"net": "B", "layer": "IN2", "row": 3,
+                                                                          "freq": 50e9})
+    fs = via_findings(seg, rules(), stackup('[vias]\nkind = "blind"\n'), "via-stub")
+    f = next(f for f in fs if f.layer == "IN1 → IN2")        # 0.27 mm above IN1 to TOP: 138.8 GHz < 3 x 50 GHz
+    assert "blind via" in f.message and "stub to TOP" in f.message and "Back-drill" not in f.message

@@ -209,3 +209,12 @@ def test_band_holds_the_nominal_and_grows_with_the_tolerances(w, h, er, kind, pa
     assert big.z_min[0] <= small.z_min[0] + 1e-9 and small.z_max[0] <= big.z_max[0] + 1e-9
     if pair:
         assert big.zdiff_min[0] <= big.zdiff[0] <= big.zdiff_max[0]
+
+
+def test_no_band_option_skips_the_band(board, run, tmp_path):
+    tr, st = board("net,layer,length,width,rise_time\nA,L1,30mm,0.2mm,300ps\n")
+    js = tmp_path / "r.json"
+    code, _, err = run("review", tr, "--stackup", st, "--solver", "formula", "--json", js, "--no-band")
+    assert code in (0, 1), err
+    (seg,) = json.loads(js.read_text())["segments"]
+    assert "z_min_ohm" not in seg and seg["z0_ohm"] > 0

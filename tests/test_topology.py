@@ -193,3 +193,50 @@ def test_pair_termination_ignores_a_neck_down_listed_first(run, board, tmp_path)
     for k in ("z_driver_end_ohm", "advice", "recommended_termination"):
         assert a[k] == b[k], k
     assert "ohm" in a["recommended_termination"]
+
+
+# ------------------------------------------------------------------ driver from the net class, pins passed through
+
+def test_class_driver_pattern_any_row_order():
+    rows = [("T", "U3.1", 30.0), ("M", "T", 20.0), ("U1.1", "M", 20.0), ("T", "U2.1", 30.0)]
+    t = build("N", [2, 3, 4, 5], [r[0] for r in rows], [r[1] for r in rows], [""] * 4, [r[2] * MM for r in rows],
+              [r[2] * PS_PER_MM for r in rows], [False] * 4, "t.csv", ("u1.*",), "BUS")
+    assert t.driver == "U1.1" and "net class 'BUS'" in t.driver_source and set(t.receivers) == {"U2.1", "U3.1"}
+    with pytest.raises(InputError, match="several nodes match"):
+        build("N", [2, 3, 4, 5], [r[0] for r in rows], [r[1] for r in rows], [""] * 4, [0.01] * 4, [1e-10] * 4,
+              [False] * 4, "t.csv", ("U*",), "BUS")
+    # no node matches: the first row's from, stated
+    t = build("N", [2, 3, 4, 5], [r[0] for r in rows], [r[1] for r in rows], [""] * 4, [0.01] * 4, [1e-10] * 4,
+              [False] * 4, "t.csv", ("Q9.*",), "BUS")
+    assert t.driver == "T" and "first row's 'from'" in t.driver_source
+
+
+def test_pin_passed_through_on_a_daisy_chain_receives():
+    # U1.1 -> U2.1 -> U3.1 (fly-by) and a test pad hanging off U3.1's far side
+    t = _tree([("U1.1", "U2.1", 30.0), ("U2.1", "U3.1", 30.0), ("U3.1", "TP1", 4.0)])
+    assert t.receivers == ("U3.1", "U2.1") and t.open_ends == ("TP1",)
+    assert [(s.node, s.end) for s in t.stubs] == [("U3.1", "TP1")]
+
+
+def test_class_driver_end_to_end(run, board, tmp_path):
+    text = HEAD + "".join(r for r in reversed(TREE.splitlines(True))).replace(",M,U1.1,", ",M,,")
+    assert ",M,U1.1," not in text          # no driver column value: the class pattern decides
+    tr, st, rl = board(text, rules='[[net_class]]\nname = "BUS"\nmatch = ["BUS"]\ndriver = ["U1.*"]\n')
+    js = tmp_path / "r.json"
+    code, out, err = run("review", tr, "--stackup", st, "--rules", rl, "--json", js)
+    assert code in (0, 1), err
+    n = json.loads(js.read_text())["nets"][0]
+    assert n["length_mm"] == pytest.approx(70.0) and n["simulation"]["topology"]["driver"] == "U1.1"
+    tr, st, rl = board(text, rules='[[net_class]]\nname = "BUS"\nmatch = ["BUS"]\ndriver = [3]\n')
+    code, out, err = run("review", tr, "--stackup", st, "--rules", rl)
+    assert code == 2 and "driver" in err and "Traceback" not in err
+
+
+def test_json_topology_of_a_tree(run, board, tmp_path):
+    data = _review_json(run, board, tmp_path, HEAD + TREE)
+    t = data["nets"][0]["topology"]
+    assert t["driver"] == "U1.1" and [r["node"] for r in t["receivers"]] == ["U2.1", "U3.1"]
+    assert t["receivers"][0]["length_mm"] == pytest.approx(70.0) and t["open_ends"] == ["TP7"]
+    assert {(s["node"], s["end"], s["length_mm"]) for s in t["stubs"]} == {("M", "TP7", 12.0), ("T", "U3.1", 30.0)}
+    plain = _review_json(run, board, tmp_path, "net,layer,length,width,rise_time\nA,L1,60mm,0.3mm,300ps\n")
+    assert "topology" not in plain["nets"][0]

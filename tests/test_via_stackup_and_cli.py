@@ -132,3 +132,21 @@ def test_vias_follow_the_tree_when_rows_name_nodes(run, board, tmp_path):
     assert code in (0, 1), err
     (net,) = json.loads(js.read_text(encoding="utf-8"))["nets"]
     assert net["vias"] == 3            # rows in series would give 2 (TOP -> IN1, one escape at the last row)
+
+
+def test_demo_board_shows_the_via_and_return_path_findings(tmp_path):
+    # the demo board (not designed by these tests): its uplink dives TOP -> IN3 through through-vias, its
+    # SPI_DAC_SCK changes from TOP (over GND) to BOT (over +3V3)
+    from sicheck.resources import demo_dir
+    from sicheck.review import build_review
+    from sicheck.rules import load_rules
+    from sicheck.traces import read_traces
+    d = demo_dir()
+    rv = build_review(read_traces(d / "traces.csv"), load_stackup(d / "stackup.toml"), load_rules(d / "rules.toml"),
+                      waveforms=False)
+    got = {(f.rule, f.net, f.layer, f.severity) for f in rv.findings if f.rule in ("via-stub", "return-path")}
+    from sicheck.checks.engine import pair_label
+    assert ("via-stub", pair_label("UPLINK_TX_P", "UPLINK_TX_N"), "TOP → IN3", "warning") in got
+    assert ("return-path", "SPI_DAC_SCK", "TOP → BOT", "warning") in got
+    assert ("return-path", "", "BOT", "info") in got
+    assert any(r == "return-path" and s == "info" and n for r, n, _, s in got)      # GND on two planes

@@ -54,7 +54,7 @@ def return_path(ctx, chk):
     nets = _plane_nets(st)
     vias = vias_of(ctx)
     if vias is not None and not vias.empty:
-        for ident, label, first, rows in grouped(vias[vias["how"] != "export"], ctx):
+        for ident, label, first, rows in grouped(vias[vias["how"] != "export"]):
             a, b = references(st, first.from_layer), references(st, first.to_layer)
             if a is None or b is None or set(a) & set(b):
                 continue        # an end off the signal layers (escape pad on a plane), or a shared plane

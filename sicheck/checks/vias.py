@@ -30,7 +30,7 @@ def transition_label(a: str, b: str, how: str) -> str:
     return f"{a} → {b}" + (" (escape via)" if how == "escape" else "")
 
 
-def grouped(vias, ctx):
+def grouped(vias):
     """Vias grouped per net (a pair once) and per pair of layers (either direction), in trace-list order.
 
     Yields (ident, label, first via row, all via rows of the group)."""
@@ -46,6 +46,15 @@ def grouped(vias, ctx):
         legs = {r.net for r in rows}
         one = [r for r in rows if r.net == min(legs)] if len(legs) > 1 else rows
         yield ident, label, one[0], one
+
+
+def _advice(kind: str, far: str) -> str:
+    nearer = f"route on a layer nearer {far} so less barrel is left"
+    if kind == "through":
+        return f"Back-drill the via, use a blind via, or {nearer}"
+    if kind == "backdrilled":
+        return f"Drill deeper (a shorter residual stub in the stackup's [vias]), or {nearer}"
+    return f"Use a via that starts on a layer nearer the connected layers (buried or from the other side), or {nearer}"
 
 
 @check("via-stub", "warning", params=(MIN_RESONANCE_RATIO,))
@@ -71,7 +80,7 @@ def via_stub(ctx, chk):
     kind = ctx.stackup.vias.kind if ctx.stackup is not None else "through"
     cls_freq = {name: c.freq for name, c in ctx.classes.items() if c.freq}
     net_class = dict(zip(ctx.nets["net"], ctx.nets["net_class"]))        # mirrored partners included
-    for ident, label, first, rows in grouped(vias, ctx):
+    for ident, label, first, rows in grouped(vias):
         bad = [r for r in rows if np.isfinite(r.stub_resonance) and r.stub_resonance < ratio * r.freq]
         if not bad:
             continue
@@ -86,7 +95,6 @@ def via_stub(ctx, chk):
             f"{where}: {n} {what}{'s' if n > 1 else ''} leave{'s' if n == 1 else ''} a "
             f"{worst.stub_length * 1e3:.2f} mm stub to {worst.stub_to} (er {worst.stub_er:.2f}) resonating at "
             f"{worst.stub_resonance * 1e-9:.1f} GHz, below {ratio:g} x the net's {worst.freq * 1e-9:.3g} GHz "
-            f"({fsrc}) = {ratio * worst.freq * 1e-9:.3g} GHz. Back-drill the via, use a blind via, or route on a "
-            f"layer nearer {worst.stub_to} so less barrel is left",
+            f"({fsrc}) = {ratio * worst.freq * 1e-9:.3g} GHz. {_advice(kind, worst.stub_to)}",
             row=int(worst.row), key=make_key(chk.id, ident, where), value=float(worst.stub_resonance * 1e-9),
             limit=float(ratio * worst.freq * 1e-9), unit="GHz")

@@ -130,6 +130,7 @@ def nets_json(nets) -> list[dict]:
         loss_inc = nets["waveform_loss"].tolist() if "waveform_loss" in nets.columns else [False] * n
     inputs = nets["waveform_inputs"].tolist() if "waveform_inputs" in nets.columns else [None] * n
     rx = nets["receivers"].tolist() if "receivers" in nets.columns else [None] * n
+    topo = nets["topology"].tolist() if "topology" in nets.columns else [None] * n
     xt = (_col(nets, "next_pct", 1, 4), _col(nets, "fext_pct", 1, 4)) if "next_pct" in nets.columns else None
     pair_skew_ps = round_sig(pair_skew(nets) * 1e12, 4)
     has_vias = "vias" in nets.columns       # via count and lowest stub resonance (review._add_vias)
@@ -170,6 +171,15 @@ def nets_json(nets) -> list[dict]:
         if has_vias:
             d["vias"] = n_vias[i]
             d["via_stub_resonance_ghz"] = f_stub[i]
+        if isinstance(topo[i], dict):       # the net's tree (rows with from/to)
+            t = topo[i]
+            d["topology"] = {"driver": t["driver"], "driver_source": t["driver_source"],
+                             "receivers": [{"node": r, "length_mm": _num(ln * 1e3), "delay_ps": _num(dl * 1e12)}
+                                           for r, ln, dl in zip(t["receivers"], t["receiver_length"],
+                                                                t["receiver_delay"])],
+                             "open_ends": t["open_ends"],
+                             "stubs": [{"node": s["node"], "end": s["end"], "length_mm": _num(s["length"] * 1e3),
+                                        "delay_ps": _num(s["delay"] * 1e12)} for s in t["stubs"]]}
         if isinstance(inputs[i], dict):
             d["simulation"] = inputs[i]      # every value the waveform simulation used, with its source
         if xt is not None:

@@ -269,6 +269,10 @@ def fab_band_text(rules) -> str:
     return (f"{describe(tolerances(rules))} ([fabrication]); each segment's band is on the Segments sheet")
 
 
+def _band_line(rv: Review) -> str:
+    return fab_band_text(rv.rules) if "z_min_ohm" in rv.segments.columns else "not computed (review --no-band)"
+
+
 def _summary(book: Book, rv: Review):
     counts = rv.counts
     nets = rv.nets
@@ -278,7 +282,7 @@ def _summary(book: Book, rv: Review):
         ("Trace list", rv.traces_source),
         ("Rule sets", "; ".join(rv.rules.sources)),
         ("Impedance solver", rv.solver),
-        ("Fabrication tolerances", fab_band_text(rv.rules)),
+        ("Fabrication tolerances", _band_line(rv)),
         ("sicheck version", __version__),
         ("Generated", date.today().isoformat()),
         ("", ""),
@@ -466,7 +470,7 @@ def _timing(book: Book, rv: Review):
 def _stackup(book: Book, rv: Review):
     cols = [("#", "0", 4), ("Type", None, 11), ("Name", None, 14), ("Kind", None, 9), ("Thickness [mm]", "0.0000", 13),
             ("er", "0.00", 7), ("Loss tangent", "0.0000", 11), ("Line type", None, 11), ("References", None, 18),
-            ("Below trace [mm]", "0.0000", 13), ("Above trace [mm]", "0.0000", 13)]
+            ("Below trace [mm]", "0.0000", 13), ("Above trace [mm]", "0.0000", 13), ("Plane net", None, 10)]
     sh = _Sheet(book, "Stackup", cols)
     sh.header()
     for l in rv.stackup.layers:
@@ -477,7 +481,10 @@ def _stackup(book: Book, rv: Review):
             below = sum(s.thickness for s in g.below) * 1e3
             above = sum(s.thickness for s in g.above) * 1e3
         sh.row([l.index + 1, l.type, l.name, l.kind, l.thickness * 1e3, l.er, l.loss_tangent if l.er else None,
-                kind, refs, below, above])
+                kind, refs, below, above, l.net if l.type == "plane" else None])
+    v = rv.stackup.vias          # the via construction ([vias]); a back-drilled stub in the thickness column
+    sh.row([None, "vias", "[vias]", v.kind, None if v.stub is None else v.stub * 1e3, None, None, None,
+            f"parts on the {v.component_side} side", None, None, None])
     sh.finish()
 
 def _rules(wb: Book, rv: Review):
