@@ -166,7 +166,7 @@ def parse_budget(text: str, option: str = "--crosstalk") -> float:
 
 def layer_crosstalk(st, layer: str, width: float | None, budget: float, solver: Solver, min_feature: float,
                     length: float | None, rise: float | None, far_budget: float | None = None) -> dict:
-    """`plan --crosstalk` for one signal layer: the spacing dict of the plan JSON (``far_budget``: default ``budget``)."""
+    """`plan --crosstalk` for one signal layer: the plan JSON's spacing dict (``far_budget``: default ``budget``)."""
     far_budget = budget if far_budget is None else far_budget
     if width is None:
         return {"budget_pct": budget * 100.0, "far_budget_pct": far_budget * 100.0, "spacing_mm": None,

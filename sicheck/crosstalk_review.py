@@ -30,6 +30,7 @@ from sicheck.physics.cross_section import CrossSection
 from sicheck.physics.line_result import LineResult
 
 ANY_NEIGHBOUR = "any neighbour at the class spacing"
+TRACE_LIST_NEIGHBOUR = "the nearest neighbour (trace-list spacing)"
 Solver = Callable[[list[CrossSection]], list[LineResult]]
 
 
@@ -163,7 +164,7 @@ def add_segment_crosstalk(seg: pd.DataFrame, df: pd.DataFrame, rules, stackup, s
     sections = solve_couplings(stackup, keys, solver)
     seg["spacing"] = sp
     seg["parallel"] = np.where(has, par, np.nan)
-    seg["xt_aggressor"] = np.where(has, np.where(from_class, ANY_NEIGHBOUR, "the nearest neighbour (trace-list spacing)"), "")
+    seg["xt_aggressor"] = np.where(has, np.where(from_class, ANY_NEIGHBOUR, TRACE_LIST_NEIGHBOUR), "")
     i = _lookup(sections, seg["layer"].to_numpy(), seg["width"].to_numpy(float), sp)
     ok = has & (i >= 0)
     kb = np.where(ok, sections["kb"].to_numpy()[np.maximum(i, 0)], np.nan)
@@ -302,8 +303,9 @@ def add_waves(tables: CrosstalkTables | None, seg: pd.DataFrame, rules, max_wave
                                 float(rise), swing, r_aggr, End(r=r_victim), End(c=c_victim), End(c=c_aggr))
         near = float(wv.victim_near[np.argmax(np.abs(wv.victim_near))])
         far = float(wv.victim_far[np.argmax(np.abs(wv.victim_far))])
-        tables.waves.append({"victim": victim, "aggressor": aggr, "layer": layer, "width": float(w), "spacing": float(sp),
-                             "length": float(length), "rise": float(rise), "swing": swing, "aggressor_driver_ohm": r_aggr,
-                             "victim_driver_ohm": r_victim, "victim_load": c_victim, "aggressor_load": c_aggr,
+        tables.waves.append({"victim": victim, "aggressor": aggr, "layer": layer, "width": float(w),
+                             "spacing": float(sp), "length": float(length), "rise": float(rise), "swing": swing,
+                             "aggressor_driver_ohm": r_aggr, "victim_driver_ohm": r_victim, "victim_load": c_victim,
+                             "aggressor_load": c_aggr,
                              "near_peak_v": near, "far_peak_v": far, "t": wv.t, "near": wv.victim_near,
                              "far": wv.victim_far})

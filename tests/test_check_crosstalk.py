@@ -7,9 +7,8 @@ import pytest
 
 from check_tables import cls, rules, segments
 from sicheck.checks import ReviewContext, by_id, run_checks
-from sicheck.crosstalk_review import ANY_NEIGHBOUR, CrosstalkTables
+from sicheck.crosstalk_review import ANY_NEIGHBOUR, TRACE_LIST_NEIGHBOUR as NEIGHBOUR, CrosstalkTables
 
-NEIGHBOUR = "the nearest neighbour (trace-list spacing)"
 
 
 def _seg(*figures):

@@ -40,7 +40,8 @@ def crosstalk_json(tables) -> dict:
     waves = [{"victim": w["victim"], "aggressor": w["aggressor"], "layer": w["layer"],
               "spacing_mm": _num(w["spacing"] * 1e3), "length_mm": _num(w["length"] * 1e3),
               "rise_ps": _num(w["rise"] * 1e12), "swing_v": _num(w["swing"]),
-              "aggressor_driver_ohm": _num(w["aggressor_driver_ohm"]), "victim_driver_ohm": _num(w["victim_driver_ohm"]),
+              "aggressor_driver_ohm": _num(w["aggressor_driver_ohm"]),
+              "victim_driver_ohm": _num(w["victim_driver_ohm"]),
               "victim_load_pf": _num(w["victim_load"] * 1e12), "aggressor_load_pf": _num(w["aggressor_load"] * 1e12),
               "near_peak_mv": _num(w["near_peak_v"] * 1e3), "far_peak_mv": _num(w["far_peak_v"] * 1e3)}
              for w in getattr(tables, "waves", [])]
