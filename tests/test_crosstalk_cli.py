@@ -179,6 +179,7 @@ def test_review_with_class_spacing_and_coupling_file(run, board, tmp_path):
                          "--json", js, "--out", xl)
     assert code in (0, 1), err
     d = json.loads(js.read_text())
+    assert "crosstalk: 3 nets; worst NEXT" in out          # CLK1, SLOW, QUIET (its coupling rows); LONE has none
     seg = {(s["net"], s["layer"]): s for s in d["segments"]}
     assert seg[("CLK1", "L1")]["spacing_mm"] == pytest.approx(0.2)        # the class spacing
     assert seg[("SLOW", "L1")]["spacing_mm"] == pytest.approx(0.6)        # the trace list's own

@@ -52,6 +52,11 @@ def print_summary(rv: Review, console: Console, worst: int = 10) -> None:
     counts = rv.net_counts        # a pair counts once
     console.print(f"nets: {counts['not-needed']} lumped, {counts['recommended']} termination recommended, "
                   f"{counts['required']} termination required")
+    if "next_pct" in nets.columns and nets["next_pct"].notna().any():      # crosstalk inputs given
+        x = nets[nets["next_pct"].notna()]
+        ne, fe = x.loc[x["next_pct"].idxmax()], x.loc[x["fext_pct"].abs().idxmax()]
+        console.print(f"crosstalk: {len(x)} nets; worst NEXT {ne['next_pct']:.2f} % {escape(ne['net'])}, "
+                      f"FEXT {fe['fext_pct']:+.2f} % {escape(fe['net'])}")
 
     need = nets[nets["termination"] != "not-needed"].sort_values("td_over_tr", ascending=False)
     # a pair is shown once, by its longer leg
