@@ -205,7 +205,8 @@ def plan(
     no_cache: bool = typer.Option(False, "--no-cache", help="Do not use the field-solver cache."),
     as_json: bool = typer.Option(False, "--json", help="Print one JSON object on standard output."),
     out: Optional[Path] = typer.Option(None, "--out", "-o", help="Plan workbook to write (.xlsx)."),
-    crosstalk: Optional[str] = typer.Option(None, "--crosstalk", help="Crosstalk budget, e.g. 3%: the smallest "
+    crosstalk: Optional[str] = typer.Option(None, "--crosstalk", help="Crosstalk budget, e.g. 3%, or 'rules' (the "
+                                                                      "rules' max_next_pct/max_fext_pct): the smallest "
                                                                       "spacing per layer for the first --z0 width."),
     coupled_length: Optional[str] = typer.Option(None, "--coupled-length", help="Crosstalk: coupled length for "
                                                                                 "the far-end budget, e.g. 50mm."),

@@ -152,7 +152,7 @@ def spacing_for_budget(make_pair: Callable[[float], CrossSection], layer: str, w
 
 
 def parse_budget(text: str, option: str = "--crosstalk") -> float:
-    """'3%' or '3' -> 0.03 (a percentage of the aggressor's step)."""
+    """'3%' or '3' -> 0.03 (a percentage of the aggressor's step); `rules` is handled by the caller."""
     from sicheck.errors import InputError
     t = str(text).strip().rstrip("%").strip()
     try:
@@ -165,17 +165,19 @@ def parse_budget(text: str, option: str = "--crosstalk") -> float:
 
 
 def layer_crosstalk(st, layer: str, width: float | None, budget: float, solver: Solver, min_feature: float,
-                    length: float | None, rise: float | None) -> dict:
-    """`plan --crosstalk` for one signal layer: the spacing dict of the plan JSON."""
+                    length: float | None, rise: float | None, far_budget: float | None = None) -> dict:
+    """`plan --crosstalk` for one signal layer: the spacing dict of the plan JSON (``far_budget``: default ``budget``)."""
+    far_budget = budget if far_budget is None else far_budget
     if width is None:
-        return {"budget_pct": budget * 100.0, "spacing_mm": None,
+        return {"budget_pct": budget * 100.0, "far_budget_pct": far_budget * 100.0, "spacing_mm": None,
                 "notes": ["no width on this layer for the first --z0 target, so no spacing"]}
     g = st.geometry(layer)
     h_scale = min(sum(s.thickness for s in g.below), sum(s.thickness for s in g.above) or 1.0)
     r = spacing_for_budget(lambda s: st.cross_section(layer, width, s), layer, width, h_scale, budget, solver,
-                           min_feature, length, rise)
+                           min_feature, length, rise, far_budget=far_budget)
     mm = (lambda v: None if v is None else v * 1e3)
-    return {"budget_pct": budget * 100.0, "width_mm": width * 1e3, "spacing_mm": mm(r.spacing),
+    return {"budget_pct": budget * 100.0, "far_budget_pct": far_budget * 100.0, "width_mm": width * 1e3,
+            "spacing_mm": mm(r.spacing),
             "spacing_for_next_mm": mm(r.spacing_next), "spacing_for_fext_mm": mm(r.spacing_fext),
             "kb": r.kb, "next_saturated_pct": None if r.kb is None else r.kb * 100.0,
             "fext_pct": None if r.fext is None or length is None else r.fext * 100.0,
@@ -190,7 +192,9 @@ def print_plan_crosstalk(con, plan: dict, fmt) -> None:
     first = next(L["crosstalk"] for L in plan["layers"] if "crosstalk" in L)
     far = (f"; far end at {first['coupled_length_mm']:g} mm coupled, {first['rise_ps']:g} ps"
            if first.get("coupled_length_mm") else "; near end only (give --coupled-length and --rise for the far end)")
-    t = Table(title=f"Spacing for crosstalk within {first['budget_pct']:g} %{far}", title_justify="left")
+    within = (f"{first['budget_pct']:g} %" if first["far_budget_pct"] == first["budget_pct"] else
+              f"{first['budget_pct']:g} % (near end), {first['far_budget_pct']:g} % (far end)")
+    t = Table(title=f"Spacing for crosstalk within {within}{far}", title_justify="left")
     for c in ("layer", "width mm", "spacing mm", "s/w", "for NEXT mm", "for FEXT mm", "NEXT sat %", "FEXT %"):
         t.add_column(c)
     for L in plan["layers"]:

@@ -204,8 +204,11 @@ def prepare_couplings(couplings: pd.DataFrame, seg: pd.DataFrame, stackup) -> pd
     src = couplings.attrs.get("source")
     labels = couplings.attrs.get("labels", {})
     names = {l.name.lower(): l.name for l in stackup.signal_layers}
-    widths = seg.groupby(["net", "layer"], sort=False)["width"].min().to_dict()
-    nets = set(seg["net"])
+    # a pair's partner listed only through its `pair` column is a net too: its leg has the same width
+    legs = pd.concat([seg[["net", "layer", "width"]],
+                      seg.loc[seg["pair"] != "", ["pair", "layer", "width"]].rename(columns={"pair": "net"})])
+    widths = legs.groupby(["net", "layer"], sort=False)["width"].min().to_dict()
+    nets = set(legs["net"])
     lay, wid = [], []
     for r in couplings.itertuples(index=False):
         layer = names.get(r.layer.lower())

@@ -65,7 +65,7 @@ def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str
     if solver not in ("field", "formula"):
         raise InputError("--solver must be 'field' or 'formula' for plan")
     solve = solver_fn(solver, no_cache, show_progress=False)
-    xt_opts = _crosstalk_options(crosstalk, coupled_length, rise, z0)
+    xt_opts = _crosstalk_options(crosstalk, coupled_length, rise, z0, rs)
     layers, findings = [], []
     for lay in st.signal_layers:
         singles = [synthesise(st, lay.name, z, "z0", solve, rule, rs.min_feature, rs.max_width) for z in z0]
@@ -90,7 +90,7 @@ def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str
         if xt_opts is not None:
             from sicheck.crosstalk_plan import layer_crosstalk
             entry["crosstalk"] = layer_crosstalk(st, lay.name, singles[0].width, xt_opts[0], solve, rs.min_feature,
-                                                 xt_opts[1], xt_opts[2])
+                                                 xt_opts[1], xt_opts[2], xt_opts[3])
             findings += [{"rule": "plan", "severity": "warning", "layer": lay.name, "target":
                           f"crosstalk {xt_opts[0] * 100:g} %", "message": n} for n in entry["crosstalk"]["notes"]
                          if "within budget" not in n]
@@ -105,8 +105,11 @@ def build_plan(stackup: Path, z0: list[float], zdiff: list[float], gap_rule: str
             "findings": findings}
 
 
-def _crosstalk_options(crosstalk, coupled_length, rise, z0):
-    """(budget, coupled length m, rise s) for `plan --crosstalk`, or None without it."""
+def _crosstalk_options(crosstalk, coupled_length, rise, z0, rs):
+    """(near budget, coupled length m, rise s, far budget) for `plan --crosstalk`, or None without it.
+
+    `--crosstalk rules` takes the rules' [crosstalk] max_next_pct and max_fext_pct (the defaults: 5 % each).
+    """
     if crosstalk is None:
         if coupled_length is not None or rise is not None:
             raise InputError("--coupled-length and --rise go with --crosstalk")
@@ -117,8 +120,12 @@ def _crosstalk_options(crosstalk, coupled_length, rise, z0):
         raise InputError("--crosstalk spaces the width of the first --z0 target: give --z0")
     if (coupled_length is None) != (rise is None):
         raise InputError("the far-end budget needs both --coupled-length and --rise")
-    return (parse_budget(crosstalk), option_quantity(coupled_length, "--coupled-length", "length", 0.0, 3.0),
-            option_quantity(rise, "--rise", "time", *RISE_RANGE))
+    if crosstalk.strip().lower() == "rules":
+        near, far = rs.max_next_pct / 100.0, rs.max_fext_pct / 100.0
+    else:
+        near = far = parse_budget(crosstalk)
+    return (near, option_quantity(coupled_length, "--coupled-length", "length", 0.0, 3.0),
+            option_quantity(rise, "--rise", "time", *RISE_RANGE), far)
 
 
 def run_plan(stackup, z0, zdiff, gap_rule, freqs, solver, rules, no_cache, as_json, out, crosstalk=None,

@@ -96,6 +96,26 @@ def test_plan_crosstalk_with_the_field_solver(run, board, tmp_path, monkeypatch)
     assert kb_of(r) == pytest.approx(0.02, rel=0.006)
 
 
+def test_plan_crosstalk_budgets_from_the_rules(run, board, tmp_path):
+    _, st = board("net,layer,length\n")
+    rules = tmp_path / "xt.toml"
+    rules.write_text("[crosstalk]\nmax_next_pct = 4\nmax_fext_pct = 2\n")
+    code, out, _ = run("plan", st, "--z0", "50", "--crosstalk", "rules", "--rules", rules, "--coupled-length", "50mm",
+                       "--rise", "200ps", "--solver", "formula", "--json")
+    assert code == 0, out
+    plan = json.loads(out)
+    stack = load_stackup(st)
+    for L in plan["layers"]:
+        x = L["crosstalk"]
+        assert (x["budget_pct"], x["far_budget_pct"]) == (4, 2)
+        r = solve_formula([stack.cross_section(L["layer"], x["width_mm"] * 1e-3, x["spacing_mm"] * 1e-3)])[0]
+        k = xt.coupling_from_modes(r.z_even, r.z_odd, r.eps_even, r.eps_odd)
+        assert float(k.kb) <= 0.04 * 1.005
+        assert abs(float(xt.fext_fraction(k.kf, 0.05, k.delay_per_m, 200e-12))) <= 0.02 * 1.005
+    assert json.loads(run("plan", st, "--z0", "50", "--crosstalk", "rules", "--solver", "formula",
+                          "--json")[1])["layers"][0]["crosstalk"]["budget_pct"] == 5        # the shipped default
+
+
 def test_plan_crosstalk_errors(run, board):
     _, st = board("net,layer,length\n")
     assert run("plan", st, "--zdiff", "100", "--crosstalk", "3%")[0] == 2          # needs a --z0 width
@@ -254,3 +274,18 @@ def test_semicolons_mils_decimal_commas_and_hostile_names_in_the_coupling_file(r
     cells = [cell for row in wb["Couplings"].iter_rows(min_row=2) for cell in row if cell.value in ("=CLK", "@VICTIM")]
     assert len(cells) == 2 and all(cell.data_type == "s" for cell in cells)
     assert any(f["rule"] == "crosstalk" and f["net"] == "@VICTIM" for f in d["findings"])
+
+
+def test_coupling_file_victim_may_be_a_pair_leg_listed_through_its_partner(run, board, tmp_path):
+    tr, st = board("net,pair,layer,length [mm],width [mm],gap [mm],rise_time\nD_P,D_N,L1,40,0.15,0.15,100ps\n"
+                   "CLK,,L1,40,0.15,,100ps\n")
+    cp = tmp_path / "c.csv"
+    cp.write_text("victim,aggressor,layer,spacing [mm],length [mm]\nD_N,CLK,L1,0.1,40\n")
+    js = tmp_path / "r.json"
+    code, _, err = run("review", tr, "--stackup", st, "--coupling", cp, "--solver", "formula", "--json", js)
+    assert code in (0, 1), err
+    d = json.loads(js.read_text())
+    (c,) = d["crosstalk"]["couplings"]
+    assert c["width_mm"] == pytest.approx(0.15) and c["edge_from"] == "aggressor"
+    net = [n for n in d["nets"] if n["net"] == "D_N"][0]
+    assert net["listed_via_partner"] and net["next_pct"] == pytest.approx(c["next_pct"], rel=1e-3)

@@ -10,6 +10,7 @@
 from __future__ import annotations
 
 import os
+import resource
 import sys
 import tempfile
 import time
@@ -19,6 +20,12 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
+
+
+def cpu() -> float:
+    """CPU seconds of this process and of its finished children (the field solver's process pool)."""
+    ch = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return time.process_time() + ch.ru_utime + ch.ru_stime
 
 
 def _coefficients() -> None:
@@ -56,11 +63,14 @@ def _review() -> None:
     build_review(tl, st, rs, solve, "auto")          # warm the cache
     times = {}
     for label, rules in (("with class spacing", rs), ("without (reference)", plain)):
-        t0, c0 = time.perf_counter(), time.process_time()
-        rv = build_review(tl, st, rules, solve, "auto")
-        times[label] = (time.perf_counter() - t0, time.process_time() - c0)
+        runs = []
+        for _ in range(3):             # the best of three: the machine may be shared
+            t0, c0 = time.perf_counter(), cpu()
+            rv = build_review(tl, st, rules, solve, "auto")
+            runs.append((time.perf_counter() - t0, cpu() - c0))
+        times[label] = min(runs)
         n = int(rv.nets["next_pct"].notna().sum()) if "next_pct" in rv.nets else 0
-        print(f"demo review {label}, warm cache: {times[label][0]:.2f} s wall, {times[label][1]:.2f} s CPU "
+        print(f"demo review {label}, warm cache, best of 3: {times[label][0]:.2f} s wall, {times[label][1]:.2f} s CPU "
               f"({n} nets with a crosstalk figure)")
     a, b = times["with class spacing"], times["without (reference)"]
     print(f"  ratio with/without: wall {a[0] / b[0]:.2f}, CPU {a[1] / b[1]:.2f}")
@@ -73,10 +83,10 @@ def _plan() -> None:
     for label, xt in (("plan alone (reference)", None), ("plan --crosstalk 3%", "3%")):
         with tempfile.TemporaryDirectory() as tmp:
             os.environ["SICHECK_CACHE_DIR"] = tmp
-            t0, c0 = time.perf_counter(), time.process_time()
+            t0, c0 = time.perf_counter(), cpu()
             plan = build_plan(demo_dir() / "stackup.toml", [50.0], [], "equal", ["1GHz"], "field", None, False,
                               crosstalk=xt)
-            times[label] = (time.perf_counter() - t0, time.process_time() - c0)
+            times[label] = (time.perf_counter() - t0, cpu() - c0)
         steps = sum(L.get("crosstalk", {}).get("solver_steps", 0) for L in plan["layers"])
         print(f"{label}, demo stackup, field solver, cold cache: {times[label][0]:.1f} s wall, "
               f"{times[label][1]:.1f} s CPU" + (f" ({steps} coupled solves over {len(plan['layers'])} layers)"
