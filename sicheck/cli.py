@@ -181,13 +181,18 @@ def line(
     swing: Optional[str] = typer.Option(None, "--swing", help="Crosstalk: aggressor driver swing, for the noise "
                                                               "in volts (with --driver-ohm)."),
     driver_ohm: Optional[str] = typer.Option(None, "--driver-ohm", help="Crosstalk: aggressor driver resistance."),
+    victim_ohm: Optional[str] = typer.Option(None, "--victim-ohm", help="Crosstalk with real ends: the victim's "
+                                                                        "driver resistance (default --driver-ohm)."),
+    load_pf: Optional[str] = typer.Option(None, "--load-pf", help="Crosstalk with real ends: receiver load at both "
+                                                                  "far ends (pF): the victim's noise peaks."),
 ):
     """Impedance, delay, L/C and loss of one cross-section; crosstalk with --spacing."""
     from sicheck.line_cmd import run_line
     run_line(kind.value, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er,
              length, solver, units, as_json, etch_factor=etch_factor, top_width=top_width, plot=plot, freq=freq,
              loss_tangent=loss_tangent, roughness=roughness, huray_radius=huray_radius, huray_ratio=huray_ratio,
-             mask_loss_tangent=mask_loss_tangent, spacing=spacing, rise=rise, swing=swing, driver_ohm=driver_ohm)
+             mask_loss_tangent=mask_loss_tangent, spacing=spacing, rise=rise, swing=swing, driver_ohm=driver_ohm,
+             victim_ohm=victim_ohm, load_pf=load_pf)
 
 
 @app.command()

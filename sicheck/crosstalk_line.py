@@ -6,7 +6,7 @@ the JSON keys and the printed rows. SI inside; mm, ps, pF, nH and % at the edge.
 
 from __future__ import annotations
 
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -89,6 +89,10 @@ def crosstalk_rows(d: dict) -> list[tuple[str, str]]:
     if "next_pct" in d:
         rows.append((f"NEXT over {d['coupled_length_mm']:g} mm", f"{d['next_pct']:.3f} %"))
         rows.append((f"FEXT over {d['coupled_length_mm']:g} mm", f"{d['fext_pct']:+.3f} %"))
+    if "real_ends" in d:
+        e = d["real_ends"]
+        rows.append(("with real ends", f"near {e['near_peak_mv']:+.1f} mV, far {e['far_peak_mv']:+.1f} mV (victim "
+                                       f"driver {e['victim_driver_ohm']:g} ohm, receivers {e['load_pf']:g} pF)"))
     if "next_v" in d:
         rows.append(("in volts", f"NEXT {d['next_v'] * 1e3:.1f} mV, FEXT {d['fext_v'] * 1e3:+.1f} mV of a "
                                  f"{d['launched_v']:.3f} V step"))
@@ -100,8 +104,20 @@ def crosstalk_rows(d: dict) -> list[tuple[str, str]]:
     return rows
 
 
-def parse_line_options(spacing, rise, swing, driver_ohm, units: str):
-    """(spacing m, rise s, swing V, driver ohm) from the command line, or InputError."""
+@dataclass(frozen=True)
+class LineXtOptions:
+    """`line`'s crosstalk options in SI (None: not given)."""
+
+    spacing: float | None
+    rise: float | None = None
+    swing: float | None = None
+    driver_ohm: float | None = None
+    victim_ohm: float | None = None
+    load_pf: float | None = None
+
+
+def parse_line_options(spacing, rise, swing, driver_ohm, units: str, victim_ohm=None, load_pf=None) -> LineXtOptions:
+    """The crosstalk options from the command line, or InputError."""
     s = option_quantity(spacing, "--spacing", "length", 10e-6, 25e-3, units, allow_zero=True)
     tr = option_quantity(rise, "--rise", "time", *RISE_RANGE)
     v = option_quantity(swing, "--swing", "voltage", *SWING_RANGE, default_unit="V")
@@ -111,11 +127,31 @@ def parse_line_options(spacing, rise, swing, driver_ohm, units: str):
         raise InputError("--rise, --swing and --driver-ohm go with --spacing (crosstalk to a neighbour)")
     if (v is None) != (rd is None):
         raise InputError("noise in volts needs both --swing and --driver-ohm")
-    return s, tr, v, rd
+    rv = option_quantity(victim_ohm, "--victim-ohm", "resistance", *DRIVER_RANGE, default_unit="ohm",
+                         allow_zero=True)
+    cl = option_quantity(load_pf, "--load-pf", "capacitance", 0.0, 1e-9, default_unit="pF", allow_zero=True)
+    if (rv is not None or cl is not None) and (cl is None or v is None or tr is None):
+        raise InputError("the waveforms with real ends need --load-pf with --spacing, --length, --rise, --swing "
+                         "and --driver-ohm (--victim-ohm: default --driver-ohm)")
+    return LineXtOptions(s, tr, v, rd, rd if rv is None and cl is not None else rv, cl)
 
 
-def line_crosstalk(xs, spacing, length, rise, swing, driver_ohm, solver: str, solve_one):
+def real_ends(d: dict, r: LineResult, length: float, o: LineXtOptions) -> dict:
+    """Victim noise peaks with real ends (sicheck.physics.coupled_wave): the aggressor's driver, the victim's
+    quiet driver at the near end, receivers of ``load_pf`` at both far ends."""
+    from sicheck.physics.coupled_wave import End, coupled_pair_waves
+    c = coupling_of(r)
+    w = coupled_pair_waves(float(c.ls), float(c.lm), float(c.cs), float(c.cm), length, o.rise, o.swing, o.driver_ohm,
+                           End(r=o.victim_ohm), End(c=o.load_pf), End(c=o.load_pf))
+    near = float(w.victim_near[np.argmax(np.abs(w.victim_near))])
+    far = float(w.victim_far[np.argmax(np.abs(w.victim_far))])
+    return {"victim_driver_ohm": o.victim_ohm, "load_pf": o.load_pf * 1e12, "near_peak_mv": near * 1e3,
+            "far_peak_mv": far * 1e3}
+
+
+def line_crosstalk(xs, o: LineXtOptions, length, solver: str, solve_one):
     """Solve the victim beside its aggressor: (isolated-line result, crosstalk dict)."""
+    spacing, rise, swing, driver_ohm = o.spacing, o.rise, o.swing, o.driver_ohm
     if xs.coupled:
         raise InputError("give --gap (a differential pair) or --spacing (crosstalk to a neighbour), not both")
     r = solve_one(replace(xs, gap=spacing), solver)
@@ -126,5 +162,9 @@ def line_crosstalk(xs, spacing, length, rise, swing, driver_ohm, solver: str, so
     d = crosstalk_dict(spacing, r, length, rise, swing, driver_ohm, formula)
     if not np.isfinite(d["kb"]):
         raise InputError("the coupled cross-section could not be solved at this spacing")
+    if o.load_pf is not None:
+        if length is None:
+            raise InputError("the waveforms with real ends need --length (the coupled length)")
+        d["real_ends"] = real_ends(d, r, length, o)
     # the closed forms name the single line's own model; the field solver solved it alongside the pair
     return (solve_one(xs, solver) if solver == "formula" else single_view(r)), d

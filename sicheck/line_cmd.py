@@ -183,9 +183,9 @@ def line_loss(xs: CrossSection, r: LineResult, solver: str, freq: float, rough) 
 def run_line(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask, mask_er, length,
              solver, units, as_json, etch_factor=None, top_width=None, plot=None, freq=None, loss_tangent=None,
              roughness=None, huray_radius=None, huray_ratio=None, mask_loss_tangent=None, spacing=None, rise=None,
-             swing=None, driver_ohm=None) -> None:
+             swing=None, driver_ohm=None, victim_ohm=None, load_pf=None) -> None:
     from sicheck.crosstalk_line import crosstalk_rows, line_crosstalk, parse_line_options
-    sp, tr, sw, rd = parse_line_options(spacing, rise, swing, driver_ohm, units)
+    xo = parse_line_options(spacing, rise, swing, driver_ohm, units, victim_ohm, load_pf)
     xs = build_cross_section(kind, width, thickness, er, height, below, above, er_below, er_above, gap, mask,
                              mask_er, units, etch_factor, top_width)
     _tand(loss_tangent, "--loss-tangent")
@@ -215,8 +215,8 @@ def run_line(kind, width, thickness, er, height, below, above, er_below, er_abov
         refuse_inputs(plot, [], "--plot")
     ln = _len(length, "--length", units, "length")
     xtalk = None
-    if sp is not None:
-        r, xtalk = line_crosstalk(xs, sp, ln, tr, sw, rd, solver, solve_one)
+    if xo.spacing is not None:
+        r, xtalk = line_crosstalk(xs, xo, ln, solver, solve_one)
     else:
         r = solve_one(xs, solver)
     d = line_dict(xs, r, ln, units)

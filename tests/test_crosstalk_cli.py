@@ -2,6 +2,7 @@
 
 import json
 
+import numpy as np
 import openpyxl
 import pytest
 
@@ -312,3 +313,24 @@ def test_coupling_file_victim_may_be_a_pair_leg_listed_through_its_partner(run, 
     assert c["width_mm"] == pytest.approx(0.15) and c["edge_from"] == "aggressor"
     net = [n for n in d["nets"] if n["net"] == "D_N"][0]
     assert net["listed_via_partner"] and net["next_pct"] == pytest.approx(c["next_pct"], rel=1e-3)
+
+
+def test_line_spacing_with_real_ends(run):
+    from sicheck.physics.coupled_wave import End, coupled_pair_waves
+    code, out, _ = run(*LINE, "--spacing", "0.2", "--length", "30", "--rise", "100ps", "--swing", "1V",
+                       "--driver-ohm", "25", "--victim-ohm", "10", "--load-pf", "3", "--json")
+    assert code == 0
+    d = json.loads(out)
+    e = d["real_ends"]
+    assert (e["victim_driver_ohm"], e["load_pf"]) == (10, 3)
+    # the same solution from the printed matrices (nH/mm = uH/m, pF/mm = nF/m)
+    L, C = d["l_matrix_nh_per_mm"], d["c_matrix_pf_per_mm"]
+    w = coupled_pair_waves(L[0][0] * 1e-6, L[0][1] * 1e-6, C[0][0] * 1e-9, -C[0][1] * 1e-9, 0.03, 100e-12, 1.0,
+                           25.0, End(r=10.0), End(c=3e-12), End(c=3e-12))
+    assert e["near_peak_mv"] == pytest.approx(1e3 * w.victim_near[np.argmax(np.abs(w.victim_near))], rel=1e-3)
+    assert e["far_peak_mv"] == pytest.approx(1e3 * w.victim_far[np.argmax(np.abs(w.victim_far))], rel=1e-3)
+    # unmatched ends: the far end sees more than the matched-end FEXT of the same step
+    assert abs(e["far_peak_mv"]) > abs(d["fext_v"]) * 1e3
+    for extra in (["--load-pf", "3"], ["--victim-ohm", "10"], ["--swing", "1V", "--driver-ohm", "25", "--load-pf", "-3"]):
+        code, _, err = run(*LINE, "--spacing", "0.2", "--length", "30", "--rise", "100ps", *extra)
+        assert code == 2 and ("--load-pf" in err or "--swing" in err)
