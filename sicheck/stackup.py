@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import re
 import tomllib
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from sicheck import plausible
@@ -58,6 +58,8 @@ class Stackup:
     layers: tuple[Layer, ...]
     source: str
     vias: ViaSpec = ViaSpec()          # how signal vias are built (the [vias] table)
+    # each signal layer's geometry, worked out once (checks ask per via and per segment)
+    _geometries: dict = field(default_factory=dict, init=False, compare=False, hash=False, repr=False)
 
     @property
     def signal_layers(self) -> list[Layer]:
@@ -74,7 +76,11 @@ class Stackup:
         return sum(l.thickness for l in self.layers)
 
     def geometry(self, name: str) -> "LayerGeometry":
-        return _geometry(self, self.layer(name))  # type: ignore[arg-type]
+        key = name.lower()
+        g = self._geometries.get(key)
+        if g is None:
+            g = self._geometries[key] = _geometry(self, self.layer(name))  # type: ignore[arg-type]
+        return g
 
     @property
     def dispersive(self) -> bool:
