@@ -48,6 +48,9 @@ RANGES: dict[str, Range] = {
     "driver_ohm": Range(0.0, 10e3, "ohm", "a driver's output resistance, 0 (ideal) to 10 kohm"),
     "via_count": Range(0.0, 1000.0, "", "vias on one routed segment; more than 1000 is a wrong column"),
     "load_pf": Range(0.0, 1e-9, "F", "a receiver's input capacitance, 0 to 1000 pF"),
+    "series_ohm": Range(0.0, 10e3, "ohm", "a resistor in series in a signal net: 0 ohm (a link) to 10 kohm"),
+    "series_farad": Range(1e-12, 100e-6, "F", "a capacitor in series in a signal net (AC coupling is about "
+                          "10 nF-1 uF, common practice): 1 pF to 100 uF"),
     "spacing": Range(10e-6, 25e-3, "m", "an edge-to-edge clearance from 10 um (finer than any board process) "
                      "to 25 mm (coupling there is nil)"),
     "parallel": Range(0.0, 3.0, "m", "a coupled run is no longer than a routed segment (3 m)", lo_open=True),

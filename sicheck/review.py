@@ -137,6 +137,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     df["layer"] = canon_layer.to_numpy()
     df = _resolve_classes(df, rules, src)
     df = check_group_column(df, rules.match_groups, src)
+    from sicheck.series_parts import join        # nets continuing through a series part: one net each
+    df = join(df, src)
     df["width"] = _class_value(df, rules, "width", "width")
     df["rise_time"] = _class_value(df, rules, "rise_time", "rise_time")
     df["gap"] = _class_value(df.assign(gap=np.where(df["pair"] != "", df["gap"], np.nan)), rules, "gap", "gap")
@@ -364,6 +366,9 @@ def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataF
         "xs": codes,
         "mirrored": False,
         "match_group": df["match_group"].to_numpy() if "match_group" in df.columns else "",
+        "routed_net": df["routed_net"].to_numpy() if "routed_net" in df.columns else df["net"].to_numpy(),
+        "part_ohm": df["part_ohm"].to_numpy(float) if "part_ohm" in df.columns else np.nan,
+        "part_farad": df["part_farad"].to_numpy(float) if "part_farad" in df.columns else np.nan,
     })
     seg["delay"] = seg["length"] * seg["delay_per_m"]
     return seg

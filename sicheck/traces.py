@@ -38,6 +38,9 @@ COLUMNS = {
     "from": (None, None, False),
     "to": (None, None, False),
     "driver": (None, None, False),
+    # a net continuing as another through a part in series (sicheck/series_parts.py): text, parsed there
+    "continues": (None, None, False),
+    "part": (None, None, False),
     "match_group": (None, None, False),         # a [[match_group]] of the rules (sicheck/skew.py)
     "vias": ("count", None, False),       # vias the export counts on the row, beyond layer changes (via_table)
 }

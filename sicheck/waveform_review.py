@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 from sicheck.physics.causal_line import LineLoss
+from sicheck.physics.line_network import Series
 from sicheck.physics.loss import NP_TO_DB, RHO_COPPER
 from sicheck.physics.termination_choice import Limits, choose
 from sicheck.rules import Rules
@@ -66,11 +67,11 @@ POOL_MIN_NETS = 400      # below this a process pool costs more than it saves
 
 def _choose_one(args):
     """One net's termination choice: (before, after) candidates, or the reason it cannot be simulated."""
-    z, td, rise, drv, swing, cap, limits, zd, losses, tree = args
+    z, td, rise, drv, swing, cap, limits, zd, losses, tree, parts = args
     parents, receivers, driver_end = tree if tree is not None else (None, None, None)
     try:
         before, after, _ = choose(z, td, rise, drv, swing, cap, limits, zdiff=zd, keep_waves=True, losses=losses,
-                                  parents=parents, receivers=receivers, driver_end=driver_end)
+                                  parents=parents, receivers=receivers, driver_end=driver_end, parts=parts)
     except ValueError as e:
         return str(e)
     return before, after
@@ -98,6 +99,20 @@ def run_jobs(jobs: list) -> list:
     with ProcessPoolExecutor(max_workers=n) as pool:
         for part in pool.map(_choose_chunk, chunks):
             out.extend(part)
+    return out
+
+
+def series_parts_of(ix, part_ohm, part_farad) -> dict:
+    """{segment (in the net's order): Series} for the parts a joined net has (sicheck/series_parts.py).
+
+    A capacitor is a coupling capacitor: its time constant is far longer than the window, so the
+    level the receiver settles to within it is taken with the capacitor passing the edge (dc_open False).
+    """
+    out = {}
+    for k, j in enumerate(ix):
+        if np.isfinite(part_ohm[j]):
+            c = float(part_farad[j]) if np.isfinite(part_farad[j]) else None
+            out[k] = Series(ohm=float(part_ohm[j]), farad=c, dc_open=False)
     return out
 
 
@@ -129,6 +144,8 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
     given = {c: (seg[f"{c}_given"].to_numpy(bool) if f"{c}_given" in seg.columns else np.zeros(len(seg), bool))
              for c in ("driver_ohm", "load_pf", "rise_time")}
     driver_end = seg["driver_end"].to_numpy(bool) if "driver_end" in seg.columns else None
+    part_ohm = seg["part_ohm"].to_numpy(float) if "part_ohm" in seg.columns else np.full(len(seg), np.nan)
+    part_farad = seg["part_farad"].to_numpy(float) if "part_farad" in seg.columns else np.full(len(seg), np.nan)
     done_pair: dict[frozenset, int] = {}
     partners: list[tuple[int, int]] = []
     jobs: list = []
@@ -233,7 +250,11 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
             used["topology"] = {"driver": topo.driver, "driver_source": topo.driver_source,
                                 "open_ends": list(topo.open_ends),
                                 "stubs": [{"node": b.node, "end": b.end, "length_mm": b.length * 1e3} for b in topo.stubs]}
-        jobs.append((i, (z, td, rise, drv, leg_swing, cap * 1e-12, limits, zd, losses, tree)))
+        parts = series_parts_of(ix, part_ohm, part_farad)
+        if parts:
+            used["series_parts"] = [{"after_row": int(seg["row"].iat[ix[k]]), "ohm": p.ohm,
+                                     "farad": p.farad} for k, p in parts.items()]
+        jobs.append((i, (z, td, rise, drv, leg_swing, cap * 1e-12, limits, zd, losses, tree, parts or None)))
         pending[i] = (net, used, has_loss, loss_db, float(arr["freq"][ix][0]), assumed)
 
     for i, result in run_jobs(jobs):

@@ -60,11 +60,18 @@ LEAK_S = 1e-12                 # siemens to ground at every node for the DC solv
 
 @dataclass(frozen=True)
 class Series:
-    """A part in series between two nodes: R + sL (+ 1/(sC) when farad is given)."""
+    """A part in series between two nodes: R + sL (+ 1/(sC) when farad is given).
+
+    dc_open: a capacitor is open at DC, so the level every node settles to is worked out with it
+    open. False for a coupling capacitor whose time constant (microseconds) is far longer than the
+    window simulated (nanoseconds): within the window it holds its working charge and passes the
+    edge, so the level the receiver settles to is the one with the capacitor shorted.
+    """
 
     ohm: float = 0.0
     henry: float = 0.0
     farad: float | None = None
+    dc_open: bool = True
 
     def __post_init__(self):
         if self.ohm < 0 or self.henry < 0 or (self.farad is not None and self.farad <= 0):
@@ -263,7 +270,7 @@ def _dc(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSet], swing:
         if isinstance(e, Line):
             r = dc_resistance(e)
         else:
-            r = None if e.farad is not None else e.ohm
+            r = None if (e.farad is not None and e.dc_open) else e.ohm
         if r is None:
             continue
         if r < SHORT_OHM:

@@ -30,11 +30,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from typing import Sequence
+from typing import Mapping, Sequence
 
 from sicheck.physics import eseries
 from sicheck.physics.causal_line import Line, LineLoss
-from sicheck.physics.line_network import Network, settle_window, simulate_network
+from sicheck.physics.line_network import Network, Series, settle_window, simulate_network
 from sicheck.physics.transient import RAMP_PER_RISE, Load, LoadSet, thevenin
 
 
@@ -113,19 +113,25 @@ def _decimate(wf, n=160):
 
 
 def tree_network(z: Sequence[float], td: Sequence[float], losses: Sequence[LineLoss | None],
-                 parents: Sequence[int]) -> tuple[Network, list[int]]:
+                 parents: Sequence[int], parts: Mapping[int, Series] | None = None) -> tuple[Network, list[int]]:
     """The lines as a tree rooted at the driver: line i starts at the far end of line parents[i] (-1: the
-    driver). Returns the network and each line's far-end node."""
+    driver). ``parts[i]``: a part in series at the far end of line i (what hangs there comes after it).
+    Returns the network and each line's far-end node."""
+    parts = parts or {}
     below: dict[int, list[int]] = {}
     for i, p in enumerate(parents):
         below.setdefault(int(p), []).append(i)
+    if any(not 0 <= i < len(z) for i in parts):
+        raise ValueError("a series part after a line that is not in the net")
     net = Network()
     node = {-1: 0}
+    after = {-1: 0}          # where what hangs at a line's far end starts: after its part, if any
     todo = [-1]
     while todo:
         p = todo.pop()
         for i in below.get(p, []):
-            node[i] = net.add(node[p], Line(float(z[i]), float(td[i]), losses[i]))
+            node[i] = net.add(after[p], Line(float(z[i]), float(td[i]), losses[i]))
+            after[i] = net.add(node[i], parts[i]) if i in parts else node[i]
             todo.append(i)
     if len(node) != len(z) + 1:
         raise ValueError("the lines' parents do not form a tree rooted at the driver")
@@ -141,7 +147,7 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
            limits: Limits, zdiff: float | None = None, keep_waves: bool = False,
            losses: Sequence[LineLoss | None] | None = None, parents: Sequence[int] | None = None,
            receivers: Sequence[tuple[int, float, str]] | None = None, driver_end: int | None = None,
-           ) -> tuple[Candidate, Candidate, list[Candidate]]:
+           parts: Mapping[int, Series] | None = None) -> tuple[Candidate, Candidate, list[Candidate]]:
     """(unterminated, recommended, all candidates simulated) for one net: a chain of lines, driver end first.
 
     ``losses``: one LineLoss (or None for a lossless section) per line; None: all lossless.
@@ -149,7 +155,8 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
     A tree: ``parents[i]`` is the line before line i toward the driver (-1 at the driver); ``receivers``
     (line, input capacitance F, name) names the line ending at each receiver, the main path's far end
     first (``load_cap`` is then unused); ``driver_end`` is the line whose Z the series value matches
-    (default: the first line on the way to the first receiver).
+    (default: the first line on the way to the first receiver). ``parts[i]``: a part in series at the
+    far end of line i (a resistor, or a coupling capacitor), part of the net in every candidate.
     """
     if losses is None:
         losses = [None] * len(z)
@@ -159,7 +166,7 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
         parents = list(range(-1, len(z) - 1))
     if receivers is None:
         receivers = [(len(z) - 1, load_cap, "receiver")]
-    net, far = tree_network(z, td, losses, parents)
+    net, far = tree_network(z, td, losses, parents, parts)
     main_line = receivers[0][0]
     path = [main_line]
     while parents[path[-1]] >= 0:

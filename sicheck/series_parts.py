@@ -1,0 +1,161 @@
+"""Nets that continue as other nets through a part in series (trace-list columns `continues`, `part`).
+
+Pure table work (no files, no printing). A row that gives `continues` (the net on the far side) and
+`part` (`100nF`, `22ohm`, `0ohm`) is where its net ends at the part. The nets so linked are joined
+into one net, named with the routed nets in order, driver side first ("A → B"); each row keeps its
+own routed net in the column `routed_net`, and the row before the part carries the part
+(`part_ohm`, `part_farad`) so the waveform stage puts it in the chain after that row.
+
+- Without from/to nodes the joined net is a chain: the first net's rows, then the next net's, each in
+  the order listed; the part follows the first net's last row, so `continues` goes on that row.
+- With from/to nodes the part joins the row's `to` node to the node where the next net begins (its
+  `driver` column, else its first row's `from`); that node is renamed to the row's `to` node so the
+  two nets make one tree.
+A loop of nets, a net continuing into two nets, two nets continuing into one, or `continues` naming
+a net not in the list is an input error naming the rows.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from sicheck import plausible
+from sicheck.errors import InputError
+from sicheck.units import QUANTITY_RE, UnitError, parse_number, unit_factor
+
+JOIN = " → "     # between routed net names in a joined net's name (cannot be confused with '/' or '&')
+
+
+def parse_part(text: str, src: str, row: int, column: str = "part") -> tuple[float, float | None]:
+    """'22ohm' -> (22.0, None); '100nF' -> (0.0, 1e-7). InputError naming the cell otherwise."""
+    m = QUANTITY_RE.match(text)
+    unit = m.group(2) if m else ""
+    if not m or not unit:
+        raise InputError(f"part '{text}' is not a resistor or capacitor value: write it with its unit, e.g. "
+                         "'22ohm', '0ohm' or '100nF'", file=src, row=row, column=column)
+    number = parse_number(m.group(1).replace(",", "."))
+    for dim, quantity in (("resistance", "series_ohm"), ("capacitance", "series_farad")):
+        try:
+            value = number * unit_factor(unit, dim)
+        except UnitError:
+            continue
+        if bad := plausible.check(quantity, value):
+            raise InputError(f"part '{text}': {bad}", file=src, row=row, column=column)
+        return (value, None) if dim == "resistance" else (0.0, value)
+    raise InputError(f"part '{text}': unit '{unit}' is neither a resistance (ohm, kohm) nor a capacitance "
+                     "(pF, nF, uF)", file=src, row=row, column=column)
+
+
+def join(df: pd.DataFrame, src: str) -> pd.DataFrame:
+    """The trace table with linked nets joined (see the module doc); unchanged (plus empty columns)
+    when no row gives `continues`."""
+    df = df.copy()
+    df["routed_net"] = df["net"].to_numpy()
+    df["part_ohm"] = np.nan
+    df["part_farad"] = np.nan
+    cont = df["continues"].to_numpy(object) if "continues" in df.columns else np.full(len(df), "", object)
+    part = df["part"].to_numpy(object) if "part" in df.columns else np.full(len(df), "", object)
+    rows = df["row"].to_numpy(int)
+    net = df["net"].to_numpy(object)
+    for k in range(len(df)):
+        if bool(cont[k]) != bool(part[k]):
+            col = "part" if cont[k] else "continues"
+            raise InputError(f"net '{net[k]}': 'continues' and 'part' go together (the net on the far side and "
+                             "the part between them, e.g. 100nF)", file=src, row=int(rows[k]), column=col)
+    links = [k for k in range(len(df)) if cont[k]]
+    if not links:
+        return df
+    known = set(net)
+    nxt: dict[str, int] = {}            # net -> the row (position) where it continues
+    into: dict[str, int] = {}
+    for k in links:
+        a, b = net[k], cont[k]
+        if b not in known:
+            raise InputError(f"net '{a}' continues as '{b}', which is not a net of the trace list", file=src,
+                             row=int(rows[k]), column="continues")
+        if a in nxt:
+            raise InputError(f"net '{a}' continues on two rows ({rows[nxt[a]]} and {rows[k]}): a net continues "
+                             "through one part", file=src, row=int(rows[k]), column="continues")
+        if b in into:
+            raise InputError(f"nets '{net[into[b]]}' (row {rows[into[b]]}) and '{a}' both continue as '{b}'",
+                             file=src, row=int(rows[k]), column="continues")
+        nxt[a], into[b] = k, k
+        ohm, farad = parse_part(str(part[k]), src, int(rows[k]))
+        df.iloc[k, df.columns.get_loc("part_ohm")] = ohm
+        df.iloc[k, df.columns.get_loc("part_farad")] = np.nan if farad is None else farad
+    # chains: start at a net nothing continues into; a loop has no such start
+    chains: list[list[str]] = []
+    seen: set[str] = set()
+    for a in nxt:
+        if a in into:
+            continue
+        chain = [a]
+        while chain[-1] in nxt:
+            chain.append(cont[nxt[chain[-1]]])
+        chains.append(chain)
+        seen.update(chain)
+    looped = [k for k in links if net[k] not in seen]
+    if looped:
+        raise InputError(f"rows {', '.join(str(rows[k]) for k in looped)} form a loop of 'continues' "
+                         f"({' → '.join(str(net[k]) for k in looped)} → back): a net cannot continue into itself",
+                         file=src, row=int(rows[looped[0]]), column="continues")
+
+    frm = df["from"].to_numpy(object).copy() if "from" in df.columns else None
+    to = df["to"].to_numpy(object).copy() if "to" in df.columns else None
+    drv = df["driver"].to_numpy(object).copy() if "driver" in df.columns else None
+    pair = df["pair"].to_numpy(object).copy()
+    name = net.copy()
+    rank = np.zeros(len(df), int)          # position along the chain (rows of the first net first)
+    for chain in chains:
+        joined = JOIN.join(chain)
+        members = [np.flatnonzero(net == n) for n in chain]
+        for step, ix in enumerate(members):
+            name[ix] = joined
+            rank[ix] = step
+        pairs = [str(pair[ix[0]]) for ix in members]
+        if any(pairs) and not all(pairs):
+            k = members[[bool(p) for p in pairs].index(False)][0]
+            raise InputError(f"'{joined}': some of its nets are pair legs and some are not; give 'pair' on "
+                             "every net of the chain or on none", file=src, row=int(rows[k]), column="pair")
+        if all(pairs):
+            for ix in members:
+                pair[ix] = JOIN.join(pairs)
+        with_nodes = [frm is not None and any(frm[ix]) for ix in members]
+        if any(with_nodes) and not all(with_nodes):
+            k = members[with_nodes.index(False)][0]
+            raise InputError(f"'{joined}': give 'from'/'to' nodes on every net of the chain or on none",
+                             file=src, row=int(rows[k]), column="from")
+        for step in range(len(chain) - 1):
+            k = nxt[chain[step]]
+            a_ix, b_ix = members[step], members[step + 1]
+            if not with_nodes[0]:
+                if k != a_ix[-1]:
+                    raise InputError(f"net '{chain[step]}' continues as '{chain[step + 1]}' on a row that is not "
+                                     f"its last (row {rows[a_ix[-1]]} is): without from/to the part follows the "
+                                     "net's last row", file=src, row=int(rows[k]), column="continues")
+                continue
+            end = str(to[k])
+            given = [str(drv[j]) for j in b_ix if drv is not None and drv[j]]
+            start = given[0] if given else str(frm[b_ix[0]])
+            if drv is not None:
+                drv[b_ix] = ""           # the joined net has one driver: the first net's
+            a_nodes = set(frm[a_ix]) | set(to[a_ix])
+            shared = sorted((set(frm[b_ix]) | set(to[b_ix])) & a_nodes - {start})
+            if shared:
+                raise InputError(f"nets '{chain[step]}' and '{chain[step + 1]}' both use node(s) "
+                                 f"{', '.join(shared)}: the nets of a chain are joined at the part only; rename "
+                                 "them", file=src, row=int(rows[b_ix[0]]), column="from")
+            for arr in (frm, to):
+                sub = arr[b_ix]
+                sub[sub == start] = end
+                arr[b_ix] = sub
+    df["net"] = name
+    df["pair"] = pair
+    if frm is not None:
+        df["from"], df["to"] = frm, to
+    if drv is not None:
+        df["driver"] = drv
+    first = pd.Series(np.arange(len(df))).groupby(name).transform("min").to_numpy()
+    order = np.lexsort((np.arange(len(df)), rank, first))
+    return df.iloc[order].reset_index(drop=True)
