@@ -9,8 +9,8 @@ own routed net in the column `routed_net`, and the row before the part carries t
 - Without from/to nodes the joined net is a chain: the first net's rows, then the next net's, each in
   the order listed; the part follows the first net's last row, so `continues` goes on that row.
 - With from/to nodes the part joins the row's `to` node to the node where the next net begins (its
-  `driver` column, else its first row's `from`); that node is renamed to the row's `to` node so the
-  two nets make one tree.
+  `driver` column, else its first row's `from`); the two become one node, named after both
+  ("C5.1 ~ C5.2"), so the two nets make one tree and the part's pins are not taken for receivers.
 A loop of nets, a net continuing into two nets, two nets continuing into one, or `continues` naming
 a net not in the list is an input error naming the rows.
 """
@@ -146,10 +146,12 @@ def join(df: pd.DataFrame, src: str) -> pd.DataFrame:
                 raise InputError(f"nets '{chain[step]}' and '{chain[step + 1]}' both use node(s) "
                                  f"{', '.join(shared)}: the nets of a chain are joined at the part only; rename "
                                  "them", file=src, row=int(rows[b_ix[0]]), column="from")
+            joint = f"{end} ~ {start}"     # the part's two pins as one node (not a REF.PIN: not a receiver)
             for arr in (frm, to):
-                sub = arr[b_ix]
-                sub[sub == start] = end
-                arr[b_ix] = sub
+                for ix, old in ((a_ix, end), (b_ix, start)):
+                    sub = arr[ix]
+                    sub[sub == old] = joint
+                    arr[ix] = sub
     df["net"] = name
     df["pair"] = pair
     if frm is not None:

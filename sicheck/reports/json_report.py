@@ -79,6 +79,8 @@ def segments_json(seg) -> list[dict]:
     row = [int(r) for r in row]
     xt = ((_col(seg, "spacing", 1e3), _col(seg, "parallel", 1e3), _col(seg, "next_pct", 1, 4),
            _col(seg, "fext_pct", 1, 4)) if "next_pct" in seg else None)       # crosstalk inputs given
+    joined = ((seg["routed_net"].tolist(), seg["part_ohm"].tolist(), seg["part_farad"].tolist())
+              if "routed_net" in seg.columns else None)
     out = []
     for i in range(len(seg)):
         d = {"row": row[i], "net": net[i], "layer": layer[i], "kind": kind[i],
@@ -102,6 +104,11 @@ def segments_json(seg) -> list[dict]:
             d["formula_z0_ohm"] = cols["formula_z_ohm"][i]
         if xt is not None:
             d.update(spacing_mm=xt[0][i], parallel_mm=xt[1][i], next_pct=xt[2][i], fext_pct=xt[3][i])
+        if joined is not None and joined[0][i] != net[i]:     # a net joined through a series part
+            d["routed_net"] = joined[0][i]
+            if joined[1][i] == joined[1][i]:
+                d["part_after"] = ({"ohm": joined[1][i]} if joined[2][i] != joined[2][i]
+                                   else {"farad": joined[2][i]})
         out.append(d)
     return out
 
