@@ -87,8 +87,10 @@ def via_stub(ctx, chk):
     kind = ctx.stackup.vias.kind if ctx.stackup is not None else "through"
     cls_freq = {name: c.freq for name, c in ctx.classes.items() if c.freq}
     net_class = dict(zip(ctx.nets["net"], ctx.nets["net_class"]))        # mirrored partners included
-    for ident, label, first, rows in grouped(vias):
-        bad = [r for r in rows if np.isfinite(r.stub_resonance) and r.stub_resonance < ratio * r.freq]
+    res, freq = vias["stub_resonance"].to_numpy(float), vias["freq"].to_numpy(float)
+    low = np.isfinite(res) & (res < ratio * freq)        # only the vias that resonate too low are grouped
+    for ident, label, first, rows in grouped(vias[low]):
+        bad = rows
         if not bad:
             continue
         worst = min(bad, key=lambda r: r.stub_resonance / r.freq)
