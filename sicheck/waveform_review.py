@@ -274,6 +274,9 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                          + ("" if after.meets else "; no scheme that fits a multi-drop net (series at the driver; "
                             f"parallel, Thevenin or RC at the far end of the main path, '{rx_used[0]['receiver']}') "
                             "meets the limits at every receiver"))
+        if "on_die" in used and not before.meets:
+            notes[i] += ("; terminated on the die, limits not met with it: only a series part at the driver was "
+                         "tried on top of it (no second parallel termination)")
         waves[net] = (before.wave, after.wave, before.metrics["v_final"] if before.wave else None)
     for i, j in partners:
         for c in cols:

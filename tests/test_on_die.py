@@ -138,6 +138,7 @@ Net;Layer;Length [mil];Width [mil];Rise Time;Pair;Gap [mil];Net Class
 LNK_P;L1;6000;5;150ps;LNK_N;6;
 ODT_P;L1;6000;5;150ps;ODT_N;6;
 "DQ;0";L1;5000;10;200ps;;;
+HOT1;L1;5000;10;200ps;;;
 """
 RULES = """\
 [[net_class]]
@@ -158,6 +159,12 @@ on_die_ohm = 51
 on_die_to = 0.75
 driver_on_die_ohm = 40
 swing = "1.5V"
+[[net_class]]
+name = "STRONG"
+match = ["HOT*"]
+z0 = 50
+on_die_ohm = 200
+driver_on_die_ohm = 8
 """
 
 
@@ -186,3 +193,18 @@ def test_review_proposes_no_external_part_for_on_die_classes(run, board, tmp_pat
     lengths = [f for f in data["findings"] if f["rule"] == "electrical-length"]
     assert any("terminated on the die" in f["message"] for f in lengths)
     assert not any("across the receiver" in f["message"] for f in lengths if "ODT" in f["net"])
+    # limits not met with the on-die termination: a series part at the driver on top of it, said so
+    hot = nets["HOT1"]
+    assert hot["termination_scheme"] == "series" and "with the on-die termination" in hot["recommended_termination"]
+    assert "only a series part at the driver" in hot["assumptions"]
+
+
+def test_on_die_sits_at_every_receiver_of_a_tree():
+    # driver -> 20 mm trunk -> T -> two 30 mm branches; on-die 50 ohm at both receivers
+    z, td, parents = [50.0, 50.0, 50.0], [120e-12, 180e-12, 180e-12], [-1, 0, 0]
+    rx = [(1, 2e-12, "U2.1"), (2, 2e-12, "U3.1")]
+    before, _, _ = choose(z, td, 0.3e-9, 25.0, 3.3, 0.0, Limits(), parents=parents, receivers=rx,
+                          on_die=(50.0, 0.0, "od"))
+    # DC: the driver into two 50 ohm terminations in parallel, 3.3 x 25 / (25 + 25) at each receiver
+    for r in before.receivers:
+        assert r["metrics"]["v_final"] == pytest.approx(3.3 * 25 / 50, rel=1e-3)
