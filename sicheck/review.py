@@ -206,6 +206,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     all_seg = pd.concat([seg, mirror], ignore_index=True) if len(mirror) else seg
     vias = _add_vias(all_seg, seg, stackup, topology)
     nets = _net_table(all_seg, rules)
+    from sicheck.on_die import mark_nets
+    nets = mark_nets(nets, rules)     # receivers terminated on the die: no external part proposed
     nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
     for partner, leg in zip(mirror["net"], mirror["pair"]):     # listed only through its pair: its leg's shape
         if leg in topology:

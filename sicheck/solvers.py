@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 from sicheck.errors import InputError
 
 SOLVERS = ("auto", "formula", "field")
@@ -34,7 +36,7 @@ def solver_fn(name: str, no_cache: bool = False, show_progress: bool = True):
                                          "'auto' uses the closed forms (use --solver field to force the field solver)")
             if chosen["closed"]:
                 return solve_formula(xs_list)
-        if not show_progress:
+        if not show_progress or not sys.stderr.isatty():     # a bar in a log or a pipe is only noise
             return solve_field_all(xs_list, use_cache=not no_cache)
         from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
         with Progress(TextColumn("field-solving cross-sections"), BarColumn(), MofNCompleteColumn(),

@@ -26,6 +26,7 @@ from sicheck.physics.causal_line import LineLoss
 from sicheck.physics.line_network import Series
 from sicheck.physics.loss import NP_TO_DB, RHO_COPPER
 from sicheck.physics.termination_choice import Limits, choose
+from sicheck.on_die import driver_on_die, on_die_for
 from sicheck.rules import Rules
 
 METRIC_KEYS = ("overshoot_pct", "ringback_pct", "settle_ns", "flight_ns")
@@ -67,11 +68,12 @@ POOL_MIN_NETS = 400      # below this a process pool costs more than it saves
 
 def _choose_one(args):
     """One net's termination choice: (before, after) candidates, or the reason it cannot be simulated."""
-    z, td, rise, drv, swing, cap, limits, zd, losses, tree, parts = args
+    z, td, rise, drv, swing, cap, limits, zd, losses, tree, on_die, parts = args
     parents, receivers, driver_end = tree if tree is not None else (None, None, None)
     try:
         before, after, _ = choose(z, td, rise, drv, swing, cap, limits, zdiff=zd, keep_waves=True, losses=losses,
-                                  parents=parents, receivers=receivers, driver_end=driver_end, parts=parts)
+                                  parents=parents, receivers=receivers, driver_end=driver_end, on_die=on_die,
+                                  parts=parts)
     except ValueError as e:
         return str(e)
     return before, after
@@ -171,6 +173,9 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         assumed = []
         drv = float(r["driver_ohm"])
         drv_src = _source(bool(given["driver_ohm"][ix[0]]), cls, "driver_ohm", "driver_ohm")
+        od, drv_od = on_die_for(rules, cls, bool(pair)), driver_on_die(rules, cls)
+        if drv_od is not None and not given["driver_ohm"][ix[0]]:
+            drv, drv_src = float(drv_od), f"net class '{cls.name}' driver_on_die_ohm"
         if np.isnan(drv):
             drv = rules.driver_ohm
             assumed.append(f"driver {drv:g} ohm")
@@ -246,6 +251,10 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                                "impedance from the DC resistance (copper resistivity over the trace section), "
                                "dielectric as a Djordjevic-Sarkar wideband loss tangent"},
         }
+        if od is not None:
+            used["on_die"] = {"ohm": od.ohm, "to_v": None if pair else od.volts, "simulated_ohm": od.sim_ohm,
+                              "source": od.source + (" (odd mode: half the differential value from each leg to the "
+                                                     "centre)" if pair else "")}
         if topo is not None:
             used["topology"] = {"driver": topo.driver, "driver_source": topo.driver_source,
                                 "open_ends": list(topo.open_ends),
@@ -254,7 +263,8 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         if parts:
             used["series_parts"] = [{"after_row": int(seg["row"].iat[ix[k]]), "ohm": p.ohm,
                                      "farad": p.farad} for k, p in parts.items()]
-        jobs.append((i, (z, td, rise, drv, leg_swing, cap * 1e-12, limits, zd, losses, tree, parts or None)))
+        od_sim = None if od is None else (od.sim_ohm, od.sim_volts, od.text)
+        jobs.append((i, (z, td, rise, drv, leg_swing, cap * 1e-12, limits, zd, losses, tree, od_sim, parts or None)))
         pending[i] = (net, used, has_loss, loss_db, float(arr["freq"][ix][0]), assumed)
 
     for i, result in run_jobs(jobs):
@@ -268,7 +278,9 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
             cols[f"before_{k}"][i] = before.metrics[k]
             cols[f"after_{k}"][i] = after.metrics[k]
         scheme[i] = after.scheme
-        part[i] = "no part: meets the limits as it is" if after.scheme == "none" else after.text
+        part[i] = ("no part: meets the limits as it is" if after.scheme == "none" else
+                   f"no external part: {after.text}" + ("" if after.meets else ", limits not met")
+                   if after.scheme == "on-die" else after.text)
         power[i] = after.power_w
         meets[i] = after.meets
         violations[i] = "; ".join(after.violations)
@@ -284,6 +296,9 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                          + ("" if after.meets else "; no scheme that fits a multi-drop net (series at the driver; "
                             f"parallel, Thevenin or RC at the far end of the main path, '{rx_used[0]['receiver']}') "
                             "meets the limits at every receiver"))
+        if "on_die" in used and not before.meets:
+            notes[i] += ("; terminated on the die, limits not met with it: only a series part at the driver was "
+                         "tried on top of it (no second parallel termination)")
         waves[net] = (before.wave, after.wave, before.metrics["v_final"] if before.wave else None)
     for i, j in partners:
         for c in cols:

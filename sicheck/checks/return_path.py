@@ -54,10 +54,15 @@ def return_path(ctx, chk):
     nets = _plane_nets(st)
     vias = vias_of(ctx)
     if vias is not None and not vias.empty:
-        for ident, label, first, rows in grouped(vias[vias["how"] != "export"]):
+        # only transitions between layers that share no plane are grouped (decided once per pair of layers)
+        moved: dict[tuple[str, str], bool] = {}
+        for a_name, b_name in set(zip(vias["from_layer"], vias["to_layer"])):
+            a, b = references(st, a_name), references(st, b_name)
+            moved[(a_name, b_name)] = not (a is None or b is None or set(a) & set(b))
+        keep = [how != "export" and moved[(x, y)]
+                for how, x, y in zip(vias["how"], vias["from_layer"], vias["to_layer"])]
+        for ident, label, first, rows in grouped(vias[keep]):
             a, b = references(st, first.from_layer), references(st, first.to_layer)
-            if a is None or b is None or set(a) & set(b):
-                continue        # an end off the signal layers (escape pad on a plane), or a shared plane
             where = transition_label(first.from_layer, first.to_layer, first.how)
             shared = sorted({nets[p] for p in a} & {nets[p] for p in b})
             n = sum(r.count for r in rows)

@@ -34,13 +34,20 @@ def grouped(vias):
     """Vias grouped per net (a pair once) and per pair of layers (either direction), in trace-list order.
 
     Yields (ident, label, first via row, all via rows of the group)."""
+    # plain lists and one name lookup per net: a large board has a via per layer change
+    rows = list(vias.itertuples(index=False))
+    names: dict[tuple, tuple[str, str]] = {}
     groups: dict[tuple, list] = {}
-    for r in vias.itertuples(index=False):
-        ident, label = (pair_id(r.net, r.pair), pair_label(r.net, r.pair)) if r.pair else (r.net, r.net)
-        key = (ident, r.how == "export", frozenset((r.from_layer.lower(), r.to_layer.lower())))
-        if key not in groups:
-            groups[key] = [ident, label, []]
-        groups[key][2].append(r)
+    for r, net, pair, how, a, b in zip(rows, vias["net"].tolist(), vias["pair"].tolist(), vias["how"].tolist(),
+                                      vias["from_layer"].str.lower().tolist(), vias["to_layer"].str.lower().tolist()):
+        named = names.get((net, pair))
+        if named is None:
+            named = names[(net, pair)] = (pair_id(net, pair), pair_label(net, pair)) if pair else (net, net)
+        key = (named[0], how == "export", (a, b) if a <= b else (b, a))
+        g = groups.get(key)
+        if g is None:
+            g = groups[key] = [named[0], named[1], []]
+        g[2].append(r)
     for ident, label, rows in groups.values():
         # a pair listed on both legs has each via twice: count one leg's
         legs = {r.net for r in rows}
@@ -80,8 +87,10 @@ def via_stub(ctx, chk):
     kind = ctx.stackup.vias.kind if ctx.stackup is not None else "through"
     cls_freq = {name: c.freq for name, c in ctx.classes.items() if c.freq}
     net_class = dict(zip(ctx.nets["net"], ctx.nets["net_class"]))        # mirrored partners included
-    for ident, label, first, rows in grouped(vias):
-        bad = [r for r in rows if np.isfinite(r.stub_resonance) and r.stub_resonance < ratio * r.freq]
+    res, freq = vias["stub_resonance"].to_numpy(float), vias["freq"].to_numpy(float)
+    low = np.isfinite(res) & (res < ratio * freq)        # only the vias that resonate too low are grouped
+    for ident, label, first, rows in grouped(vias[low]):
+        bad = rows
         if not bad:
             continue
         worst = min(bad, key=lambda r: r.stub_resonance / r.freq)

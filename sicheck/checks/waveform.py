@@ -24,6 +24,15 @@ PARAMS = (
           section="waveform", hi=1e6),
     Param("max_settle_ns", "number", None, "ns", "latest settling time accepted for the class", per_class=True,
           lo_open=False, hi=1e4),
+    # A receiver (or driver) terminated on the die (sicheck/on_die.py): simulated in its load, no external part.
+    Param("on_die_ohm", "number", None, "ohm", "receiver's on-die termination: differential for a pair, to "
+          "on_die_to for a single line (the class's interface standard; check against the parts used)",
+          per_class=True, lo=1.0, lo_open=False, hi=1e4),
+    Param("on_die_to", "number", 0.0, "V", "voltage a single line's on-die termination returns to (0: ground); "
+          "a pair's is across its legs", per_class=True, lo=-50.0, lo_open=False, hi=50.0),
+    Param("driver_on_die_ohm", "number", None, "ohm", "driver's output resistance with its on-die termination, "
+          "when it differs from driver_ohm (a trace-list driver_ohm still wins)", per_class=True, lo=1.0,
+          lo_open=False, hi=1e4),
     Param("max_nets", "int", None, "nets", "simulate at most this many nets (the longest first; unset: every net); the rest keep "
           "the first-order advice", section="waveform", hi=1e6),
 )

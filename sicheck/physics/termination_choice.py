@@ -147,7 +147,8 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
            limits: Limits, zdiff: float | None = None, keep_waves: bool = False,
            losses: Sequence[LineLoss | None] | None = None, parents: Sequence[int] | None = None,
            receivers: Sequence[tuple[int, float, str]] | None = None, driver_end: int | None = None,
-           parts: Mapping[int, Series] | None = None) -> tuple[Candidate, Candidate, list[Candidate]]:
+           on_die: tuple[float, float, str] | None = None, parts: Mapping[int, Series] | None = None,
+           ) -> tuple[Candidate, Candidate, list[Candidate]]:
     """(unterminated, recommended, all candidates simulated) for one net: a chain of lines, driver end first.
 
     ``losses``: one LineLoss (or None for a lossless section) per line; None: all lossless.
@@ -155,8 +156,13 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
     A tree: ``parents[i]`` is the line before line i toward the driver (-1 at the driver); ``receivers``
     (line, input capacitance F, name) names the line ending at each receiver, the main path's far end
     first (``load_cap`` is then unused); ``driver_end`` is the line whose Z the series value matches
-    (default: the first line on the way to the first receiver). ``parts[i]``: a part in series at the
-    far end of line i (a resistor, or a coupling capacitor), part of the net in every candidate.
+    (default: the first line on the way to the first receiver).
+    ``on_die``: (ohm, volts, text) of a termination on every receiver's die, as the simulated mode sees it
+    (a pair's differential R as R/2 to 0 V in the odd mode); it is part of the load, and the only
+    candidates are the net as it is and a series part at the driver (a second parallel termination
+    would load the line with both).
+    ``parts[i]``: a part in series at the far end of line i (a resistor, or a coupling capacitor), part of
+    the net in every candidate.
     """
     if losses is None:
         losses = [None] * len(z)
@@ -221,6 +227,20 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
         return out
 
     base = ("none", "unterminated", driver_ohm, Load(cap=load_cap), 0.0, {})
+    if on_die is not None:
+        r_od, v_od, od_text = on_die
+        others = {far[i]: LoadSet.of([Load(cap=c, end_ohm=r_od, end_volts=v_od)]) for i, c, _ in receivers[1:]}
+        od = Load(cap=load_cap, end_ohm=r_od, end_volts=v_od)
+        p_od = _power_parallel(swing, driver_ohm, r_od, v_od)
+        ideal = float(z[driver_end]) - driver_ohm
+        specs = [("on-die", od_text, driver_ohm, od, p_od, {})] + [
+            ("series", f"{r:g} ohm in series at the driver{' (each leg)' if zdiff is not None else ''}, with the "
+             "on-die termination", driver_ohm + r, od, _power_parallel(swing, driver_ohm + r, r_od, v_od),
+             {"series_ohm": r}) for r in (_neighbours(ideal) if ideal >= 1.0 else [])]
+        cands = stage(specs)
+        if cands[0].meets:
+            return cands[0], cands[0], cands[:1]
+        return cands[0], _pick(cands, cands[0]), cands
     if zdiff is not None:
         # odd mode: each leg sees Zodd; the differential resistor is R/2 from each leg to the centre
         specs = [base] + [("differential", f"{r:g} ohm across {rx_at}", driver_ohm,

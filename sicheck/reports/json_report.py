@@ -138,6 +138,7 @@ def nets_json(nets) -> list[dict]:
     inputs = nets["waveform_inputs"].tolist() if "waveform_inputs" in nets.columns else [None] * n
     rx = nets["receivers"].tolist() if "receivers" in nets.columns else [None] * n
     topo = nets["topology"].tolist() if "topology" in nets.columns else [None] * n
+    on_die = nets["on_die"].tolist() if "on_die" in nets.columns else [""] * n
     xt = (_col(nets, "next_pct", 1, 4), _col(nets, "fext_pct", 1, 4)) if "next_pct" in nets.columns else None
     pair_skew_ps = round_sig(pair_skew(nets) * 1e12, 4)
     has_vias = "vias" in nets.columns       # via count and lowest stub resonance (review._add_vias)
@@ -154,7 +155,8 @@ def nets_json(nets) -> list[dict]:
              "wavelength_at_knee_mm": c["wavelength_at_knee_mm"][i], "lumped_limit_mm": c["lumped_limit_mm"][i],
              "critical_length_mm": c["critical_length_mm"][i], "electrical": el[i], "termination": term[i],
              "series_ohm": series[i], "z_driver_end_ohm": c["z_driver_end_ohm"][i], "advice": advice[i] or None,
-             "listed_via_partner": mirrored[i], "pair_skew_ps": pair_skew_ps[i]}
+             "listed_via_partner": mirrored[i], "pair_skew_ps": pair_skew_ps[i],
+             "on_die": on_die[i] or None}      # the receiver's own termination (sicheck/on_die.py)
         if has_wave and isinstance(part[i], str) and part[i]:
             d["recommended_termination"] = part[i]
             d["termination_scheme"] = scheme[i]
