@@ -14,7 +14,7 @@ from openpyxl import Workbook
 
 OUT = Path(__file__).resolve().parent.parent / "demo_boards" / "harbor_lidar"
 HEADER = ["Net", "Layer", "Length [mm]", "Width [mm]", "Rise Time", "Pair", "Gap [mm]", "Net Class",
-          "Driver Ohm", "Load pF", "From", "To", "Driver"]
+          "Driver Ohm", "Load pF", "From", "To", "Driver", "Continues", "Part"]
 
 
 def rows() -> list[list]:
@@ -119,6 +119,18 @@ def rows() -> list[list]:
     seg("HEAD_SYNC_P", "IN6", 80.0, pair="HEAD_SYNC_N", cls="LVDS")
     seg("HEAD_SYNC_N", "IN6", 82.5, pair="HEAD_SYNC_P", cls="LVDS")
     # ---- end timing block ----
+
+    # ---- parts in series (continues/part: two routed nets reviewed as one) ----
+    # Return link to the lidar head, AC-coupled: 70 mm from the FPGA to 100 nF capacitors, then 4.9 mm to the
+    # connector. The shutter drive has its 22 ohm source resistor 5 mm from the driver, then 85 mm to the shutter driver.
+    for leg, other in (("P", "N"), ("N", "P")):
+        out.append([f"HEAD_LINK_{leg}", "IN3", 70.0, "", "", f"HEAD_LINK_{other}", "", "LVDS", "", "", "", "", "",
+                    f"HEAD_LINK_{leg}_C", "100nF"])
+        out.append([f"HEAD_LINK_{leg}_C", "TOP", 4.9, "", "", f"HEAD_LINK_{other}_C", "", "LVDS", "", 2.0, "", "",
+                    "", "", ""])
+    out.append(["SHUTTER_DRV_SRC", "TOP", 5.0, 0.15, "500ps", "", "", "", 12, "", "", "", "", "SHUTTER_DRV", "22ohm"])
+    out.append(["SHUTTER_DRV", "IN3", 85.0, 0.12, "500ps", "", "", "", "", 3.0, "", "", "", "", ""])
+    # ---- end parts in series ----
     return out
 
 
