@@ -266,6 +266,8 @@ def _topology(df: pd.DataFrame, seg: pd.DataFrame, rules: Rules, src: str) -> di
         tops = topology.net_topologies(net.to_numpy(object), seg["row"].to_numpy(), cols["from"], cols["to"],
                                        cols["driver"], seg["length"].to_numpy(float), seg["delay"].to_numpy(float),
                                        seg["load_pf_given"].to_numpy(bool), src, pats)
+        from sicheck.series_parts import check_part_side
+        check_part_side(tops, seg, cols["to"], src)
     on = np.ones(len(seg), bool)
     step = np.arange(len(seg))                 # position along the main path (listed order for a chain)
     for ix, t in tops.values():

@@ -161,3 +161,17 @@ def join(df: pd.DataFrame, src: str) -> pd.DataFrame:
     first = pd.Series(np.arange(len(df))).groupby(name).transform("min").to_numpy()
     order = np.lexsort((np.arange(len(df)), rank, first))
     return df.iloc[order].reset_index(drop=True)
+
+
+def check_part_side(tops: dict, seg: pd.DataFrame, to, src: str) -> None:
+    """With from/to: the part sits at its row's `to` node, so that node must be the row's far side from the
+    driver (else the part would be put on the driver's side of the row). InputError naming the row."""
+    if "part_ohm" not in seg.columns:
+        return
+    has = np.isfinite(seg["part_ohm"].to_numpy(float))
+    for net, (ix, t) in tops.items():
+        for k, j in enumerate(ix):
+            if has[j] and t.far[k] != to[j]:
+                raise InputError(f"'{net}': the part is at this row's 'to' node, but that end is toward the driver "
+                                 f"'{t.driver}'; list the row from the driver side (swap 'from' and 'to')",
+                                 file=src, row=int(seg["row"].iat[j]), column="to")

@@ -187,3 +187,12 @@ def test_input_errors_name_row_and_column(run, board, tmp_path, lines, row, colu
     code, _, err, _ = review(run, board, tmp_path, lines)
     assert code == 2, err
     assert word in err and f"row {row}" in err and column in err, err
+
+
+def test_part_on_the_driver_side_of_its_row_is_an_error(run, board, tmp_path):
+    head = "net;layer;length [mil];width [mil];rise_time;driver_ohm;load_pf;from;to;driver;continues;part\n"
+    lines = ["TX;L1;1200;14;60ps;40;;U1.1;V1;U1.1;;",
+             "TX;L1;1200;14;60ps;;;C5.1;V1;;TX_C;100nF",      # 'to' is V1, toward the driver
+             "TX_C;L1;193;14;60ps;;1;C5.2;U2.1;;;"]
+    code, _, err, _ = review(run, board, tmp_path, lines, head)
+    assert code == 2 and "row 3" in err and "toward the driver" in err, err
