@@ -138,7 +138,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     df = _resolve_classes(df, rules, src)
     df = check_group_column(df, rules.match_groups, src)
     from sicheck.series_parts import join        # nets continuing through a series part: one net each
-    df = join(df, src)
+    df = join(df, src, rules.series_parts)
     df["width"] = _class_value(df, rules, "width", "width")
     df["rise_time"] = _class_value(df, rules, "rise_time", "rise_time")
     df["gap"] = _class_value(df.assign(gap=np.where(df["pair"] != "", df["gap"], np.nan)), rules, "gap", "gap")

@@ -22,6 +22,7 @@ from typing import Iterable
 
 from sicheck.checks import CHECKS, SEVERITIES, SEVERITY_CHOICES, Param, all_params, class_params, section_params
 from sicheck.errors import InputError
+from sicheck.series_parts import read_series_rules
 from sicheck.skew import MatchGroup, read_match_groups
 from sicheck.tomlsrc import TomlSource
 from sicheck.units import UnitError, parse_quantity
@@ -93,10 +94,11 @@ class Rules:
     classes: tuple[NetClass, ...] = ()
     notes: tuple[tuple[str, str], ...] = ()                  # (where, note) for the rules-note check
     match_groups: tuple[MatchGroup, ...] = ()
+    series_parts: tuple = ()          # [[series_part]] (sicheck/series_parts.py)
 
     def __init__(self, name: str = "built-in", sources: tuple[str, ...] = (), settings: dict | None = None,
                  severity: dict | None = None, columns: dict | None = None, classes: tuple = (),
-                 notes: tuple = (), match_groups: tuple = (), **params):
+                 notes: tuple = (), match_groups: tuple = (), series_parts: tuple = (), **params):
         # parameters may also be given by name (Rules(tolerance_pct=5), replace(rules, max_nets=2))
         unknown = set(params) - set(all_params())
         if unknown:
@@ -108,7 +110,7 @@ class Rules:
         sev.update(severity or {})
         for k, v in (("name", name), ("sources", tuple(sources)), ("settings", st), ("severity", sev),
                      ("columns", dict(columns or {})), ("classes", tuple(classes)), ("notes", tuple(notes)),
-                     ("match_groups", tuple(match_groups))):
+                     ("match_groups", tuple(match_groups)), ("series_parts", tuple(series_parts))):
             object.__setattr__(self, k, v)
 
     def __getattr__(self, name: str):
@@ -197,7 +199,7 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
     src = TomlSource(path, "rules")
     d = src.data
     sections = section_params()
-    top_keys = {"name", "severity", "columns", "net_class", "match_group"} | set(sections)
+    top_keys = {"name", "severity", "columns", "net_class", "match_group", "series_part"} | set(sections)
     for key in d:
         if key not in top_keys:
             raise src.error(f"unknown key '{key}' (allowed: {', '.join(sorted(top_keys))})", key)
@@ -267,7 +269,8 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
         classes.append(NetClass(**kw))
     upd: dict = {"settings": settings, "severity": sev, "columns": cols, "classes": tuple(classes),
                  "notes": tuple(notes), "sources": rules.sources + (str(path),),
-                 "match_groups": read_match_groups(src, d.get("match_group", []), rules.match_groups)}
+                 "match_groups": read_match_groups(src, d.get("match_group", []), rules.match_groups),
+                 "series_parts": read_series_rules(src, d.get("series_part", []), rules.series_parts)}
     if "name" in d:
         if not isinstance(d["name"], str):
             raise src.error(f"'name' must be text (got {d['name']!r})", "name")

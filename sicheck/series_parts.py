@@ -17,6 +17,10 @@ a net not in the list is an input error naming the rows.
 
 from __future__ import annotations
 
+import fnmatch
+from dataclasses import dataclass
+from typing import Sequence
+
 import numpy as np
 import pandas as pd
 
@@ -27,13 +31,13 @@ from sicheck.units import QUANTITY_RE, UnitError, parse_number, unit_factor
 JOIN = " → "     # between routed net names in a joined net's name (cannot be confused with '/' or '&')
 
 
-def parse_part(text: str, src: str, row: int, column: str = "part") -> tuple[float, float | None]:
-    """'22ohm' -> (22.0, None); '100nF' -> (0.0, 1e-7). InputError naming the cell otherwise."""
-    m = QUANTITY_RE.match(text)
+def part_value(text: str) -> tuple[float, float | None]:
+    """'22ohm' -> (22.0, None); '100nF' -> (0.0, 1e-7). ValueError with the reason otherwise."""
+    m = QUANTITY_RE.match(str(text))
     unit = m.group(2) if m else ""
     if not m or not unit:
-        raise InputError(f"part '{text}' is not a resistor or capacitor value: write it with its unit, e.g. "
-                         "'22ohm', '0ohm' or '100nF'", file=src, row=row, column=column)
+        raise ValueError(f"part '{text}' is not a resistor or capacitor value: write it with its unit, e.g. "
+                         "'22ohm', '0ohm' or '100nF'")
     number = parse_number(m.group(1).replace(",", "."))
     for dim, quantity in (("resistance", "series_ohm"), ("capacitance", "series_farad")):
         try:
@@ -41,15 +45,89 @@ def parse_part(text: str, src: str, row: int, column: str = "part") -> tuple[flo
         except UnitError:
             continue
         if bad := plausible.check(quantity, value):
-            raise InputError(f"part '{text}': {bad}", file=src, row=row, column=column)
+            raise ValueError(f"part '{text}': {bad}")
         return (value, None) if dim == "resistance" else (0.0, value)
-    raise InputError(f"part '{text}': unit '{unit}' is neither a resistance (ohm, kohm) nor a capacitance "
-                     "(pF, nF, uF)", file=src, row=row, column=column)
+    raise ValueError(f"part '{text}': unit '{unit}' is neither a resistance (ohm, kohm) nor a capacitance "
+                     "(pF, nF, uF)")
 
 
-def join(df: pd.DataFrame, src: str) -> pd.DataFrame:
+def parse_part(text: str, src: str, row: int, column: str = "part") -> tuple[float, float | None]:
+    """part_value, with an InputError naming the cell."""
+    try:
+        return part_value(text)
+    except ValueError as e:
+        raise InputError(str(e), file=src, row=row, column=column) from None
+
+
+@dataclass(frozen=True)
+class SeriesRule:
+    """A rules-file [[series_part]]: nets matching `match` continue as `to` ('{}' is the net's name)."""
+
+    match: str
+    to: str
+    part: str
+    origin: str
+
+
+RULE_KEYS = ("from", "to", "part")
+
+
+def read_series_rules(src, raw, known: tuple = ()) -> tuple[SeriesRule, ...]:
+    """``known`` plus the ``[[series_part]]`` tables of one rules file (a TomlSource); errors name file, line, key."""
+    if not isinstance(raw, list):
+        raise src.error("series_part must be written as [[series_part]] tables", "series_part")
+    out = list(known)
+    for i, t in enumerate(raw):
+        if not isinstance(t, dict):
+            raise src.error("series_part must be written as [[series_part]] tables", None, "series_part", i)
+        for key in t:
+            if key not in RULE_KEYS:
+                raise src.error(f"unknown key '{key}' in a series part (allowed: {', '.join(RULE_KEYS)})", key,
+                                "series_part", i)
+        for key in RULE_KEYS:
+            if not isinstance(t.get(key), str) or not t[key].strip():
+                raise src.error(f"every [[series_part]] needs '{key}' as text (from: a net-name pattern such as "
+                                "\"TX*_P\"; to: the net on the far side, '{}' standing for the matched name, e.g. "
+                                "\"{}_C\"; part: \"100nF\" or \"22ohm\")", key if key in t else None, "series_part", i)
+        try:
+            part_value(t["part"])
+        except ValueError as e:
+            raise src.error(str(e), "part", "series_part", i) from None
+        out.append(SeriesRule(t["from"].strip(), t["to"].strip(), t["part"].strip(),
+                              f"{src.path}, line {src.block('series_part', i)[0] + 1}"))
+    return tuple(out)
+
+
+def _apply_rules(df: pd.DataFrame, rules: Sequence[SeriesRule]) -> pd.DataFrame:
+    """Fill `continues`/`part` on the last row of each net a [[series_part]] matches (nets without from/to whose
+    rows give no `continues` of their own)."""
+    if not rules:
+        return df
+    df = df.copy()
+    for c in ("continues", "part"):
+        if c not in df.columns:
+            df[c] = ""
+    net = df["net"].to_numpy(object)
+    known = set(net)
+    has_nodes = df["from"].to_numpy(object) if "from" in df.columns else np.full(len(df), "", object)
+    given = {n for n, c in zip(net, df["continues"].to_numpy(object)) if c}
+    for name in pd.unique(net):
+        ix = np.flatnonzero(net == name)
+        if name in given or any(has_nodes[ix]):
+            continue
+        for r in rules:
+            target = r.to.replace("{}", name)
+            if fnmatch.fnmatchcase(name.upper(), r.match.upper()) and target in known and target != name:
+                df.iloc[ix[-1], df.columns.get_loc("continues")] = target
+                df.iloc[ix[-1], df.columns.get_loc("part")] = r.part
+                break
+    return df
+
+
+def join(df: pd.DataFrame, src: str, rules: Sequence[SeriesRule] = ()) -> pd.DataFrame:
     """The trace table with linked nets joined (see the module doc); unchanged (plus empty columns)
-    when no row gives `continues`."""
+    when no row gives `continues`. ``rules``: the rules files' [[series_part]] tables."""
+    df = _apply_rules(df, rules)
     df = df.copy()
     df["routed_net"] = df["net"].to_numpy()
     df["part_ohm"] = np.nan

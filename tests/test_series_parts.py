@@ -196,3 +196,27 @@ def test_part_on_the_driver_side_of_its_row_is_an_error(run, board, tmp_path):
              "TX_C;L1;193;14;60ps;;1;C5.2;U2.1;;;"]
     code, _, err, _ = review(run, board, tmp_path, lines, head)
     assert code == 2 and "row 3" in err and "toward the driver" in err, err
+
+
+PLAIN = "net;layer;length [mil];width [mil];rise_time;driver_ohm;load_pf\n"
+
+
+def test_series_part_table_in_the_rules(run, board, tmp_path):
+    rules = '[[series_part]]\nfrom = "TX*"\nto = "{}_C"\npart = "100nF"\n'
+    tr, stk, rp = board(PLAIN + "TX;L1;2400;14;60ps;40;\nTX_C;L1;193;14;60ps;;1\nRX;L1;900;14;60ps;40;1\n",
+                        rules=rules)
+    js = tmp_path / "r.json"
+    code, _, err = run("review", tr, "--stackup", stk, "--rules", rp, "--json", js)
+    assert code in (0, 1), err
+    nets = {n["net"]: n for n in json.loads(js.read_text())["nets"]}
+    assert set(nets) == {"TX → TX_C", "RX"}
+    assert nets["TX → TX_C"]["simulation"]["series_parts"][0]["farad"] == pytest.approx(1e-7)
+
+
+@pytest.mark.parametrize("table,key", [('from = "TX*"\nto = "{}_C"\n', "part"),
+                                       ('from = "TX*"\nto = "{}_C"\npart = "100"\n', "part"),
+                                       ('from = "TX*"\nto = "{}_C"\npart = "1nF"\nvalue = 3\n', "value")])
+def test_series_part_table_errors(run, board, tmp_path, table, key):
+    tr, stk, rp = board(PLAIN + "TX;L1;2400;14;60ps;40;\n", rules="[[series_part]]\n" + table)
+    code, _, err = run("review", tr, "--stackup", stk, "--rules", rp)
+    assert code == 2 and "rules.toml" in err and key in err, err
