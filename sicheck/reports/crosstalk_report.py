@@ -98,17 +98,13 @@ def plan_crosstalk_sheet(book, plan: dict) -> None:
 
 
 WAVE_POINTS = 160
-WAVE_ROWS = 17            # rows from one chart's title to the next
-WAVE_DATA_COL = 12        # the charted values sit to the right, outside the printed area
 
 
 def crosstalk_waves_sheet(book, rv) -> None:
     """Sheet 'Crosstalk waves': the victim's near- and far-end noise of the worst couplings, one chart each
     (data in three columns per coupling from column M on), as the Waveforms sheet does for reflections."""
+    from sicheck.reports.workbook import chart_sheet
     waves = rv.crosstalk.waves
-    ws = book.sheet("Crosstalk waves", grid=False)
-    ws.set_column(0, WAVE_DATA_COL - 2, 8.43)
-    num = book.fmt(num_format="0.0")
     blocks = []
     for w in waves:
         t = np.linspace(0.0, float(w["t"][-1]), WAVE_POINTS)
@@ -119,36 +115,6 @@ def crosstalk_waves_sheet(book, rv) -> None:
                  f"{w['far_peak_v'] * 1e3:+.0f} mV far")
         blocks.append((w["victim"], title, np.column_stack([t * 1e9, np.interp(t, w["t"], w["near"]) * 1e3,
                                                             np.interp(t, w["t"], w["far"]) * 1e3]).tolist()))
-    title_rows = {1 + k * WAVE_ROWS: k for k in range(len(blocks))}
-    last = max(1 + len(blocks) * WAVE_ROWS, 3 + WAVE_POINTS)
-    for r in range(last):          # constant-memory mode: rows in order, titles (left) and data (right)
-        if r == 0:
-            book.text(ws, 0, 0, "Victim noise of the worst couplings with the nets' own ends (driver resistances, "
-                                "receiver loads; lossless coupled run, modal solution). Data from column M on.",
-                      bold=True)
-        if r in title_rows:
-            book.text(ws, r, 0, blocks[title_rows[r]][1], bold=True)
-        for k, (victim, _, data) in enumerate(blocks):
-            c = WAVE_DATA_COL + 4 * k
-            if r == 1:
-                book.text(ws, r, c, victim, bold=True)
-            elif r == 2:
-                for j, h in enumerate(("t [ns]", "near end [mV]", "far end [mV]")):
-                    book.text(ws, r, c + j, h, bold=True)
-            elif 3 <= r < 3 + WAVE_POINTS:
-                for j, v in enumerate(data[r - 3]):
-                    ws.write_number(r, c + j, v, num)
-    for k in range(len(blocks)):
-        c = WAVE_DATA_COL + 4 * k
-        ch = book.wb.add_chart({"type": "scatter", "subtype": "straight"})
-        ch.set_title({"none": True})          # the text cell above names it: no user text in a chart
-        for j, name, colour in ((1, "near end", "#C8553D"), (2, "far end", "#2E6FAD")):
-            ch.add_series({"name": name, "categories": ["Crosstalk waves", 3, c, 2 + WAVE_POINTS, c],
-                           "values": ["Crosstalk waves", 3, c + j, 2 + WAVE_POINTS, c + j],
-                           "line": {"color": colour, "width": 1.5}, "marker": {"type": "none"}})
-        ch.set_x_axis({"name": "t [ns]"})
-        ch.set_y_axis({"name": "mV", "major_gridlines": {"visible": True, "line": {"color": "#DDDDDD"}}})
-        ch.set_legend({"position": "bottom"})
-        ch.set_size({"width": 605, "height": 283})
-        ws.insert_chart(2 + k * WAVE_ROWS, 0, ch)
-    ws.print_area(0, 0, max(1, len(blocks) * WAVE_ROWS), WAVE_DATA_COL - 2)
+    chart_sheet(book, "Crosstalk waves", "Victim noise of the worst couplings with the nets' own ends (driver "
+                "resistances, receiver loads; lossless coupled run, modal solution). Data from column M on.",
+                blocks, (("near end", "#C8553D"), ("far end", "#2E6FAD")), "mV", "0.0")

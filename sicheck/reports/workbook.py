@@ -531,13 +531,53 @@ CHART_ROWS = 17           # rows from one chart's title to the next: the chart (
 DATA_COL = 12             # the charts' data sit to the right (column M on), outside the printed area
 
 
-def _waveforms(book: Book, rv: Review):
-    """Before/after receiver waveforms of the worst nets: native scatter charts stacked down the sheet (the
-    part that prints), their data in columns to the right (three per net)."""
-    ws = book.sheet("Waveforms", grid=False)
+def chart_sheet(book: Book, name: str, intro: str, blocks: list, series: tuple, y_name: str, num_format: str):
+    """A sheet of native scatter charts stacked down the page (the part that prints), each named by the text
+    cell above it, their data in columns to the right (three per chart, from column M on).
+
+    blocks: (data heading, title, rows of (t [ns], first series, second series)); series: ((name, colour), x2).
+    No chart carries user text: the title is a cell, the series names are ours.
+    """
+    ws = book.sheet(name, grid=False)
     ws.set_column(0, DATA_COL - 2, 8.43)
+    num = book.fmt(num_format=num_format)
+    title_rows = {1 + k * CHART_ROWS: k for k in range(len(blocks))}
+    last = max([1 + len(blocks) * CHART_ROWS] + [3 + len(b[2]) for b in blocks])
+    # constant-memory mode writes row by row: titles (left) and data blocks (right) interleave
+    for r in range(last):
+        if r == 0:
+            book.text(ws, 0, 0, intro, bold=True)
+        if r in title_rows:
+            book.text(ws, r, 0, blocks[title_rows[r]][1], bold=True)
+        for k, (heading, _, data) in enumerate(blocks):
+            c = DATA_COL + 4 * k
+            if r == 1:
+                book.text(ws, r, c, heading, bold=True)
+            elif r == 2:
+                for j, h in enumerate(("t [ns]",) + tuple(f"{nm} [{y_name}]" for nm, _ in series)):
+                    book.text(ws, r, c + j, h, bold=True)
+            elif 3 <= r < 3 + len(data):
+                for j, v in enumerate(data[r - 3]):
+                    ws.write_number(r, c + j, v, num)
+    for k, (_, _, data) in enumerate(blocks):
+        c, n = DATA_COL + 4 * k, len(data)
+        ch = book.wb.add_chart({"type": "scatter", "subtype": "straight"})
+        ch.set_title({"none": True})
+        for j, (label, colour) in enumerate(series, start=1):
+            ch.add_series({"name": label, "categories": [name, 3, c, 2 + n, c],
+                           "values": [name, 3, c + j, 2 + n, c + j],
+                           "line": {"color": colour, "width": 1.5}, "marker": {"type": "none"}})
+        ch.set_x_axis({"name": "t [ns]"})
+        ch.set_y_axis({"name": y_name, "major_gridlines": {"visible": True, "line": {"color": "#DDDDDD"}}})
+        ch.set_legend({"position": "bottom"})
+        ch.set_size({"width": 605, "height": 283})       # 16 x 7.5 cm
+        ws.insert_chart(2 + k * CHART_ROWS, 0, ch)
+    ws.print_area(0, 0, max(1, len(blocks) * CHART_ROWS), DATA_COL - 2)
+
+
+def _waveforms(book: Book, rv: Review):
+    """Before/after receiver waveforms of the worst nets, one chart each."""
     nets = rv.nets.set_index("net")
-    num = book.fmt(num_format="0.000")
     blocks = []
     for net, (before, after, _) in rv.waves.items():
         if before is None or after is None:
@@ -547,41 +587,9 @@ def _waveforms(book: Book, rv: Review):
         t = np.linspace(0.0, max(t_b[-1], t_a[-1]), CHART_POINTS)
         blocks.append((net, f"{net}: {nets.loc[net, 'termination_part']}",
                        np.column_stack([t * 1e9, np.interp(t, t_b, v_b), np.interp(t, t_a, v_a)]).tolist()))
-    title_rows = {1 + k * CHART_ROWS: k for k in range(len(blocks))}
-    last = max([1 + len(blocks) * CHART_ROWS, 3 + CHART_POINTS])
-    # constant-memory mode writes row by row: titles (left) and data blocks (right) interleave
-    for r in range(last):
-        if r == 0:
-            book.text(ws, 0, 0, "Receiver voltage of the nets with the largest unterminated overshoot, without "
-                                "and with the simulated termination (frequency-domain simulation, with loss; data from column M on).", bold=True)
-        if r in title_rows:
-            book.text(ws, r, 0, blocks[title_rows[r]][1], bold=True)
-        for k, (net, _, data) in enumerate(blocks):
-            c = DATA_COL + 4 * k
-            if r == 1:
-                book.text(ws, r, c, net, bold=True)
-            elif r == 2:
-                for j, h in enumerate(("t [ns]", "unterminated [V]", "terminated [V]")):
-                    book.text(ws, r, c + j, h, bold=True)
-            elif 3 <= r < 3 + CHART_POINTS:
-                for j, v in enumerate(data[r - 3]):
-                    ws.write_number(r, c + j, v, num)
-    for k, (net, _, _) in enumerate(blocks):
-        c = DATA_COL + 4 * k
-        row = 1 + k * CHART_ROWS
-        ch = book.wb.add_chart({"type": "scatter", "subtype": "straight"})
-        # no chart title: the text cell above the chart names it, so a net's name never becomes chart text
-        ch.set_title({"none": True})
-        for j, name, colour in ((1, "unterminated", "#C8553D"), (2, "terminated", "#2E6FAD")):
-            ch.add_series({"name": name, "categories": ["Waveforms", 3, c, 2 + CHART_POINTS, c],
-                           "values": ["Waveforms", 3, c + j, 2 + CHART_POINTS, c + j],
-                           "line": {"color": colour, "width": 1.5}, "marker": {"type": "none"}})
-        ch.set_x_axis({"name": "t [ns]"})
-        ch.set_y_axis({"name": "V", "major_gridlines": {"visible": True, "line": {"color": "#DDDDDD"}}})
-        ch.set_legend({"position": "bottom"})
-        ch.set_size({"width": 605, "height": 283})       # 16 x 7.5 cm
-        ws.insert_chart(row + 1, 0, ch)
-    ws.print_area(0, 0, max(1, len(blocks) * CHART_ROWS), DATA_COL - 2)
+    chart_sheet(book, "Waveforms", "Receiver voltage of the nets with the largest unterminated overshoot, without "
+                "and with the simulated termination (frequency-domain simulation, with loss; data from column M on).",
+                blocks, (("unterminated", "#C8553D"), ("terminated", "#2E6FAD")), "V", "0.000")
 
 
 def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
