@@ -24,7 +24,7 @@ from sicheck.checks import CHECKS, SEVERITIES, SEVERITY_CHOICES, Param, all_para
 from sicheck.errors import InputError
 from sicheck.series_parts import read_series_rules
 from sicheck.skew import MatchGroup, read_match_groups
-from sicheck.tomlsrc import TomlSource
+from sicheck.tomlsrc import TomlSource, named_tables
 from sicheck.units import UnitError, parse_quantity
 
 __all__ = ["Rules", "NetClass", "load_rules", "load_rule_sets", "SEVERITIES", "CHECKS", "UNCLASSIFIED"]
@@ -229,19 +229,7 @@ def _apply_file(rules: Rules, path: Path) -> Rules:
         raise src.error("net_class must be written as [[net_class]] tables", "net_class")
     per_class = class_params()
     class_keys = {"name", "match", "driver"} | set(CLASS_VALUES) | set(per_class)
-    for i, c in enumerate(raw_classes):
-        line = src.block("net_class", i)[0] + 1
-        if not isinstance(c, dict):
-            raise InputError("net_class must be written as [[net_class]] tables", file=src.path, line=line,
-                             key="net_class")
-        for key in c:
-            if key not in class_keys:
-                raise src.error(f"unknown key '{key}' in a net class (allowed: {', '.join(sorted(class_keys))})",
-                                key, "net_class", i)
-        name = c.get("name")
-        if not isinstance(name, str) or not name.strip():
-            raise src.error("every [[net_class]] needs a name", "name", "net_class", i)
-        name = name.strip()
+    for i, line, c, name in named_tables(src, "net_class", raw_classes, sorted(class_keys), "net class"):
         here = f"{src.path}, line {line}"
         if name.lower() == OLD_UNCLASSIFIED:
             notes.append((here, f"net class '{OLD_UNCLASSIFIED}' is now called '{UNCLASSIFIED}' (nets that match "

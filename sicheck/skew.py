@@ -17,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from sicheck.errors import InputError
+from sicheck.tomlsrc import named_tables
 from sicheck.units import UnitError, parse_quantity
 
 GROUP_KEYS = ("name", "match", "max_skew", "reference")
@@ -53,19 +54,7 @@ def read_match_groups(src, raw, known: tuple[MatchGroup, ...]) -> tuple[MatchGro
         raise InputError("match_group must be written as [[match_group]] tables", file=src.path, line=line,
                          key="match_group")
     out = list(known)
-    for i, g in enumerate(raw):
-        line = src.block("match_group", i)[0] + 1
-        if not isinstance(g, dict):
-            raise InputError("match_group must be written as [[match_group]] tables", file=src.path, line=line,
-                             key="match_group")
-        for key in g:
-            if key not in GROUP_KEYS:
-                raise src.error(f"unknown key '{key}' in a match group (allowed: {', '.join(GROUP_KEYS)})",
-                                key, "match_group", i)
-        name = g.get("name")
-        if not isinstance(name, str) or not name.strip():
-            raise src.error("every [[match_group]] needs a name", "name", "match_group", i)
-        name = name.strip()
+    for i, line, g, name in named_tables(src, "match_group", raw, GROUP_KEYS, "match group"):
         here = f"{src.path}, line {line}"
         twin = group_named(out, name)
         if twin is not None:

@@ -51,3 +51,22 @@ class TomlSource:
     def error(self, msg: str, key: str | None = None, header: str | None = None, index: int = 0) -> InputError:
         line = self.line_of(key, header, index) if key else (self.block(header, index)[0] + 1 if header else None)
         return InputError(msg, file=self.path, line=line, key=key)
+
+
+def named_tables(src: TomlSource, section: str, raw: list, allowed, what: str):
+    """Each ``[[section]]`` table of a file, checked: a table, only ``allowed`` keys, a non-empty name.
+
+    Yields (index, first line, table, stripped name); errors name the file, the line and the key.
+    """
+    for i, t in enumerate(raw):
+        line = src.block(section, i)[0] + 1
+        if not isinstance(t, dict):
+            raise InputError(f"{section} must be written as [[{section}]] tables", file=src.path, line=line,
+                             key=section)
+        for key in t:
+            if key not in allowed:
+                raise src.error(f"unknown key '{key}' in a {what} (allowed: {', '.join(allowed)})", key, section, i)
+        name = t.get("name")
+        if not isinstance(name, str) or not name.strip():
+            raise src.error(f"every [[{section}]] needs a name", "name", section, i)
+        yield i, line, t, name.strip()
