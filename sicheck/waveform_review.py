@@ -25,7 +25,7 @@ import pandas as pd
 from sicheck.physics.causal_line import LineLoss
 from sicheck.physics.line_network import Series
 from sicheck.physics.loss import NP_TO_DB, RHO_COPPER
-from sicheck.physics.termination_choice import Limits, choose
+from sicheck.physics.termination_choice import Limits, choose_many
 from sicheck.on_die import driver_on_die, on_die_for
 from sicheck.rules import Rules
 
@@ -66,21 +66,20 @@ def _source(given: bool, cls, attr: str, key: str) -> str:
 POOL_MIN_NETS = 400      # below this a process pool costs more than it saves
 
 
-def _choose_one(args):
-    """One net's termination choice: (before, after) candidates, or the reason it cannot be simulated."""
+def _choose_args(args) -> tuple[tuple, dict]:
+    """choose()'s arguments for one job."""
     z, td, rise, drv, swing, cap, limits, zd, losses, tree, on_die, parts = args
     parents, receivers, driver_end = tree if tree is not None else (None, None, None)
-    try:
-        before, after, _ = choose(z, td, rise, drv, swing, cap, limits, zdiff=zd, keep_waves=True, losses=losses,
-                                  parents=parents, receivers=receivers, driver_end=driver_end, on_die=on_die,
-                                  parts=parts)
-    except ValueError as e:
-        return str(e)
-    return before, after
+    return (z, td, rise, drv, swing, cap, limits), dict(zdiff=zd, keep_waves=True, losses=losses, parents=parents,
+                                                        receivers=receivers, driver_end=driver_end, on_die=on_die,
+                                                        parts=parts)
 
 
 def _choose_chunk(jobs):
-    return [(i, _choose_one(a)) for i, a in jobs]
+    """[(index, (before, after) candidates or the reason the net cannot be simulated)], the nets' stages
+    simulated together (physics/chain_batch.py)."""
+    results = choose_many([_choose_args(a) for _, a in jobs])
+    return [(i, str(r) if isinstance(r, ValueError) else (r[0], r[1])) for (i, _), r in zip(jobs, results)]
 
 
 def workers() -> int:
@@ -94,13 +93,20 @@ def run_jobs(jobs: list) -> list:
     n = workers()
     if len(jobs) < POOL_MIN_NETS or n < 2:
         return _choose_chunk(jobs)
+    import gc
     from concurrent.futures import ProcessPoolExecutor
     size = max(50, len(jobs) // (8 * n))
     chunks = [jobs[k:k + size] for k in range(0, len(jobs), size)]
     out: list = []
-    with ProcessPoolExecutor(max_workers=n) as pool:
-        for part in pool.map(_choose_chunk, chunks):
-            out.extend(part)
+    # the review's tables are a large heap of long-lived objects: frozen, the workers' (forked) garbage
+    # collector no longer walks them each time the results pile up
+    gc.freeze()
+    try:
+        with ProcessPoolExecutor(max_workers=n) as pool:
+            for part in pool.map(_choose_chunk, chunks):
+                out.extend(part)
+    finally:
+        gc.unfreeze()
     return out
 
 

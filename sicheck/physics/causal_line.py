@@ -161,6 +161,70 @@ def per_delay(line: Line, s):
     return k, k / eps          # = sqrt(zn / eps): eps is close to the positive real axis
 
 
+def _internal_impedances(losses, s):
+    """internal_impedance for many sections at once: (len(losses), s.shape[1]), s a row."""
+    r_dc = np.array([x.r_dc for x in losses])
+    r_ac = np.array([x.r_ac for x in losses])
+    w_ref = 2.0 * PI * np.array([x.f_ref for x in losses])
+    out = np.zeros((len(losses), s.shape[1]), dtype=complex)
+    dc_based = (r_dc > 0.0) & (r_ac < 1e6 * r_dc)
+    q = np.where(dc_based, r_ac / np.where(dc_based, r_dc, 1.0), 0.0)
+    flat = dc_based & (q <= 1.0)             # no skin effect yet at f_ref: the DC value
+    out[flat] = r_dc[flat, None]
+    skin = dc_based & (q > 1.0)
+    if skin.any():
+        qs = q[skin]
+        w0 = w_ref[skin] / (2.0 * qs * np.sqrt(qs * qs - 1.0))
+        out[skin] = r_dc[skin, None] * np.sqrt(1.0 + s / w0[:, None])
+    pure = ~dc_based & (r_ac > 0.0)           # skin effect only
+    if pure.any():
+        out[pure] = r_ac[pure, None] * np.sqrt(2.0 * s / w_ref[pure, None])
+    return out
+
+
+def per_delay_lines(lines, s):
+    """per_delay for many sections at once: (K, M), each (len(lines), len(s)); rows of lossless sections are 1.
+
+    The same expressions as per_delay, with each section's loss constants as a column; the dielectric's
+    logarithm depends on s alone and is computed once.
+    """
+    s = np.asarray(s)[None, :]
+    kinds = [type(x.loss) for x in lines]
+    ds = [i for i, t in enumerate(kinds) if t is LineLoss]
+    if len(ds) == len(lines):            # the usual case: every section has loss data
+        return _per_delay_ds(lines, s)
+    k = np.ones((len(lines), s.shape[1]), dtype=complex)
+    m = np.ones_like(k)
+    if ds:
+        k[ds], m[ds] = _per_delay_ds([lines[i] for i in ds], s)
+    rg = [i for i, t in enumerate(kinds) if t is ConstantRG]
+    if rg:
+        z0 = np.array([lines[i].z0 for i in rg])[:, None]
+        td = np.array([lines[i].delay for i in rg])[:, None]
+        zn = 1.0 + np.array([lines[i].loss.r for i in rg])[:, None] / (s * z0 * td)
+        eps = 1.0 + np.array([lines[i].loss.g for i in rg])[:, None] / (s * td / z0)
+        k[rg] = np.sqrt(zn * eps)
+        m[rg] = k[rg] / eps
+    return k, m
+
+
+def _per_delay_ds(lines, s):
+    """(K, M) of sections with LineLoss (skin effect and Djordjevic-Sarkar dielectric); s a row."""
+    l_tot = np.array([x.z0 * x.delay for x in lines])[:, None]
+    lo = [x.loss for x in lines]
+    zn = 1.0 + _internal_impedances(lo, s) / (s * l_tot)
+    tand = np.array([x.tan_delta for x in lo])
+    if not np.any(tand > 0.0):
+        k = np.sqrt(zn)
+        return k, k
+    w1, w2 = 2.0 * PI * DS_F_LOW, 2.0 * PI * DS_F_HIGH
+    shared = np.log((w2 + s) / (w1 + s)) / math.log(w2 / w1)
+    consts = np.array([_ds_constants(t, x.f_ref) if t > 0.0 else (1.0, 0.0) for t, x in zip(tand, lo)])
+    eps = consts[:, :1] + consts[:, 1:] * shared
+    k = np.sqrt(zn * eps)
+    return k, k / eps
+
+
 def shape_key(line: Line):
     """Sections with equal keys have equal (K, M): same z0 and the same loss per unit delay."""
     lo = line.loss

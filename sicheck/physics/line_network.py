@@ -523,6 +523,23 @@ def _run(net, wanted, swing, ramp, dt, n_rec, r_source, loads, v_low, v_high):
     return t, waves
 
 
+@dataclass(frozen=True)
+class Simulation:
+    """One call of simulate_network, as data (so that a caller can hand many to physics/chain_batch.py)."""
+
+    net: Network
+    receivers: list[int]
+    swing: float
+    rise: float
+    r_source: np.ndarray
+    loads: dict
+    t_end: float | None = None
+
+    def run(self) -> dict[int, list[Waveform]]:
+        return simulate_network(self.net, self.receivers, self.swing, self.rise, self.r_source, self.loads,
+                                t_end=self.t_end)
+
+
 def simulate_chain(sections: Sequence[Line | Series], swing: float, rise: float, r_source: float, load: Load,
                    t_end: float | None = None, samples_per_ramp: int = SAMPLES_PER_RAMP) -> Waveform:
     """One chain of sections (driver end first) into one load: the receiver's waveform with the driver's."""

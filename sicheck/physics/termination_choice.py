@@ -33,8 +33,9 @@ import numpy as np
 from typing import Mapping, Sequence
 
 from sicheck.physics import eseries
+from sicheck.physics.chain_batch import RESULT_SAMPLES, samples_needed, simulate_many
 from sicheck.physics.causal_line import Line, LineLoss
-from sicheck.physics.line_network import Network, Series, settle_window, simulate_network
+from sicheck.physics.line_network import Network, Series, Simulation, settle_window
 from sicheck.physics.transient import RAMP_PER_RISE, Load, LoadSet, thevenin
 
 
@@ -62,10 +63,14 @@ class Candidate:
     worst: int = 0                 # index of the worst receiver
 
 
-@functools.lru_cache(maxsize=4096)
 def _neighbours(value: float, series: str = "E24", spread: int = 1) -> tuple[float, ...]:
+    """The series value nearest to ``value`` with ``spread`` neighbours on each side."""
+    return _around(eseries.nearest(value, series), series, spread)
+
+
+@functools.lru_cache(maxsize=4096)
+def _around(base: float, series: str, spread: int) -> tuple[float, ...]:
     mant = eseries.SERIES[series]
-    base = eseries.nearest(value, series)
     decade = int(np.floor(np.log10(base) + 1e-12))
     all_vals = [m * 10.0**d for d in (decade - 1, decade, decade + 1) for m in mant]
     all_vals = sorted(set(round(v, 12 - decade) for v in all_vals))
@@ -108,8 +113,13 @@ def _evaluate(c: Candidate, td_total: float, rise: float, limits: Limits) -> Non
 
 
 def _decimate(wf, n=160):
-    idx = np.linspace(0, len(wf.t) - 1, min(n, len(wf.t))).astype(int)
+    idx = _decimation(len(wf.t), n)
     return wf.t[idx], wf.v_rx[idx]
+
+
+@functools.lru_cache(maxsize=256)
+def _decimation(length: int, n: int) -> np.ndarray:
+    return np.linspace(0, length - 1, min(n, length)).astype(int)
 
 
 def tree_network(z: Sequence[float], td: Sequence[float], losses: Sequence[LineLoss | None],
@@ -143,13 +153,62 @@ def _badness(c: Candidate):
             + c.metrics["settle_ns"])
 
 
-def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: float, swing: float, load_cap: float,
-           limits: Limits, zdiff: float | None = None, keep_waves: bool = False,
-           losses: Sequence[LineLoss | None] | None = None, parents: Sequence[int] | None = None,
-           receivers: Sequence[tuple[int, float, str]] | None = None, driver_end: int | None = None,
-           on_die: tuple[float, float, str] | None = None, parts: Mapping[int, Series] | None = None,
-           ) -> tuple[Candidate, Candidate, list[Candidate]]:
-    """(unterminated, recommended, all candidates simulated) for one net: a chain of lines, driver end first.
+def choose(*args, **kwargs) -> tuple[Candidate, Candidate, list[Candidate]]:
+    """(unterminated, recommended, all candidates simulated) for one net; arguments as choose_steps."""
+    steps = choose_steps(*args, **kwargs)
+    try:
+        req = next(steps)
+        while True:
+            req = steps.send(req.run())
+    except StopIteration as done:
+        return done.value
+
+
+def choose_many(nets: Sequence[tuple[tuple, dict]]) -> list:
+    """choose() for many nets, their stages simulated together (physics/chain_batch.py).
+
+    nets: (args, kwargs) of choose per net. Returns per net choose's result, or the ValueError it raised.
+    """
+    steps = [choose_steps(*a, **kw) for a, kw in nets]
+    out: list = [None] * len(steps)
+    pending = {}                      # net -> its Simulation waiting for an answer
+
+    def advance(k, answer):
+        try:
+            pending[k] = steps[k].send(answer)
+        except StopIteration as done:
+            out[k] = done.value
+        except ValueError as e:
+            out[k] = e
+
+    for k in range(len(steps)):
+        advance(k, None)
+    while pending:
+        keys, held = [], 0             # a slice of the waiting simulations whose answers fit in memory
+        for k in list(pending):
+            held += samples_needed(pending[k])
+            if keys and held > RESULT_SAMPLES:
+                break
+            keys.append(k)
+        answers = simulate_many([pending.pop(k) for k in keys])
+        for k, ans in zip(keys, answers):
+            if isinstance(ans, ValueError):
+                steps[k].close()
+                out[k] = ans
+            else:
+                advance(k, ans)
+    return out
+
+
+def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: float, swing: float,
+                 load_cap: float, limits: Limits, zdiff: float | None = None, keep_waves: bool = False,
+                 losses: Sequence[LineLoss | None] | None = None, parents: Sequence[int] | None = None,
+                 receivers: Sequence[tuple[int, float, str]] | None = None, driver_end: int | None = None,
+                 on_die: tuple[float, float, str] | None = None, parts: Mapping[int, Series] | None = None):
+    """The termination choice for one net as a generator: it yields a Simulation for each stage it needs and
+    takes back the engine's answer (simulate_network's); it returns (unterminated, recommended, all
+    candidates simulated). choose() drives it one net at a time; choose_many() drives many nets at once,
+    so that their stages can be simulated together. The net: a chain of lines, driver end first.
 
     ``losses``: one LineLoss (or None for a lossless section) per line; None: all lossless.
     For a pair, z are the odd-mode impedances and swing is one leg's.
@@ -205,7 +264,7 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
         if not specs:
             return []
         rs = np.array([sp[2] for sp in specs], dtype=float)
-        res = simulate_network(net, rx_nodes, swing, rise, rs, loads_of(specs), t_end=t_end)
+        res = yield Simulation(net, rx_nodes, swing, rise, rs, loads_of(specs), t_end)
         out = []
         for k, sp in enumerate(specs):
             per = []
@@ -237,7 +296,7 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
             ("series", f"{r:g} ohm in series at the driver{' (each leg)' if zdiff is not None else ''}, with the "
              "on-die termination", driver_ohm + r, od, _power_parallel(swing, driver_ohm + r, r_od, v_od),
              {"series_ohm": r}) for r in (_neighbours(ideal) if ideal >= 1.0 else [])]
-        cands = stage(specs)
+        cands = yield from stage(specs)
         if cands[0].meets:
             return cands[0], cands[0], cands[:1]
         return cands[0], _pick(cands, cands[0]), cands
@@ -246,7 +305,7 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
         specs = [base] + [("differential", f"{r:g} ohm across {rx_at}", driver_ohm,
                            Load(cap=load_cap, end_ohm=r / 2), (swing * 2) ** 2 / (r + 2 * driver_ohm), {"end_ohm": r})
                           for r in _neighbours(zdiff)]
-        cands = stage(specs)
+        cands = yield from stage(specs)
         return cands[0], _pick(cands, cands[0]), cands
 
     z_drv, z_end = float(z[driver_end]), float(z[main_line])
@@ -264,7 +323,7 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
                 {"end_ohm": r2})])
     # the first and last stages share one window, so the last reuses the first's line two-ports
     shared = window([base] + series + ends)
-    first = stage([base] + series, shared)
+    first = yield from stage([base] + series, shared)
     none = first[0]
     if none.meets:
         return none, none, [none]
@@ -279,11 +338,11 @@ def choose(z: Sequence[float], td: Sequence[float], rise: float, driver_ohm: flo
     # An RC's capacitor charges for several of its time constants; pass or fail is decided by the
     # settling limit, so the window stops at four times it (a later settling is reported as not
     # settled within the window) and both values share it.
-    rc = stage(rc_specs, min(window(rc_specs), 4e-9 * _settle_limit_ns(td_total, rise, limits)))
+    rc = yield from stage(rc_specs, min(window(rc_specs), 4e-9 * _settle_limit_ns(td_total, rise, limits)))
     cands += rc
     if any(c.meets for c in rc):
         return none, _pick(cands, none), cands
-    cands += stage(ends, shared)
+    cands += yield from stage(ends, shared)
     return none, _pick(cands, none), cands
 
 

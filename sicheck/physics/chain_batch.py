@@ -1,0 +1,252 @@
+"""Many simulations at once: the waveform engine of line_network.py, batched across nets.
+
+A board's flagged nets are mostly plain chains (lines in series from the driver to one receiver, the
+load at the far end). For those, the whole chain is one two-port (the product of its sections' chain
+matrices, independent of the candidates) and a candidate's receiver voltage is
+
+    V_rx / V_source = g / ((A + B Y_L) + R_s (C + D Y_L))
+
+with [[A, B], [C, D]] / g the chain's scaled matrix (see line_network.py), Y_L the load and R_s the
+driver. Simulations that share a time step and a record length (same ramp, same record size: the
+engine's sizes are few, line_network.record_ladder) are solved together: one array operation per
+step for all their candidates, and one inverse FFT. The mathematics is line_network's, term for term
+(the DC answer taken out, the damped inverse FFT of Wedepohl & Mohamed, exact delays), so the
+waveforms agree with it to rounding (tests/test_chain_batch.py); what changes is that the Python work
+per net and per stage is gone. Anything that is not a plain chain (a tree, a series part, a load
+along the way, a distributed RG line at DC) is handed to simulate_network unchanged.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import defaultdict
+from typing import Sequence
+
+import numpy as np
+from scipy import fft as sfft
+
+from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, per_delay_lines
+from sicheck.physics.line_network import (BATCH_BINS, RECORD_FACTOR, SAMPLES_PER_RAMP, SHAPE_NODES, WRAP_DAMPING,
+                                          Simulation, _extend_unsettled, record_ladder, record_size, settle_window)
+from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, ramp_voltage
+
+
+def plain_chain(sim: Simulation) -> list[Line] | None:
+    """The sections of a simulation that is a plain chain (driver, lines, one loaded receiver), else None."""
+    lines = []
+    for k, (p, c, e) in enumerate(sim.net.edges):
+        if p != k or c != k + 1 or not isinstance(e, Line) or isinstance(e.loss, ConstantRG):
+            return None
+        lines.append(e)
+    end = len(lines)
+    if not lines or list(sim.receivers) != [end] or set(sim.loads) != {end}:
+        return None
+    return lines
+
+
+def simulate_many(sims: Sequence[Simulation]) -> list:
+    """Each simulation's answer (as Simulation.run returns it), or the ValueError it raised."""
+    out: list = [None] * len(sims)
+    groups: dict[tuple, list] = defaultdict(list)       # (ramp, record) -> [(sim, candidate)]
+    plan = {}
+    for k, sim in enumerate(sims):
+        lines = plain_chain(sim)
+        if lines is None:
+            try:
+                out[k] = sim.run()
+            except ValueError as e:
+                out[k] = e
+            continue
+        try:
+            plan[k] = _prepare(sim, lines)
+        except ValueError as e:
+            out[k] = e
+            continue
+        for i, n_rec in enumerate(plan[k]["records"]):
+            groups[(plan[k]["ramp"], n_rec)].append((k, i))
+    waves: dict[int, list] = {k: [None] * len(p["r_source"]) for k, p in plan.items()}
+    for (ramp, n_rec), members in groups.items():
+        _solve_group(sims, plan, ramp, n_rec, members, waves)
+    for k, p in plan.items():
+        sim = sims[k]
+        end = p["end"]
+        res = {end: waves[k]}
+        if sim.t_end is None:
+            try:
+                _extend_unsettled(res, sim.net, [end], sim.swing, sim.rise, p["r_source"], sim.loads, p["ends"],
+                                  p["dt"], False, SAMPLES_PER_RAMP)
+            except ValueError as e:
+                out[k] = e
+                continue
+        out[k] = res
+    return out
+
+
+RESULT_SAMPLES = 1 << 24       # waveform samples one simulate_many call may hand back (128 MB)
+
+
+def samples_needed(sim: Simulation) -> int:
+    """The time samples a simulation's answer holds (all candidates), for callers that slice their work;
+    0 when the simulation cannot run (simulate_many then reports why)."""
+    try:
+        ramp = sim.rise * RAMP_PER_RISE
+        dt = ramp / SAMPLES_PER_RAMP
+        rs = np.atleast_1d(np.asarray(sim.r_source, dtype=float))
+        ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), rs.shape) if sim.t_end is not None
+                else settle_window(sim.net, rs, sim.loads, ramp))
+        return sum(int(record_ladder(record_size(te, dt)) / RECORD_FACTOR) for te in ends)
+    except (ValueError, ZeroDivisionError):
+        return 0
+
+
+def _prepare(sim: Simulation, lines: list[Line]) -> dict:
+    """Checks, time step, record sizes and the DC levels of one simulation (as simulate_network does)."""
+    if sim.rise <= 0 or sim.swing == 0:
+        raise ValueError("the rise time must be positive and the swing non-zero")
+    rs = np.atleast_1d(np.asarray(sim.r_source, dtype=float))
+    if np.any(~(rs > 0)):
+        raise ValueError("the driver resistance must be above zero (an ideal source cannot be simulated)")
+    m = len(rs)
+    end = len(lines)
+    ls = sim.loads[end]
+    if len(ls) not in (1, m):
+        raise ValueError("every LoadSet needs one row or one row per candidate")
+    if len(ls) != m:
+        ls = ls.take(np.zeros(m, dtype=int))
+    ramp = sim.rise * RAMP_PER_RISE
+    dt = ramp / SAMPLES_PER_RAMP
+    ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), (m,)) if sim.t_end is not None
+            else settle_window(sim.net, rs, sim.loads, ramp))
+    records = [record_ladder(record_size(te, dt)) for te in ends]
+    # DC: the driver, the lines' DC resistance in series, the load's conductance to its voltage
+    r_line = sum(x.loss.r_dc for x in lines if isinstance(x.loss, LineLoss))
+    g_src = 1.0 / (rs + r_line)
+    g_load = ls.dc_conductance()
+    v_t = np.where(g_load > 0, ls.end_volts, 0.0)
+    v_low = g_load * v_t / (g_src + g_load)
+    v_high = (g_src * sim.swing + g_load * v_t) / (g_src + g_load)
+    return {"lines": lines, "end": end, "ramp": ramp, "dt": dt, "ends": ends, "records": records, "r_source": rs,
+            "loads": ls, "v_low": v_low, "v_high": v_high, "front": sum(front_delay(x) for x in lines)}
+
+
+GROUP_BINS = BATCH_BINS // 4     # complex bins per batch: 8 MB per array, about ten arrays alive at once
+
+
+def _batches(members, plan, k_bins):
+    """Members in batches that hold at most GROUP_BINS complex bins (candidates and the lines they need)."""
+    batch, size, seen = [], 0, set()
+    for k, i in members:
+        cost = k_bins * (1 + (0 if k in seen else len(plan[k]["lines"])))
+        if batch and size + cost > GROUP_BINS:
+            yield batch
+            batch, size, seen = [], 0, set()
+            cost = k_bins * (1 + len(plan[k]["lines"]))
+        batch.append((k, i))
+        seen.add(k)
+        size += cost
+    if batch:
+        yield batch
+
+
+def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
+    dt = ramp / SAMPLES_PER_RAMP
+    t_rec = n_rec * dt
+    sigma = -math.log(WRAP_DAMPING) / t_rec
+    k_bins = n_rec // 2 + 1
+    s = sigma + 1j * (2.0 * math.pi / t_rec * np.arange(k_bins))
+    ramp_s = -np.expm1(-s * ramp) / (ramp * s * s)
+    n_keep = int(math.floor(n_rec / RECORD_FACTOR)) + 1
+    t = np.arange(n_keep) * dt
+    growth = np.exp(sigma * t) / dt
+    for batch in _batches(members, plan, k_bins):
+        nets = list(dict.fromkeys(k for k, _ in batch))
+        where = {k: j for j, k in enumerate(nets)}
+        a, b, c, d, g = _chains([plan[k]["lines"] for k in nets], s)
+        q = np.array([where[k] for k, _ in batch])
+        cand = [i for _, i in batch]
+        rs = np.array([plan[k]["r_source"][i] for k, i in batch])
+        loads = LoadSet(*(np.array([getattr(plan[k]["loads"], f)[i] for k, i in batch])
+                          for f in ("cap", "end_ohm", "end_volts", "end_cap")))
+        swing = np.array([sims[k].swing for k, _ in batch])
+        v_low = np.array([plan[k]["v_low"][i] for k, i in batch])
+        v_high = np.array([plan[k]["v_high"][i] for k, i in batch])
+        # the reference taken out starts when the edge's front can first arrive (one per net)
+        t0_net = np.minimum(np.array([plan[k]["front"] for k in nets]), n_rec * dt / RECORD_FACTOR)
+        t0 = t0_net[q]
+        h0 = (v_high - v_low) / swing
+        y = _admittance(loads, s)
+        h = g[q] / ((a[q] + b[q] * y) + rs[:, None] * (c[q] + d[q] * y))
+        spec = (h - h0[:, None] * np.exp(-s[None, :] * t0_net[:, None])[q]) * (ramp_s[None, :] * swing[:, None])
+        v = sfft.irfft(spec, n=n_rec, axis=-1)[:, :n_keep] * growth
+        v += v_low[:, None] + (h0 * swing)[:, None] * ramp_voltage(t[None, :] - t0[:, None], 1.0, ramp)
+        rows = metrics_batch(t, v, v_high, ramp)
+        for j, (k, i) in enumerate(batch):
+            waves[k][cand[j]] = Waveform(t=t, v_rx=v[j], v_src=None, v_final=float(v_high[j]), ramp=ramp,
+                                         metrics=rows[j])
+
+
+def _chains(chains: list[list[Line]], s: np.ndarray):
+    """Each chain's scaled chain matrix (a, b, c, d, g), each (chains, len(s)), driver end first."""
+    lines = [x for ch in chains for x in ch]
+    k, m = _shapes(lines, s)
+    z0 = np.array([x.z0 for x in lines])[:, None]
+    td = np.array([x.delay for x in lines])[:, None]
+    e1 = np.exp(-(s[None, :] * td) * k)          # one line: [[1 + E^2, Zc (1 - E^2)], [(1 - E^2)/Zc, 1 + E^2]] / 2E
+    zc = z0 * m
+    e2 = e1 * e1
+    start = np.cumsum([0] + [len(ch) for ch in chains])[:-1]
+    pb = 1.0 - e2[start]
+    a = 1.0 + e2[start]
+    b = zc[start] * pb
+    c = pb / zc[start]
+    d = a.copy()
+    g = 2.0 * e1[start]
+    n_max = max(len(ch) for ch in chains)
+    for pos in range(1, n_max):
+        sel = np.array([j for j, ch in enumerate(chains) if len(ch) > pos])
+        r = start[sel] + pos
+        a2, pb2, z2 = 1.0 + e2[r], 1.0 - e2[r], zc[r]
+        b2, c2 = z2 * pb2, pb2 / z2
+        a1, b1, c1, d1 = a[sel], b[sel], c[sel], d[sel]
+        a[sel], b[sel] = a1 * a2 + b1 * c2, a1 * b2 + b1 * a2
+        c[sel], d[sel] = c1 * a2 + d1 * c2, c1 * b2 + d1 * a2
+        g[sel] *= 2.0 * e1[r]
+    return a, b, c, d, g
+
+
+def _shapes(lines: list[Line], s: np.ndarray):
+    """(K, M) of every section on the grid s; on long grids exact at SHAPE_NODES frequencies and interpolated
+    between them linearly in log w, as line_network._smooth_per_delay does."""
+    if len(s) <= 4 * SHAPE_NODES or not any(x.loss is not None for x in lines):
+        return per_delay_lines(lines, s)
+    w = s.imag
+    start = 1 if w[0] == 0.0 else 0
+    nodes = np.geomspace(w[start], w[-1], SHAPE_NODES)
+    nodes[0], nodes[-1] = w[start], w[-1]
+    kc, mc = per_delay_lines(lines, s.real[0] + 1j * nodes)
+    x, xn = np.log(w[start:]), np.log(nodes)
+    i = np.clip(np.searchsorted(xn, x, side="right") - 1, 0, len(xn) - 2)
+    f = ((x - xn[i]) / (xn[i + 1] - xn[i]))[None, :]
+    k = np.empty((len(lines), len(s)), dtype=complex)
+    m = np.empty_like(k)
+    k[:, start:] = kc[:, i] + f * (kc[:, i + 1] - kc[:, i])
+    m[:, start:] = mc[:, i] + f * (mc[:, i + 1] - mc[:, i])
+    if start:
+        k0, m0 = per_delay_lines(lines, s[:1])
+        k[:, 0], m[:, 0] = k0[:, 0], m0[:, 0]
+    return k, m
+
+
+def _admittance(loads: LoadSet, s: np.ndarray) -> np.ndarray:
+    """LoadSet.admittance, each row's termination worked out only where it has one (most rows are a pin)."""
+    y = s[None, :] * loads.cap[:, None]
+    r = ~np.isnan(loads.end_ohm)
+    rc = r & ~np.isnan(loads.end_cap)
+    plain = np.nonzero(r & ~rc)[0]
+    if len(plain):
+        y[plain] += 1.0 / loads.end_ohm[plain, None]
+    rc = np.nonzero(rc)[0]
+    if len(rc):
+        sc = s[None, :] * loads.end_cap[rc, None]
+        y[rc] += sc / (1.0 + sc * loads.end_ohm[rc, None])
+    return y

@@ -1,0 +1,164 @@
+"""Many nets at once (physics/chain_batch.py, termination_choice.choose_many) against one net at a time.
+
+The batched engine does line_network's mathematics on many nets together; the references are
+line_network.simulate_network (itself checked against ngspice and exact results in test_transient.py)
+and, directly, ngspice's lossless T element on the chains of test_transient's cases, all batched in one
+call with their different edges and windows.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as hst
+
+from sicheck.physics import chain_batch, termination_choice
+from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, per_delay, per_delay_lines
+from sicheck.physics.chain_batch import plain_chain, samples_needed, simulate_many
+from sicheck.physics.line_network import Network, Series, Simulation
+from sicheck.physics.termination_choice import Limits, choose, choose_many
+from sicheck.physics.transient import Load, LoadSet
+from test_transient import LOSSLESS_CASES, compare, needs_ngspice, ngspice_run
+
+LOADS = [Load(cap=2e-12), Load(), Load(cap=1e-12, end_ohm=50.0, end_volts=1.65),
+         Load(cap=2e-12, end_ohm=55.0, end_cap=120e-12), Load(cap=3e-12, end_ohm=47.0, end_volts=0.0)]
+
+
+def chain_sim(z, td, losses, rs, loads, swing=3.3, rise=0.3e-9, t_end=None):
+    net, end = Network.chain([Line(a, b, lo) for a, b, lo in zip(z, td, losses)])
+    return Simulation(net, [end], swing, rise, np.asarray(rs, dtype=float), {end: LoadSet.of(loads)}, t_end)
+
+
+def assert_same(got: dict, ref: dict, swing: float):
+    assert got.keys() == ref.keys()
+    for node in ref:
+        for a, b in zip(got[node], ref[node]):
+            assert a.t.shape == b.t.shape
+            assert np.max(np.abs(a.v_rx - b.v_rx)) < 1e-6 * abs(swing)
+            for k in ("v_max", "ringback", "flight_ns", "settle_ns", "v_final"):
+                assert a.metrics[k] == pytest.approx(b.metrics[k], abs=1e-6, nan_ok=True), k
+            assert a.metrics["settled_in_window"] == b.metrics["settled_in_window"]
+
+
+losses_st = hst.one_of(
+    hst.none(),
+    hst.builds(lambda f, rac, tand, rdc: LineLoss(f_ref=f, r_ac=rac, tan_delta=tand, r_dc=rdc),
+               hst.sampled_from([0.5e9, 2e9, 10e9]), hst.sampled_from([0.0, 0.5, 3.0, 12.0]),
+               hst.sampled_from([0.0, 0.005, 0.02]), hst.sampled_from([0.0, 0.2, 1.0, 5.0])))
+
+
+@settings(max_examples=40, deadline=None)
+@given(hst.lists(hst.tuples(hst.floats(20, 120), hst.floats(5e-12, 2e-9), losses_st), min_size=1, max_size=4))
+def test_line_shapes_for_many_sections_equal_one_by_one(spec):
+    lines = [Line(z, td, lo) for z, td, lo in spec] + [Line(50.0, 1e-9, ConstantRG(r=2.0, g=1e-4))]
+    s = 1e8 + 1j * np.linspace(0.0, 2e11, 300)
+    k, m = per_delay_lines(lines, s)
+    for i, x in enumerate(lines):
+        k1, m1 = per_delay(x, s)
+        assert np.allclose(k[i], k1, rtol=1e-12, atol=0) and np.allclose(m[i], m1, rtol=1e-12, atol=0)
+
+
+@settings(max_examples=25, deadline=None)
+@given(hst.lists(hst.tuples(hst.lists(hst.tuples(hst.floats(25, 110), hst.floats(10e-12, 1.5e-9), losses_st),
+                                      min_size=1, max_size=5),
+                            hst.lists(hst.tuples(hst.floats(5, 80), hst.sampled_from(range(len(LOADS)))),
+                                      min_size=1, max_size=4),
+                            hst.sampled_from([0.15e-9, 0.3e-9, 1e-9]), hst.booleans()),
+                 min_size=1, max_size=6))
+def test_batched_chains_equal_one_at_a_time(nets):
+    sims = []
+    for lines, cands, rise, windowed in nets:
+        z, td, lo = zip(*lines)
+        rs, li = zip(*cands)
+        sims.append(chain_sim(z, td, lo, rs, [LOADS[i] for i in li], rise=rise,
+                              t_end=(3 * sum(td) + 8 * rise) if windowed else None))
+    got = simulate_many(sims)
+    for sim, g in zip(sims, got):
+        assert_same(g, sim.run(), sim.swing)
+
+
+def test_what_is_not_a_plain_chain_runs_as_before():
+    # a tree (a stub at the middle node), a series part, and a load along the way: simulate_network's own answer
+    tree = Network()
+    mid = tree.add(0, Line(50.0, 0.3e-9))
+    end = tree.add(mid, Line(55.0, 0.4e-9))
+    stub = tree.add(mid, Line(60.0, 0.1e-9))
+    parted, p_end = Network.chain([Line(50.0, 0.3e-9), Series(ohm=22.0), Line(50.0, 0.2e-9)])
+    chain, c_end = Network.chain([Line(50.0, 0.3e-9), Line(50.0, 0.2e-9)])
+    sims = [Simulation(tree, [end, stub], 3.3, 0.3e-9, np.array([20.0]), {end: LoadSet.of([Load(cap=2e-12)])}),
+            Simulation(parted, [p_end], 3.3, 0.3e-9, np.array([20.0, 40.0]), {p_end: LoadSet.of([Load()])}),
+            Simulation(chain, [c_end], 3.3, 0.3e-9, np.array([20.0]),
+                       {1: LoadSet.of([Load(cap=1e-12)]), c_end: LoadSet.of([Load()])})]
+    assert all(plain_chain(s) is None for s in sims)
+    for sim, got in zip(sims, simulate_many(sims)):
+        assert_same(got, sim.run(), sim.swing)
+
+
+def test_one_impossible_simulation_does_not_stop_the_others():
+    ok = chain_sim([50.0], [1e-9], [None], [20.0], [Load(cap=2e-12)])
+    huge = chain_sim([50.0], [1e-6], [None], [20.0], [Load(cap=2e-12)], rise=1e-12)   # millions of samples
+    bad = chain_sim([50.0], [1e-9], [None], [20.0], [Load()], rise=-1.0)
+    got = simulate_many([ok, huge, bad, ok])
+    assert isinstance(got[1], ValueError) and "time samples" in str(got[1])
+    assert isinstance(got[2], ValueError) and "rise time" in str(got[2])
+    assert_same(got[0], ok.run(), 3.3)
+    assert_same(got[3], ok.run(), 3.3)
+    assert samples_needed(huge) == 0 and samples_needed(ok) > 0
+
+
+@needs_ngspice
+def test_batched_chains_against_ngspice(tmp_path):
+    # Reference: ngspice's lossless T element (test_transient's cases that are plain chains), step ramp/400;
+    # tolerances of issue 8 (metrics 0.5 % of the swing and 5 ps, samples 1 % of the swing).
+    swing, t_end = 3.3, 30e-9
+    cases = [c for c in LOSSLESS_CASES if all(isinstance(e, Line) for e in c[1])]
+    assert len(cases) >= 5
+    sims = []
+    for _, chain, rs, load, _, rise in cases:
+        net, end = Network.chain(chain)
+        sims.append(Simulation(net, [end], swing, rise, np.array([rs]), {end: LoadSet.of([load])}, t_end))
+    got = simulate_many(sims)
+    for k, (name, _, _, _, body, rise) in enumerate(cases):
+        run = tmp_path / f"c{k}"
+        run.mkdir()
+        t_ref, v_ref = ngspice_run(run, body, swing, rise / 0.8, t_end, rise / 0.8 / 400)
+        compare(got[k][sims[k].receivers[0]][0], t_ref, v_ref, swing, upto=t_end * 0.95)
+
+
+def _nets():
+    lossy = [LineLoss(f_ref=1e9, r_ac=2.0, tan_delta=0.015, r_dc=0.4), LineLoss(f_ref=1e9, r_ac=1.0, tan_delta=0.01)]
+    lim = Limits()
+    return [
+        ((30.0, 50.0, 60.0), (0.2e-9, 0.5e-9, 0.3e-9), 0.3e-9, 15.0, 3.3, 2e-12, lim), {"losses": [lossy[0], None, lossy[1]]},
+        ((50.0,), (1e-9,), 0.3e-9, 25.0, 3.3, 2e-12, lim), {},
+        ((30.0,), (1e-9,), 0.3e-9, 45.0, 3.3, 2e-12, Limits(max_overshoot_pct=5)), {},
+        ((48.0,), (1e-9,), 0.25e-9, 25.0, 0.35, 2e-12, lim), {"zdiff": 96.0},
+        ((50.0,), (1e-9,), 0.3e-9, 10.0, 3.3, 2e-12, lim), {"on_die": (50.0, 1.65, "on die")},
+        ((50.0, 55.0, 60.0), (0.3e-9, 0.2e-9, 0.1e-9), 0.3e-9, 20.0, 3.3, 0.0, lim),
+        {"parents": [-1, 0, 0], "receivers": [(1, 2e-12, "U2"), (2, 3e-12, "U3")]},
+        ((50.0, 55.0), (30e-12, 300e-12), 0.2e-9, 10.0, 3.3, 3e-12, lim), {"parts": {0: Series(ohm=22.0)}},
+        ((50.0,), (1e-6,), 1e-12, 25.0, 3.3, 2e-12, lim), {},            # needs too many samples: an error
+        ((60.0, 40.0), (0.7e-9, 0.8e-9), 1e-9, 8.0, 1.8, 4e-12, lim), {"keep_waves": True},
+    ]
+
+
+@pytest.mark.parametrize("budget", [chain_batch.RESULT_SAMPLES, 1])
+def test_many_nets_choose_as_one_at_a_time(monkeypatch, budget):
+    monkeypatch.setattr(termination_choice, "RESULT_SAMPLES", budget)   # 1: one net per engine call
+    flat = _nets()
+    nets = [(flat[i], flat[i + 1]) for i in range(0, len(flat), 2)]
+    got = choose_many(nets)
+    for (args, kw), g in zip(nets, got):
+        try:
+            ref = choose(*args, **kw)
+        except ValueError as e:
+            assert isinstance(g, ValueError) and str(g) == str(e)
+            continue
+        assert [c.text for c in g[2]] == [c.text for c in ref[2]]
+        assert g[1].text == ref[1].text and g[1].meets == ref[1].meets
+        for a, b in zip(g[2], ref[2]):
+            for k in ("overshoot_pct", "ringback_pct", "settle_ns", "flight_ns"):
+                assert a.metrics[k] == pytest.approx(b.metrics[k], abs=1e-6, nan_ok=True)
+            assert (a.wave is None) == (b.wave is None)
+    assert sum(isinstance(g, ValueError) for g in got) == 1
