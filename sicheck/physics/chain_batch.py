@@ -51,7 +51,7 @@ def simulate_many(sims: Sequence[Simulation]) -> list:
     plan = {}
     for k, sim in enumerate(sims):
         lines = plain_chain(sim)
-        if lines is None:
+        if lines is None or _long(sim):
             try:
                 out[k] = sim.run()
             except ValueError as e:
@@ -97,6 +97,21 @@ def samples_needed(sim: Simulation) -> int:
         return sum(int(record_ladder(record_size(te, dt)) / RECORD_FACTOR) for te in ends)
     except (ValueError, ZeroDivisionError):
         return 0
+
+
+BATCH_MAX_SAMPLES = 4096         # longer records: one net at a time (their arithmetic outweighs the Python)
+
+
+def _long(sim: Simulation) -> bool:
+    """A simulation whose records are long: batching gains nothing there, and simulate_network reuses its
+    line two-ports between the stages that share a window."""
+    if sim.t_end is None:
+        return False
+    ramp = sim.rise * RAMP_PER_RISE
+    try:
+        return RECORD_FACTOR * float(np.max(sim.t_end)) / (ramp / SAMPLES_PER_RAMP) > BATCH_MAX_SAMPLES
+    except (ValueError, ZeroDivisionError):
+        return False
 
 
 def _prepare(sim: Simulation, lines: list[Line]) -> dict:
