@@ -51,17 +51,15 @@ def simulate_many(sims: Sequence[Simulation]) -> list:
     plan = {}
     for k, sim in enumerate(sims):
         lines = plain_chain(sim)
-        if lines is None or _long(sim):
-            try:
-                out[k] = sim.run()
-            except ValueError as e:
-                out[k] = e
-            continue
         try:
-            plan[k] = _prepare(sim, lines)
+            p = _prepare(sim, lines) if lines is not None else None
+            if p is None or max(p["records"]) > BATCH_MAX_SAMPLES:
+                out[k] = sim.run()
+                continue
         except ValueError as e:
             out[k] = e
             continue
+        plan[k] = p
         for i, n_rec in enumerate(plan[k]["records"]):
             groups[(plan[k]["ramp"], n_rec)].append((k, i))
     waves: dict[int, list] = {k: [None] * len(p["r_source"]) for k, p in plan.items()}
@@ -82,6 +80,9 @@ def simulate_many(sims: Sequence[Simulation]) -> list:
     return out
 
 
+# Longer records go one net at a time: their arithmetic outweighs the Python, and simulate_network reuses its
+# line two-ports between the stages that share a window.
+BATCH_MAX_SAMPLES = 4096
 RESULT_SAMPLES = 1 << 24       # waveform samples one simulate_many call may hand back (128 MB)
 
 
@@ -97,21 +98,6 @@ def samples_needed(sim: Simulation) -> int:
         return sum(int(record_ladder(record_size(te, dt)) / RECORD_FACTOR) for te in ends)
     except (ValueError, ZeroDivisionError):
         return 0
-
-
-BATCH_MAX_SAMPLES = 4096         # longer records: one net at a time (their arithmetic outweighs the Python)
-
-
-def _long(sim: Simulation) -> bool:
-    """A simulation whose records are long: batching gains nothing there, and simulate_network reuses its
-    line two-ports between the stages that share a window."""
-    if sim.t_end is None:
-        return False
-    ramp = sim.rise * RAMP_PER_RISE
-    try:
-        return RECORD_FACTOR * float(np.max(sim.t_end)) / (ramp / SAMPLES_PER_RAMP) > BATCH_MAX_SAMPLES
-    except (ValueError, ZeroDivisionError):
-        return False
 
 
 def _prepare(sim: Simulation, lines: list[Line]) -> dict:
@@ -176,8 +162,8 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
     for batch in _batches(members, plan, k_bins):
         nets = list(dict.fromkeys(k for k, _ in batch))
         where = {k: j for j, k in enumerate(nets)}
-        a, b, c, d, g = _chains([plan[k]["lines"] for k in nets], s)
-        q = np.array([where[k] for k, _ in batch])
+        (a, b, c, d, g), row = _chains([plan[k]["lines"] for k in nets], s)
+        q = row[[where[k] for k, _ in batch]]
         cand = [i for _, i in batch]
         rs = np.array([plan[k]["r_source"][i] for k, i in batch])
         loads = LoadSet(*(np.array([getattr(plan[k]["loads"], f)[i] for k, i in batch])
@@ -186,7 +172,7 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
         v_low = np.array([plan[k]["v_low"][i] for k, i in batch])
         v_high = np.array([plan[k]["v_high"][i] for k, i in batch])
         # the reference taken out starts when the edge's front can first arrive (one per net)
-        t0_net = np.minimum(np.array([plan[k]["front"] for k in nets]), n_rec * dt / RECORD_FACTOR)
+        t0_net = np.minimum(np.array([plan[k]["front"] for k in nets]), n_rec * dt / RECORD_FACTOR)[np.argsort(row)]
         t0 = t0_net[q]
         h0 = (v_high - v_low) / swing
         y = _admittance(loads, s)
@@ -201,32 +187,41 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
 
 
 def _chains(chains: list[list[Line]], s: np.ndarray):
-    """Each chain's scaled chain matrix (a, b, c, d, g), each (chains, len(s)), driver end first."""
-    lines = [x for ch in chains for x in ch]
+    """Each chain's scaled chain matrix (a, b, c, d, g), each (chains, len(s)), driver end first.
+
+    The chains are taken longest first and their sections position by position, so that every step of the
+    product works on slices (no copies): returns the matrices in that order and, per chain, its row.
+    """
+    order = sorted(range(len(chains)), key=lambda j: -len(chains[j]))
+    row = np.empty(len(chains), dtype=int)
+    row[order] = np.arange(len(chains))
+    n_max = len(chains[order[0]])
+    count = [sum(1 for j in order if len(chains[j]) > pos) for pos in range(n_max)]   # chains with a section here
+    lines = [chains[j][pos] for pos in range(n_max) for j in order[:count[pos]]]
     k, m = _shapes(lines, s)
     z0 = np.array([x.z0 for x in lines])[:, None]
     td = np.array([x.delay for x in lines])[:, None]
     e1 = np.exp(-(s[None, :] * td) * k)          # one line: [[1 + E^2, Zc (1 - E^2)], [(1 - E^2)/Zc, 1 + E^2]] / 2E
     zc = z0 * m
     e2 = e1 * e1
-    start = np.cumsum([0] + [len(ch) for ch in chains])[:-1]
-    pb = 1.0 - e2[start]
-    a = 1.0 + e2[start]
-    b = zc[start] * pb
-    c = pb / zc[start]
+    n = count[0]
+    pb = 1.0 - e2[:n]
+    a = 1.0 + e2[:n]
+    b = zc[:n] * pb
+    c = pb / zc[:n]
     d = a.copy()
-    g = 2.0 * e1[start]
-    n_max = max(len(ch) for ch in chains)
+    g = 2.0 * e1[:n]
+    off = n
     for pos in range(1, n_max):
-        sel = np.array([j for j, ch in enumerate(chains) if len(ch) > pos])
-        r = start[sel] + pos
-        a2, pb2, z2 = 1.0 + e2[r], 1.0 - e2[r], zc[r]
+        n = count[pos]
+        blk = slice(off, off + n)
+        off += n
+        a2, pb2, z2 = 1.0 + e2[blk], 1.0 - e2[blk], zc[blk]
         b2, c2 = z2 * pb2, pb2 / z2
-        a1, b1, c1, d1 = a[sel], b[sel], c[sel], d[sel]
-        a[sel], b[sel] = a1 * a2 + b1 * c2, a1 * b2 + b1 * a2
-        c[sel], d[sel] = c1 * a2 + d1 * c2, c1 * b2 + d1 * a2
-        g[sel] *= 2.0 * e1[r]
-    return a, b, c, d, g
+        a1, b1, c1, d1 = a[:n], b[:n], c[:n], d[:n]
+        a[:n], b[:n], c[:n], d[:n] = a1 * a2 + b1 * c2, a1 * b2 + b1 * a2, c1 * a2 + d1 * c2, c1 * b2 + d1 * a2
+        g[:n] *= 2.0 * e1[blk]
+    return (a, b, c, d, g), row
 
 
 def _shapes(lines: list[Line], s: np.ndarray):
