@@ -42,17 +42,34 @@ def _trace_area(xs) -> float:
 
 def segment_losses(z, delay, length, freq, a_c_db, a_d_db, area) -> list[LineLoss | None]:
     """One LineLoss per segment from the review's loss columns (see module doc); None where lossless."""
-    out = []
-    for zi, td, ln, f, ac, ad, ar in zip(z, delay, length, freq, a_c_db, a_d_db, area):
-        ac = 0.0 if not np.isfinite(ac) else ac / NP_TO_DB
-        ad = 0.0 if not np.isfinite(ad) else ad / NP_TO_DB
-        r_dc = RHO_COPPER * ln / ar if (ar and np.isfinite(ar) and ar > 0) else 0.0
-        if ac == 0.0 and ad == 0.0 and r_dc == 0.0:
-            out.append(None)
-            continue
-        out.append(LineLoss(f_ref=float(f), r_ac=2.0 * zi * ac * ln, tan_delta=min(ad * ln / (math.pi * f * td), 0.5),
-                            r_dc=r_dc))
-    return out
+    return SegmentLosses(z, delay, length, freq, a_c_db, a_d_db, area).of(range(len(z)))
+
+
+class SegmentLosses:
+    """The loss model of every segment, worked out as arrays once; LineLoss objects made for the segments
+    asked for (a segment of a net that is not simulated may lack what a model needs)."""
+
+    def __init__(self, z, delay, length, freq, a_c_db, a_d_db, area):
+        z, td, ln, f = (np.asarray(x, dtype=float) for x in (z, delay, length, freq))
+        ac, ad = (np.asarray(x, dtype=float) for x in (a_c_db, a_d_db))
+        ac = np.where(np.isfinite(ac), ac, 0.0) / NP_TO_DB
+        ad = np.where(np.isfinite(ad), ad, 0.0) / NP_TO_DB
+        ar = np.array([np.nan if a is None else a for a in area], dtype=float)
+        ok = np.isfinite(ar) & (ar > 0)
+        r_dc = np.where(ok, RHO_COPPER * ln / np.where(ok, ar, 1.0), 0.0)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            tand = np.minimum(ad * ln / (math.pi * f * td), 0.5)
+        self._none = ((ac == 0.0) & (ad == 0.0) & (r_dc == 0.0)).tolist()
+        self._f, self._tand, self._r_dc = f.tolist(), tand.tolist(), r_dc.tolist()
+        self._ac, self._ln = ac.tolist(), ln.tolist()           # R at f0 = 2 Z alpha_c length
+        self._z = z.tolist()
+
+    def of(self, segments, z=None) -> list[LineLoss | None]:
+        """LineLoss (or None) of the given segments; z: their impedance, when not the one given at first."""
+        zs = [self._z[j] for j in segments] if z is None else z
+        return [None if self._none[j] else LineLoss(f_ref=self._f[j], r_ac=2.0 * zi * self._ac[j] * self._ln[j],
+                                                    tan_delta=self._tand[j], r_dc=self._r_dc[j])
+                for j, zi in zip(segments, zs)]
 
 
 def _source(given: bool, cls, attr: str, key: str) -> str:
@@ -159,7 +176,18 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
     jobs: list = []
     pending: dict = {}
     copy_cols = (scheme, part, power, meets, notes, violations, lossy, inputs, rx_out)
-    rows = {i: r for i, r in zip(nets.index, nets.to_dict("records"))}
+    keys = ("net", "pair", "net_class", "driver_ohm", "load_pf", "rise_time", "z_driver_end")
+    rows = {i: dict(zip(keys, v)) for i, v in zip(nets.index, zip(*(nets[k].tolist() for k in keys)))}
+    # per segment, once: the loss models (single-ended and odd mode) and the loss totals
+    xs_area = (area[arr["xs"].astype(int)] if area is not None else [None] * len(seg))
+    loss_args = (arr["delay"], arr["length"], arr["freq"], arr["conductor_loss_db_per_m"],
+                 arr["dielectric_loss_db_per_m"], xs_area)
+    seg_losses = SegmentLosses(arr["z0"], *loss_args)
+    length = arr["length"].astype(float)
+    db_c = length * arr["conductor_loss_db_per_m"].astype(float)
+    db_d = length * arr["dielectric_loss_db_per_m"].astype(float)
+    db_all = np.nan_to_num(db_c + db_d)
+    db_c, db_d = np.nan_to_num(db_c), np.nan_to_num(db_d)
     for i in order:
         r = rows[i]
         net, pair = r["net"], r["pair"]
@@ -172,9 +200,7 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         ix = pos[net]
         z = arr["zodd" if pair else "z0"][ix].astype(float)
         td = arr["delay"][ix].astype(float)
-        losses = segment_losses(z, td, arr["length"][ix], arr["freq"][ix], arr["conductor_loss_db_per_m"][ix],
-                                arr["dielectric_loss_db_per_m"][ix],
-                                area[arr["xs"][ix].astype(int)] if area is not None else [None] * len(ix))
+        losses = seg_losses.of(ix.tolist(), z.tolist())
         cls = classes.get(r["net_class"])
         assumed = []
         drv = float(r["driver_ohm"])
@@ -227,8 +253,7 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         has_loss = any(lo is not None for lo in losses)
         zd = float(r["z_driver_end"]) if pair else None
         leg_swing = swing / (2.0 if pair else 1.0)
-        loss_db = float(np.nansum(arr["length"][ix] * (arr["conductor_loss_db_per_m"][ix]
-                                                       + arr["dielectric_loss_db_per_m"][ix])))
+        loss_db = float(db_all[ix].sum())
         used = {
             "engine": ("frequency domain: the chain of lines solved with exact delays (a model of the net: an estimate)"
                        if tree is None else "frequency domain: the tree of lines (each branch a shunt input admittance "
@@ -250,8 +275,8 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                               {"value": None, "source": f"flight + ramp + {rules.settle_rise_times:g} x Tr "
                                                         f"({RULES_SRC} settle_rise_times)"}),
             "loss": {"included": has_loss, "freq_ghz": float(arr["freq"][ix][0] * 1e-9), "insertion_loss_db": loss_db,
-                     "conductor_db": float(np.nansum(arr["length"][ix] * arr["conductor_loss_db_per_m"][ix])),
-                     "dielectric_db": float(np.nansum(arr["length"][ix] * arr["dielectric_loss_db_per_m"][ix])),
+                     "conductor_db": float(db_c[ix].sum()),
+                     "dielectric_db": float(db_d[ix].sum()),
                      "dc_resistance_ohm": float(sum(lo.r_dc for lo in losses if lo is not None)),
                      "source": "segment loss columns at the net's frequency: conductor as a causal skin-effect "
                                "impedance from the DC resistance (copper resistivity over the trace section), "
