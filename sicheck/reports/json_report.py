@@ -252,3 +252,9 @@ def match_groups_json(rv: Review) -> list[dict]:
 
 def review_json(rv: Review) -> str:
     return json.dumps(review_dict(rv), ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+
+
+def write_review_json(path, rv: Review) -> None:
+    """The review's JSON into ``path`` (the caller makes the write atomic)."""
+    with open(path, "w", encoding="utf-8") as f:
+        f.write(review_json(rv))
