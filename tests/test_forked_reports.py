@@ -4,6 +4,7 @@ as one after the other, and an error in the child reaches the user as a message 
 from __future__ import annotations
 
 import errno
+import gc
 import os
 import signal
 
@@ -57,6 +58,7 @@ def test_forked_and_sequential_write_the_same_files(run, board, tmp_path, monkey
     assert js_f.read_bytes() == js_s.read_bytes()
     assert _cells(xlsx_f) == _cells(xlsx_s)
     assert not [p for p in tmp_path.iterdir() if p.name.startswith(".")]      # no temporary files left
+    assert gc.isenabled()                     # paused while the reports are written, and only then
 
 
 def test_json_only_writes_in_this_process(run, board, tmp_path, monkeypatch):
