@@ -132,3 +132,15 @@ def test_an_error_here_stops_the_child(tmp_path):
         with forked(slow):
             raise ValueError("workbook failed")
     assert not mark.exists()
+
+
+def test_json_pieces_join_to_the_one_piece_text(monkeypatch):
+    import json
+
+    monkeypatch.setattr(json_report, "PIECE_ITEMS", 3)
+    doc = {"summary": {"a": 1.5, "ü": None}, "empty": [], "short": [1, 2, 3], "long": [{"x": i / 7} for i in range(10)],
+           "text": ["→", "a\"b", "\n"] * 3, "last": "end"}
+    want = json.dumps(doc, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+    pieces = list(json_report.json_pieces(doc))
+    assert "".join(pieces) == want
+    assert max(map(len, pieces)) < len(want) / 3            # no piece holds the whole document
