@@ -40,15 +40,16 @@ def forked(work: Callable[[], None]):
         finally:
             os._exit(code)           # no atexit handlers, no flushing of the parent's buffers
     os.close(write_end)
+    reader = os.fdopen(read_end, "rb")
     try:
         yield
-    except BaseException:
+        report = reader.read()       # empty unless work() raised; ends when the child exits
+    except BaseException:            # an error here, or Ctrl-C while waiting: the child's work is moot
         os.kill(pid, signal.SIGKILL)
         os.waitpid(pid, 0)
-        os.close(read_end)
         raise
-    with os.fdopen(read_end, "rb") as f:
-        report = f.read()
+    finally:
+        reader.close()
     _, status = os.waitpid(pid, 0)
     if report:
         raise _received(report)

@@ -3,8 +3,8 @@
 Why: XlsxWriter spends about 10 us of Python per cell; a 100 000-segment review has millions of
 cells, so the Segments and Nets sheets dominated the whole review. A table's rows are plain
 (a number, a text or a boolean in a column with a known style), so they are generated here as XML
-text at about 1-2 us per cell and spliced into the sheet that XlsxWriter wrote (header, column
-widths, print set-up, filters, validations), in place of its empty body.
+text, a column at a time (rows_xml), and spliced into the sheet that XlsxWriter wrote (header,
+column widths, print set-up, filters, validations), in place of its empty body.
 
 The cell markup is the Office Open XML SpreadsheetML one (ECMA-376 Part 1, 18.3.1: row, c, v, is/t):
 numbers as ``<v>``, text as inline strings (``t="inlineStr"``, as XlsxWriter's constant-memory
