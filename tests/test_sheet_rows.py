@@ -103,7 +103,7 @@ def _rows_xml_cell_by_cell(rows, n_cols, col_style, text_cell):
     return "".join(parts)
 
 
-_cell_value = st.one_of(st.none(), st.text(max_size=8), st.sampled_from(["=x", " a", "b ", "a&<b>", ""]),
+_cell_value = st.one_of(st.none(), st.text(max_size=8), st.sampled_from(["=x", " a", "b ", "a&<b>", "", "n\x00&"]),
                         st.floats(), st.sampled_from([0.0, -0.0, 1.5, 1e-300]), st.integers(-10**6, 10**6),
                         st.booleans(), st.floats(allow_nan=False).map(np.float64))
 

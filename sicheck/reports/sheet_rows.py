@@ -123,12 +123,17 @@ def _reprs(a: np.ndarray) -> list[str]:
 
 def _text_column(letter: str, j: int, texts: list[str], rs: list[str], overs: tuple | None, text_cells) -> list[str]:
     texts, styles = text_cells(j, texts, overs)
-    if _XML_SPECIAL.search("".join(texts)):
-        texts = [_escape(t) for t in texts]
+    joined = "\x00".join(texts)
+    if _XML_SPECIAL.search(joined):
+        if joined.count("\x00") == len(texts) - 1:     # no text holds the separator: escape the column at once
+            texts = joined.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;").split("\x00")
+        else:
+            texts = [_escape(t) for t in texts]
     attrs = {s: f'" s="{s}" t="inlineStr"><is><t' if s else '" t="inlineStr"><is><t' for s in set(styles)}
     # xml:space="preserve" where a text starts or ends with white space
-    spaces = [' xml:space="preserve"' if a or b else "" for a, b in zip(map(str.isspace, map(_FIRST, texts)),
-                                                                          map(str.isspace, map(_LAST, texts)))]
+    first, last = list(map(str.isspace, map(_FIRST, texts))), list(map(str.isspace, map(_LAST, texts)))
+    spaces = ([' xml:space="preserve"' if a or b else "" for a, b in zip(first, last)] if any(first) or any(last)
+              else repeat(""))
     out = list(map("".join, zip(repeat(f'<c r="{letter}'), rs, map(attrs.__getitem__, styles), spaces, repeat(">"),
                                 texts, repeat("</t></is></c>"))))
     if "" in texts:
