@@ -36,7 +36,7 @@ def round_sig(a: np.ndarray, digits: int = 6) -> list:
     """
     a = np.asarray(a, dtype=float)
     finite = np.isfinite(a)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):   # such values go by _num below
         exp = np.floor(np.log10(np.abs(np.where(finite & (a != 0), a, 1.0))))
         k = (digits - 1 - exp).astype(int)
         up = k >= 0
@@ -47,9 +47,11 @@ def round_sig(a: np.ndarray, digits: int = 6) -> list:
         tie = np.abs(np.abs(scaled - np.floor(scaled)) - 0.5) < 1e-6
     r = np.where(a == 0, 0.0, r)
     out = r.tolist()
-    # not finite -> None; beyond 1e22 a power of ten is not exact in a double, and a near-tie may round the
-    # other way than the exact binary value does: format those one by one, as _num does
-    for i in np.nonzero(~finite | (np.abs(k) > 22) | tie)[0]:
+    for i in np.flatnonzero(~finite).tolist():       # not finite -> None (a column of gaps is mostly NaN)
+        out[i] = None
+    # beyond 1e22 a power of ten is not exact in a double, and a near-tie may round the other way than the
+    # exact binary value does: format those one by one, as _num does
+    for i in np.flatnonzero(finite & ((np.abs(k) > 22) | tie)).tolist():
         out[i] = _num(a[i], digits)
     return out
 
