@@ -81,8 +81,9 @@ class Review:
 def _resolve_classes(df: pd.DataFrame, rules: Rules, src: str) -> pd.DataFrame:
     names = []
     cache: dict[tuple[str, str], str] = {}
-    for net, explicit, row in zip(df["net"], df["net_class"], df["row"]):
-        key = (net, explicit)
+    by_pattern = any(c.match for c in rules.classes)    # else a net's name cannot change its class
+    for net, explicit, row in zip(*(df[c].to_numpy(object).tolist() for c in ("net", "net_class", "row"))):
+        key = (net if by_pattern and not explicit else "", explicit)
         if key not in cache:
             cls = rules.class_for(net, explicit or None)
             if explicit and cls is None:

@@ -145,14 +145,18 @@ def via_table(seg: pd.DataFrame, stackup, topology: dict | None = None) -> pd.Da
     out: list[tuple] = []
     has_export = "vias" in seg.columns
     mirrored = seg["mirrored"].to_numpy(bool) if "mirrored" in seg.columns else np.zeros(len(seg), bool)
-    cols = [seg[c].to_numpy() for c in ("net", "pair", "row", "layer", "freq")]
+    cols = [seg[c].to_numpy().tolist() for c in ("net", "pair", "row", "layer", "freq")]
     extra = seg["vias"].to_numpy(float) if has_export else np.zeros(len(seg))
     order: dict[str, list[int]] = {}
     for i, net in enumerate(cols[0]):
         order.setdefault(net, []).append(i)
 
+    known: dict[tuple[str, str], Transition] = {}     # hashing the stackup for the lru_cache costs more than a via
+
     def add(i, a, b, how, count=1, with_delay=True):
-        t = transition(stackup, a, b)
+        t = known.get((a, b))
+        if t is None:
+            t = known[(a, b)] = transition(stackup, a, b)
         out.append((cols[0][i], cols[1][i], int(cols[2][i]), a, b, how, count, t.stub_length, t.stub_er, t.stub_to,
                     t.stub_resonance, t.barrel_length, t.barrel_delay if with_delay else 0.0, float(cols[4][i]),
                     bool(mirrored[i])))

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label
+from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label, plain_rows
 
 MIN_RESONANCE_RATIO = Param(
     "min_resonance_ratio", "number", 3.0, "x f", "a via stub's quarter-wave resonance must lie at least this many "
@@ -35,11 +35,11 @@ def grouped(vias):
 
     Yields (ident, label, first via row, all via rows of the group)."""
     # plain lists and one name lookup per net: a large board has a via per layer change
-    rows = list(vias.itertuples(index=False))
     names: dict[tuple, tuple[str, str]] = {}
     groups: dict[tuple, list] = {}
-    for r, net, pair, how, a, b in zip(rows, vias["net"].tolist(), vias["pair"].tolist(), vias["how"].tolist(),
-                                      vias["from_layer"].str.lower().tolist(), vias["to_layer"].str.lower().tolist()):
+    text = [vias[c].to_numpy(object).tolist() for c in ("net", "pair", "how")]
+    lower = [vias[c].str.lower().to_numpy(object).tolist() for c in ("from_layer", "to_layer")]
+    for r, net, pair, how, a, b in zip(plain_rows(vias), *text, *lower):
         named = names.get((net, pair))
         if named is None:
             named = names[(net, pair)] = (pair_id(net, pair), pair_label(net, pair)) if pair else (net, net)
