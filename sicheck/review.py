@@ -391,14 +391,15 @@ def _layer_paths(seg: pd.DataFrame, nets: pd.Index) -> np.ndarray:
 
 def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     g = seg.groupby("net", sort=False)
-    first = g.first()
+    first = g[["net_class", "pair", "freq", "driver_ohm", "load_pf", "mirrored", "zdiff", "z0", "zodd"]].first()
     # length, delay and loss along the main path (driver to the farthest receiver); all rows when not marked
     on = seg["on_path"].to_numpy(bool) if "on_path" in seg.columns else np.ones(len(seg), bool)
     gp = pd.DataFrame({"net": seg["net"], **{c: np.where(on, seg[c].to_numpy(float), 0.0)
                                              for c in ("length", "delay", "loss_db", "via_delay")
                                              if c in seg.columns}}).groupby("net", sort=False)
     if "driver_end" in seg.columns:      # the driver-end segment's impedance, not the first row's
-        de = seg[seg["driver_end"].to_numpy(bool)].groupby("net", sort=False).first().reindex(first.index)
+        de = (seg.loc[seg["driver_end"].to_numpy(bool), ["net", "zdiff", "z0", "zodd"]].groupby("net", sort=False)
+              .first().reindex(first.index))
         first = first.assign(zdiff=de["zdiff"], z0=de["z0"], zodd=de["zodd"])
     nets = pd.DataFrame({
         "net": first.index.to_numpy(),
@@ -430,32 +431,27 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     nets["wavelength_at_knee"] = velocity / nets["knee_hz"]
     nets["lumped_limit_length"] = rules.lumped_max_td_over_tr * nets["rise_time"] * velocity
     nets["critical_length"] = rules.required_min_td_over_tr * nets["rise_time"] * velocity
-    series, advice, short = [], [], []
-    for r in nets.itertuples(index=False):
-        needs = r.termination != electrical.NOT_NEEDED
+    # a net that needs no termination gets no series value, advice or proposal: only the others are visited
+    n = len(nets)
+    series, advice, short = [None] * n, [""] * n, [""] * n
+    needs = (nets["termination"] != electrical.NOT_NEEDED).to_numpy()
+    todo = np.nonzero(needs)[0]
+    from sicheck.checks.engine import plain_rows
+    for i, r in zip(todo.tolist(), plain_rows(nets.iloc[todo][["pair", "driver_ohm", "delay", "z_driver_end",
+                                                                "zodd_driver_end"]])):
         drv = None if np.isnan(r.driver_ohm) else float(r.driver_ohm)
         if r.pair:
-            series.append(None)
-            if needs:
-                opts = termination.advise(float(r.zodd_driver_end), float(r.delay), drv,
-                                          zdiff=float(r.z_driver_end))
-                advice.append(opts[0].text)
-                short.append(f"{opts[0].end_ohm:g} ohm differential")
-            else:
-                advice.append("")
-                short.append("")
+            opts = termination.advise(float(r.zodd_driver_end), float(r.delay), drv, zdiff=float(r.z_driver_end))
+            advice[i] = opts[0].text
+            short[i] = f"{opts[0].end_ohm:g} ohm differential"
             continue
-        rs = termination.series_value(float(r.z_driver_end), drv) if (needs and drv is not None) else None
-        series.append(rs)
-        if needs:
-            opts = termination.advise(float(r.z_driver_end), float(r.delay), drv)
-            advice.append("; or ".join(o.text for o in opts[:2]) if drv is None else opts[0].text +
-                          "; alternatives: " + "; ".join(o.text for o in opts[1:]))
-            short.append(f"{rs:g} ohm series" if rs is not None else
-                         ("series Z0-Rdrv, or " if drv is None else "") + f"{opts[1].end_ohm:g} ohm at far end")
-        else:
-            advice.append("")
-            short.append("")
+        rs = termination.series_value(float(r.z_driver_end), drv) if drv is not None else None
+        series[i] = rs
+        opts = termination.advise(float(r.z_driver_end), float(r.delay), drv)
+        advice[i] = ("; or ".join(o.text for o in opts[:2]) if drv is None else opts[0].text +
+                     "; alternatives: " + "; ".join(o.text for o in opts[1:]))
+        short[i] = (f"{rs:g} ohm series" if rs is not None else
+                    ("series Z0-Rdrv, or " if drv is None else "") + f"{opts[1].end_ohm:g} ohm at far end")
     nets["series_ohm"] = series
     nets["advice"] = advice
     nets["proposal"] = short

@@ -147,6 +147,7 @@ def via_table(seg: pd.DataFrame, stackup, topology: dict | None = None) -> pd.Da
     mirrored = seg["mirrored"].to_numpy(bool) if "mirrored" in seg.columns else np.zeros(len(seg), bool)
     cols = [seg[c].to_numpy().tolist() for c in ("net", "pair", "row", "layer", "freq")]
     extra = seg["vias"].to_numpy(float) if has_export else np.zeros(len(seg))
+    any_export = bool((extra > 0).any())
     order: dict[str, list[int]] = {}
     for i, net in enumerate(cols[0]):
         order.setdefault(net, []).append(i)
@@ -176,7 +177,7 @@ def via_table(seg: pd.DataFrame, stackup, topology: dict | None = None) -> pd.Da
                     add(idx[k], layers[k - 1], layers[k], "layer change")
             if layers[-1] in inner:
                 add(idx[-1], layers[-1], comp, "escape")
-        for i in idx:
+        for i in (idx if any_export else ()):
             n = extra[i]
             if n > 0:
                 if cols[3][i].lower() == comp.lower():

@@ -223,7 +223,7 @@ def run_checks(ctx: ReviewContext, checks: Iterable[Check] | None = None) -> lis
         if level == "off":
             continue
         for f in chk.fn(ctx, chk):
-            out.append(replace(f, severity=f.severity or level))
+            out.append(f if f.severity else replace(f, severity=level))
     seen: dict[str, int] = {}
     for i, f in enumerate(out):
         n = seen.get(f.key, 0) + 1

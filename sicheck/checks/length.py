@@ -21,8 +21,10 @@ def lines_longest_first(nets):
     """Nets that need termination, longest delay first, a pair once (by its longer leg)."""
     from sicheck.physics.electrical import NOT_NEEDED
     done: set = set()
-    order = nets.sort_values("delay", ascending=False)
-    for r in plain_rows(order[(order["termination"] != NOT_NEEDED).to_numpy()]):
+    # positions in the order nets.sort_values("delay", ascending=False) gives, without sorting every column
+    order = nets["delay"].reset_index(drop=True).sort_values(ascending=False).index.to_numpy()
+    order = order[(nets["termination"].to_numpy(object) != NOT_NEEDED)[order]]
+    for r in plain_rows(nets.iloc[order]):
         if r.pair:
             ident = pair_id(r.net, r.pair)
             if ident in done:
