@@ -228,7 +228,10 @@ def _numeric_column(cells: pd.Series, rows: pd.Series, canon: str, header_label:
     units = np.full(len(text), "", dtype=object)
     if need.any():
         at = np.nonzero(need)[0]
-        parts = text.iloc[at].str.extract(QUANTITY_RE)
+        # each distinct cell text through the pattern once (a column repeats a few values like 350ps)
+        sub = text.iloc[at]
+        codes, uniq = pd.factorize(sub)
+        parts = pd.Series(uniq, dtype=sub.dtype).str.extract(QUANTITY_RE).iloc[codes].set_axis(sub.index)
         bad = parts[0].isna().to_numpy()
         if bad.any():
             i = int(at[np.argmax(bad)])
