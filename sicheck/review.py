@@ -109,8 +109,8 @@ def _class_value(df: pd.DataFrame, rules: Rules, column: str, attr: str) -> np.n
 
 
 def _check_pairs(df: pd.DataFrame, src: str) -> None:
-    nets = set(df["net"])
-    for net, partner, row in zip(df["net"], df["pair"], df["row"]):
+    nets = set(df["net"].to_numpy(object).tolist())
+    for net, partner, row in zip(*(df[c].to_numpy(object).tolist() for c in ("net", "pair", "row"))):
         if partner and partner == net:
             raise InputError(f"net '{net}' is paired with itself", file=src, row=int(row), column="pair")
     # A partner that lists its own rows must name this net back.
@@ -173,7 +173,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     # ---- the frequency each net works at: its class's freq, else the knee 0.5/Tr of its edge
     class_freq = {c.name: c.freq for c in rules.classes if c.freq}
     knee = 0.5 / df["net"].map(net_tr).to_numpy(float)
-    df["freq"] = np.array([class_freq.get(c, k) for c, k in zip(df["net_class"], knee)], dtype=float)
+    df["freq"] = np.array([class_freq.get(c, k) for c, k in zip(df["net_class"].to_numpy(object).tolist(), knee)],
+                          dtype=float)
 
     # ---- unique cross-sections, solved once each (per frequency only when a dielectric is dispersive)
     gap_key = df["gap"].fillna(-1.0)
@@ -214,9 +215,10 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
         if leg in topology:
             topology.setdefault(partner, topology[leg])
     from sicheck.topology import CHAIN_NOTE
+    net_names = nets["net"].to_numpy(object).tolist()
     nets["topology_note"] = [topology[n].note if n in topology else (CHAIN_NOTE if k > 1 else "")
-                             for n, k in zip(nets["net"], nets["segments"])]
-    nets["topology"] = [_topology_summary(topology[n]) if n in topology else None for n in nets["net"]]
+                             for n, k in zip(net_names, nets["segments"].to_numpy().tolist())]
+    nets["topology"] = [_topology_summary(topology[n]) if n in topology else None for n in net_names]
     waves: dict = {}
     if waveforms:
         from sicheck.waveform_review import simulate_nets

@@ -192,7 +192,7 @@ def via_delay_per_row(seg: pd.DataFrame, vias: pd.DataFrame) -> np.ndarray:
     """Each segment's share of barrel delay (the vias entered on its row), aligned with ``seg``'s rows.
 
     Matched on (net, row): a mirrored partner's rows carry the same row numbers as its listed leg's."""
-    add = vias.groupby(["net", "row"])["barrel_delay"].sum()
+    add = vias.groupby(["net", "row"], sort=False)["barrel_delay"].sum()      # order: reindexed below
     if add.empty:
         return np.zeros(len(seg))
     # a net's row may repeat only when the export lists a row twice; share the vias' delay among them
@@ -205,7 +205,7 @@ def net_via_summary(nets: pd.DataFrame, vias: pd.DataFrame) -> tuple[np.ndarray,
     """(number of vias, lowest stub resonance in Hz or NaN) per net of ``nets``."""
     if vias.empty:
         return np.zeros(len(nets), int), np.full(len(nets), np.nan)
-    count = vias.groupby("net")["count"].sum()
-    fres = vias[np.isfinite(vias["stub_resonance"])].groupby("net")["stub_resonance"].min()
+    count = vias.groupby("net", sort=False)["count"].sum()         # order: looked up by name below
+    fres = vias[np.isfinite(vias["stub_resonance"])].groupby("net", sort=False)["stub_resonance"].min()
     n = nets["net"]
     return n.map(count).fillna(0).to_numpy(int), n.map(fres).to_numpy(float)

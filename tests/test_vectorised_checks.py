@@ -97,3 +97,32 @@ def test_budgets_on_a_board_whose_class_sets_none():
     seg = segments({"net": "A", "net_class": "LV", "loss_db": 9.0, "length_mm": 500.0})
     assert findings(seg, rules([cls("LV")]), "loss-budget") == []
     assert findings(seg, rules([cls("LV")]), "delay-budget") == []
+
+
+def _grouped_via_by_via(vias):
+    """The former loop: one dict lookup per via."""
+    groups: dict = {}
+    for r in vias.itertuples(index=False):
+        ident, label = (pair_id(r.net, r.pair), f"{r.net} & {r.pair}") if r.pair else (r.net, r.net)
+        a, b = r.from_layer.lower(), r.to_layer.lower()
+        g = groups.setdefault((ident, r.how == "export", (a, b) if a <= b else (b, a)), [ident, label, []])
+        g[2].append(r)
+    for ident, label, rows in groups.values():
+        legs = {r.net for r in rows}
+        one = [r for r in rows if r.net == min(legs)] if len(legs) > 1 else rows
+        yield ident, label, one[0], one
+
+
+@settings(max_examples=80, deadline=None)
+@given(st.lists(st.tuples(st.sampled_from([("A", ""), ("D_P", "D_N"), ("D_N", "D_P"), ("B", "A")]),
+                          st.sampled_from(["TOP", "In1", "in1", "BOT"]), st.sampled_from(["TOP", "In1", "BOT"]),
+                          st.sampled_from(["layer change", "escape", "export"])), max_size=10))
+def test_grouped_vias_as_the_via_by_via_loop(rows):
+    from sicheck.checks.vias import grouped
+    vias = pd.DataFrame([{"net": n, "pair": p, "row": i + 2, "from_layer": a, "to_layer": b, "how": h, "count": 1}
+                         for i, ((n, p), a, b, h) in enumerate(rows)],
+                        columns=["net", "pair", "row", "from_layer", "to_layer", "how", "count"])
+    vias = vias.astype({c: "str" for c in ("net", "pair", "from_layer", "to_layer", "how")})
+    got, want = list(grouped(vias)), list(_grouped_via_by_via(vias))
+    assert [(i, l, tuple(f), [tuple(r) for r in rs]) for i, l, f, rs in got] == \
+           [(i, l, tuple(f), [tuple(r) for r in rs]) for i, l, f, rs in want]

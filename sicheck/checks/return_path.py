@@ -92,7 +92,7 @@ def return_path(ctx, chk):
         refs = references(st, layer)
         if not refs or any(is_ground(nets[p]) for p in refs):
             continue
-        on = list(dict.fromkeys(seg.loc[seg["layer"] == layer, "net"]))
+        on = list(dict.fromkeys(seg.loc[seg["layer"] == layer, "net"].to_numpy(object).tolist()))
         shown = ", ".join(on[:4]) + (f" and {len(on) - 4} more" if len(on) > 4 else "")
         yield chk.finding("", layer, f"layer {layer} is referenced only to power ({_planes(refs, nets)}); "
                           f"{len(on)} net{'s' if len(on) > 1 else ''} route on it ({shown}): their return current "
