@@ -211,7 +211,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     from sicheck.on_die import mark_nets
     nets = mark_nets(nets, rules)     # receivers terminated on the die: no external part proposed
     nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
-    for partner, leg in zip(mirror["net"], mirror["pair"]):     # listed only through its pair: its leg's shape
+    # a partner listed only through its pair has its leg's shape
+    for partner, leg in zip(mirror["net"].to_numpy(object).tolist(), mirror["pair"].to_numpy(object).tolist()):
         if leg in topology:
             topology.setdefault(partner, topology[leg])
     from sicheck.topology import CHAIN_NOTE
@@ -241,7 +242,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
 def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup, topology: dict) -> pd.DataFrame:
     """The board's vias; each segment gains `via_delay`, the barrel delay of the vias entered on its row."""
     # a partner listed only through its pair has its leg's shape
-    legs = dict(zip(all_seg.loc[all_seg["mirrored"], "net"], all_seg.loc[all_seg["mirrored"], "pair"]))
+    m = all_seg["mirrored"].to_numpy(bool)
+    legs = dict(zip(all_seg["net"].to_numpy(object)[m].tolist(), all_seg["pair"].to_numpy(object)[m].tolist()))
     shapes = {**{p: topology[leg] for p, leg in legs.items() if leg in topology}, **topology}
     vias = via_table(all_seg, stackup, shapes)
     all_seg["via_delay"] = via_delay_per_row(all_seg, vias)
@@ -388,7 +390,7 @@ def _layer_paths(seg: pd.DataFrame, nets: pd.Index) -> np.ndarray:
     for net, layer in zip(dd["net"].to_numpy(), dd["layer"].to_numpy()):
         p = paths.get(net)
         paths[net] = layer if p is None else f"{p} > {layer}"
-    return np.array([paths[n] for n in nets], dtype=object)
+    return np.array([paths[n] for n in nets.to_numpy(object).tolist()], dtype=object)
 
 
 def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
