@@ -126,3 +126,47 @@ def test_grouped_vias_as_the_via_by_via_loop(rows):
     got, want = list(grouped(vias)), list(_grouped_via_by_via(vias))
     assert [(i, l, tuple(f), [tuple(r) for r in rs]) for i, l, f, rs in got] == \
            [(i, l, tuple(f), [tuple(r) for r in rs]) for i, l, f, rs in want]
+
+
+def _via_rows_row_by_row(seg, st):
+    """The former via table for nets in series (no from/to): (net, row, from, to, how, count, barrel delay)."""
+    from sicheck.via_table import component_layer, inner_layers, transition
+    comp, inner, out, order = component_layer(st), inner_layers(st), [], {}
+    for i, n in enumerate(seg["net"]):
+        order.setdefault(n, []).append(i)
+    lay, rows, extra = seg["layer"].tolist(), seg["row"].tolist(), seg["vias"].tolist()
+    for n, idx in order.items():
+        ls = [lay[i] for i in idx]
+        if ls[0] in inner:
+            out.append((n, rows[idx[0]], comp, ls[0], "escape", 1, transition(st, comp, ls[0]).barrel_delay))
+        for k in range(1, len(idx)):
+            if ls[k] != ls[k - 1]:
+                out.append((n, rows[idx[k]], ls[k - 1], ls[k], "layer change", 1,
+                            transition(st, ls[k - 1], ls[k]).barrel_delay))
+        if ls[-1] in inner:
+            out.append((n, rows[idx[-1]], ls[-1], comp, "escape", 1, transition(st, ls[-1], comp).barrel_delay))
+        for i in idx:
+            if extra[i] > 0:
+                to = comp if lay[i].lower() == comp.lower() else lay[i]
+                out.append((n, rows[i], comp, to, "export", int(extra[i]), 0.0))
+    return out
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.tuples(st.sampled_from(["A", "B", "C"]), st.sampled_from(["TOP", "IN3", "IN4", "BOT"]),
+                          st.sampled_from([0.0, 0.0, 1.0, 3.0])), max_size=12))
+def test_via_table_as_the_row_by_row_loop(rows):
+    from sicheck.resources import demo_dir
+    from sicheck.stackup import load_stackup
+    from sicheck.via_table import via_table
+    stk = load_stackup(demo_dir() / "stackup.toml")
+    seg = pd.DataFrame([{"net": n, "pair": "", "row": i + 2, "layer": l, "freq": 1e9, "vias": v, "mirrored": False}
+                        for i, (n, l, v) in enumerate(rows)],
+                       columns=["net", "pair", "row", "layer", "freq", "vias", "mirrored"])
+    seg = seg.astype({"net": "str", "pair": "str", "layer": "str"})
+    got = via_table(seg, stk)
+    want = _via_rows_row_by_row(seg, stk)
+    assert list(zip(got["net"], got["row"], got["from_layer"], got["to_layer"], got["how"], got["count"],
+                    got["barrel_delay"])) == want
+    if not want:
+        assert got.empty
