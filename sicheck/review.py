@@ -102,8 +102,8 @@ def _class_value(df: pd.DataFrame, rules: Rules, column: str, attr: str) -> np.n
     missing = np.isnan(vals)
     if missing.any():
         by_class = {c.name: getattr(c, attr) for c in rules.classes}
-        fill = df["net_class"].map(lambda n: by_class.get(n)).to_numpy(object)
-        fill = np.array([np.nan if v is None else v for v in fill], dtype=float)
+        codes, names = pd.factorize(df["net_class"].to_numpy(object), use_na_sentinel=False)   # a lookup per class
+        fill = np.array([np.nan if by_class.get(n) is None else by_class.get(n) for n in names], dtype=float)[codes]
         vals[missing] = fill[missing]
     return vals
 
@@ -200,7 +200,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     topology = _topology(df, seg, rules, src)
 
     # ---- partners listed only through their pair: mirror their segments for the net table
-    listed = set(df["net"])
+    listed = set(df["net"].to_numpy(object).tolist())
     mirror = seg[(seg["pair"] != "") & ~seg["pair"].isin(listed)].copy()
     if len(mirror):
         mirror["net"], mirror["pair"] = mirror["pair"].to_numpy(), mirror["net"].to_numpy()

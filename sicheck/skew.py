@@ -195,7 +195,8 @@ def pair_skew(nets: pd.DataFrame) -> np.ndarray:
     through its partner's rows (its delay is a copy, so its skew is unknown)."""
     net_col, pair_col = nets["net"].to_numpy(object).tolist(), nets["pair"].to_numpy(object).tolist()
     delay = dict(zip(net_col, nets["delay"].to_numpy(float)))
-    mirrored = set(nets.loc[nets["mirrored"].to_numpy(bool), "net"]) if "mirrored" in nets.columns else set()
+    mirrored = (set(nets.loc[nets["mirrored"].to_numpy(bool), "net"].to_numpy(object).tolist())
+                if "mirrored" in nets.columns else set())
     out = np.full(len(nets), np.nan)
     for i, (net, pair) in enumerate(zip(net_col, pair_col)):
         if pair and pair in delay and net not in mirrored and pair not in mirrored:

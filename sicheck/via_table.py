@@ -229,13 +229,17 @@ def via_delay_per_row(seg: pd.DataFrame, vias: pd.DataFrame) -> np.ndarray:
     """Each segment's share of barrel delay (the vias entered on its row), aligned with ``seg``'s rows.
 
     Matched on (net, row): a mirrored partner's rows carry the same row numbers as its listed leg's."""
-    add = vias.groupby(["net", "row"], sort=False)["barrel_delay"].sum()      # order: reindexed below
-    if add.empty:
+    if vias.empty:
         return np.zeros(len(seg))
+    # (net, row) as one integer: the net's code among both tables' names, then the row
+    codes, _ = pd.factorize(np.concatenate([seg["net"].to_numpy(object), vias["net"].to_numpy(object)]))
+    rows = np.concatenate([seg["row"].to_numpy(np.int64), vias["row"].to_numpy(np.int64)])
+    key = codes.astype(np.int64) * (int(rows.max() - rows.min()) + 1) + (rows - rows.min())
+    seg_key, via_key = key[:len(seg)], key[len(seg):]
+    add = vias["barrel_delay"].groupby(via_key).sum()
     # a net's row may repeat only when the export lists a row twice; share the vias' delay among them
-    keys = pd.MultiIndex.from_arrays([seg["net"].to_numpy(), seg["row"].to_numpy()])
-    counts = pd.Series(1, index=keys).groupby(level=[0, 1]).transform("size").to_numpy()
-    return add.reindex(keys).fillna(0.0).to_numpy(float) / counts
+    _, at, counts = np.unique(seg_key, return_inverse=True, return_counts=True)
+    return add.reindex(seg_key).fillna(0.0).to_numpy(float) / counts[at]
 
 
 def net_via_summary(nets: pd.DataFrame, vias: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:

@@ -121,7 +121,7 @@ def z_step(ctx, chk):
     import pandas as pd
     seg = ctx.segments
     nets = ctx.nets
-    lines = set(nets.loc[nets["electrical"] != "lumped", "net"])
+    lines = set(nets.loc[nets["electrical"] != "lumped", "net"].to_numpy(object).tolist())
     limit = ctx.param("z_step_pct")
     paired = (seg["pair"] != "").to_numpy()
     z = np.where(paired, seg["zdiff"].to_numpy(float), seg["z0"].to_numpy(float))

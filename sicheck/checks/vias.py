@@ -44,7 +44,11 @@ def grouped(vias):
     ident = np.where(paired & (pair < net), pair + PAIR_SEP + net, label)        # pair_id: names sorted
     a, b = (vias[c].str.lower().to_numpy(object) for c in ("from_layer", "to_layer"))
     lo, hi = np.where(a <= b, a, b), np.where(a <= b, b, a)
-    codes, _ = pd.factorize(pd.MultiIndex.from_arrays([ident, (vias["how"] == "export").to_numpy(), lo, hi]))
+    key = np.zeros(len(vias), np.int64)        # the four parts as one integer (each part's code, mixed radix)
+    for part in (ident, (vias["how"] == "export").to_numpy(), lo, hi):
+        c, u = pd.factorize(part)
+        key = key * (len(u) + 1) + c
+    codes, _ = pd.factorize(key)
     order = np.argsort(codes, kind="stable")             # groups in order of their first via
     starts = np.flatnonzero(np.r_[True, codes[order][1:] != codes[order][:-1]])
     first_net = net[order][starts]
@@ -93,7 +97,8 @@ def via_stub(ctx, chk):
     ratio = float(ctx.param("min_resonance_ratio"))
     kind = ctx.stackup.vias.kind if ctx.stackup is not None else "through"
     cls_freq = {name: c.freq for name, c in ctx.classes.items() if c.freq}
-    net_class = dict(zip(ctx.nets["net"], ctx.nets["net_class"]))        # mirrored partners included
+    net_class = dict(zip(ctx.nets["net"].to_numpy(object).tolist(),          # mirrored partners included
+                         ctx.nets["net_class"].to_numpy(object).tolist()))
     res, freq = vias["stub_resonance"].to_numpy(float), vias["freq"].to_numpy(float)
     low = np.isfinite(res) & (res < ratio * freq)        # only the vias that resonate too low are grouped
     for ident, label, first, rows in grouped(vias[low]):
