@@ -51,10 +51,9 @@ def grouped(vias):
     codes, _ = pd.factorize(key)
     order = np.argsort(codes, kind="stable")             # groups in order of their first via
     starts = np.flatnonzero(np.r_[True, codes[order][1:] != codes[order][:-1]])
-    first_net = net[order][starts]
-    both = np.zeros(len(starts), bool)                   # both legs of a pair in the group
-    np.logical_or.at(both, np.repeat(np.arange(len(starts)), np.diff(np.r_[starts, len(order)])),
-                     net[order] != np.repeat(first_net, np.diff(np.r_[starts, len(order)])))
+    size = np.diff(np.r_[starts, len(order)])
+    other_leg = net[order] != np.repeat(net[order][starts], size)
+    both = np.bincount(np.repeat(np.arange(len(starts)), size), weights=other_leg, minlength=len(starts)) > 0
     rows = list(plain_rows(vias))
     order_list, ends = order.tolist(), np.r_[starts[1:], len(order)].tolist()
     for k, (s, e) in enumerate(zip(starts.tolist(), ends)):
