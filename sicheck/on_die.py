@@ -64,10 +64,15 @@ def mark_nets(nets: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     """Nets table with column `on_die` (what terminates the receiver on the die, else "") and the
     first-order advice of such nets replaced: no external part (the waveform stage checks the limits)."""
     classes = {c.name: c for c in rules.classes}
-    on_die, advice, short = [], list(nets["advice"]), list(nets["proposal"])
+    on_die, advice, short = [], nets["advice"].to_numpy(object).tolist(), nets["proposal"].to_numpy(object).tolist()
     series = list(nets["series_ohm"])
-    for k, (cls_name, pair, term) in enumerate(zip(nets["net_class"], nets["pair"], nets["termination"])):
-        od = on_die_for(rules, classes.get(cls_name), bool(pair))
+    known: dict[tuple[str, bool], OnDie | None] = {}        # one lookup per class and kind of net
+    for k, (cls_name, pair, term) in enumerate(zip(*(nets[c].to_numpy(object).tolist()
+                                                     for c in ("net_class", "pair", "termination")))):
+        at = (cls_name, bool(pair))
+        if at not in known:
+            known[at] = on_die_for(rules, classes.get(cls_name), bool(pair))
+        od = known[at]
         on_die.append(od.short if od else "")
         if od is not None and term != "not-needed":
             advice[k] = f"{od.text}: no external part (a series part at the driver if the waveform needs more)"

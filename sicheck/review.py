@@ -81,8 +81,9 @@ class Review:
 def _resolve_classes(df: pd.DataFrame, rules: Rules, src: str) -> pd.DataFrame:
     names = []
     cache: dict[tuple[str, str], str] = {}
-    for net, explicit, row in zip(df["net"], df["net_class"], df["row"]):
-        key = (net, explicit)
+    by_pattern = any(c.match for c in rules.classes)    # else a net's name cannot change its class
+    for net, explicit, row in zip(*(df[c].to_numpy(object).tolist() for c in ("net", "net_class", "row"))):
+        key = (net if by_pattern and not explicit else "", explicit)
         if key not in cache:
             cls = rules.class_for(net, explicit or None)
             if explicit and cls is None:
@@ -101,15 +102,15 @@ def _class_value(df: pd.DataFrame, rules: Rules, column: str, attr: str) -> np.n
     missing = np.isnan(vals)
     if missing.any():
         by_class = {c.name: getattr(c, attr) for c in rules.classes}
-        fill = df["net_class"].map(lambda n: by_class.get(n)).to_numpy(object)
-        fill = np.array([np.nan if v is None else v for v in fill], dtype=float)
+        codes, names = pd.factorize(df["net_class"].to_numpy(object), use_na_sentinel=False)   # a lookup per class
+        fill = np.array([np.nan if by_class.get(n) is None else by_class.get(n) for n in names], dtype=float)[codes]
         vals[missing] = fill[missing]
     return vals
 
 
 def _check_pairs(df: pd.DataFrame, src: str) -> None:
-    nets = set(df["net"])
-    for net, partner, row in zip(df["net"], df["pair"], df["row"]):
+    nets = set(df["net"].to_numpy(object).tolist())
+    for net, partner, row in zip(*(df[c].to_numpy(object).tolist() for c in ("net", "pair", "row"))):
         if partner and partner == net:
             raise InputError(f"net '{net}' is paired with itself", file=src, row=int(row), column="pair")
     # A partner that lists its own rows must name this net back.
@@ -172,7 +173,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     # ---- the frequency each net works at: its class's freq, else the knee 0.5/Tr of its edge
     class_freq = {c.name: c.freq for c in rules.classes if c.freq}
     knee = 0.5 / df["net"].map(net_tr).to_numpy(float)
-    df["freq"] = np.array([class_freq.get(c, k) for c, k in zip(df["net_class"], knee)], dtype=float)
+    df["freq"] = np.array([class_freq.get(c, k) for c, k in zip(df["net_class"].to_numpy(object).tolist(), knee)],
+                          dtype=float)
 
     # ---- unique cross-sections, solved once each (per frequency only when a dielectric is dispersive)
     gap_key = df["gap"].fillna(-1.0)
@@ -198,7 +200,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     topology = _topology(df, seg, rules, src)
 
     # ---- partners listed only through their pair: mirror their segments for the net table
-    listed = set(df["net"])
+    listed = set(df["net"].to_numpy(object).tolist())
     mirror = seg[(seg["pair"] != "") & ~seg["pair"].isin(listed)].copy()
     if len(mirror):
         mirror["net"], mirror["pair"] = mirror["pair"].to_numpy(), mirror["net"].to_numpy()
@@ -209,13 +211,15 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     from sicheck.on_die import mark_nets
     nets = mark_nets(nets, rules)     # receivers terminated on the die: no external part proposed
     nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
-    for partner, leg in zip(mirror["net"], mirror["pair"]):     # listed only through its pair: its leg's shape
+    # a partner listed only through its pair has its leg's shape
+    for partner, leg in zip(mirror["net"].to_numpy(object).tolist(), mirror["pair"].to_numpy(object).tolist()):
         if leg in topology:
             topology.setdefault(partner, topology[leg])
     from sicheck.topology import CHAIN_NOTE
+    net_names = nets["net"].to_numpy(object).tolist()
     nets["topology_note"] = [topology[n].note if n in topology else (CHAIN_NOTE if k > 1 else "")
-                             for n, k in zip(nets["net"], nets["segments"])]
-    nets["topology"] = [_topology_summary(topology[n]) if n in topology else None for n in nets["net"]]
+                             for n, k in zip(net_names, nets["segments"].to_numpy().tolist())]
+    nets["topology"] = [_topology_summary(topology[n]) if n in topology else None for n in net_names]
     waves: dict = {}
     if waveforms:
         from sicheck.waveform_review import simulate_nets
@@ -238,7 +242,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
 def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup, topology: dict) -> pd.DataFrame:
     """The board's vias; each segment gains `via_delay`, the barrel delay of the vias entered on its row."""
     # a partner listed only through its pair has its leg's shape
-    legs = dict(zip(all_seg.loc[all_seg["mirrored"], "net"], all_seg.loc[all_seg["mirrored"], "pair"]))
+    m = all_seg["mirrored"].to_numpy(bool)
+    legs = dict(zip(all_seg["net"].to_numpy(object)[m].tolist(), all_seg["pair"].to_numpy(object)[m].tolist()))
     shapes = {**{p: topology[leg] for p, leg in legs.items() if leg in topology}, **topology}
     vias = via_table(all_seg, stackup, shapes)
     all_seg["via_delay"] = via_delay_per_row(all_seg, vias)
@@ -385,19 +390,20 @@ def _layer_paths(seg: pd.DataFrame, nets: pd.Index) -> np.ndarray:
     for net, layer in zip(dd["net"].to_numpy(), dd["layer"].to_numpy()):
         p = paths.get(net)
         paths[net] = layer if p is None else f"{p} > {layer}"
-    return np.array([paths[n] for n in nets], dtype=object)
+    return np.array([paths[n] for n in nets.to_numpy(object).tolist()], dtype=object)
 
 
 def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     g = seg.groupby("net", sort=False)
-    first = g.first()
+    first = g[["net_class", "pair", "freq", "driver_ohm", "load_pf", "mirrored", "zdiff", "z0", "zodd"]].first()
     # length, delay and loss along the main path (driver to the farthest receiver); all rows when not marked
     on = seg["on_path"].to_numpy(bool) if "on_path" in seg.columns else np.ones(len(seg), bool)
     gp = pd.DataFrame({"net": seg["net"], **{c: np.where(on, seg[c].to_numpy(float), 0.0)
                                              for c in ("length", "delay", "loss_db", "via_delay")
                                              if c in seg.columns}}).groupby("net", sort=False)
     if "driver_end" in seg.columns:      # the driver-end segment's impedance, not the first row's
-        de = seg[seg["driver_end"].to_numpy(bool)].groupby("net", sort=False).first().reindex(first.index)
+        de = (seg.loc[seg["driver_end"].to_numpy(bool), ["net", "zdiff", "z0", "zodd"]].groupby("net", sort=False)
+              .first().reindex(first.index))
         first = first.assign(zdiff=de["zdiff"], z0=de["z0"], zodd=de["zodd"])
     nets = pd.DataFrame({
         "net": first.index.to_numpy(),
@@ -429,32 +435,27 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     nets["wavelength_at_knee"] = velocity / nets["knee_hz"]
     nets["lumped_limit_length"] = rules.lumped_max_td_over_tr * nets["rise_time"] * velocity
     nets["critical_length"] = rules.required_min_td_over_tr * nets["rise_time"] * velocity
-    series, advice, short = [], [], []
-    for r in nets.itertuples(index=False):
-        needs = r.termination != electrical.NOT_NEEDED
+    # a net that needs no termination gets no series value, advice or proposal: only the others are visited
+    n = len(nets)
+    series, advice, short = [None] * n, [""] * n, [""] * n
+    needs = (nets["termination"] != electrical.NOT_NEEDED).to_numpy()
+    todo = np.nonzero(needs)[0]
+    from sicheck.checks.engine import plain_rows
+    for i, r in zip(todo.tolist(), plain_rows(nets.iloc[todo][["pair", "driver_ohm", "delay", "z_driver_end",
+                                                                "zodd_driver_end"]])):
         drv = None if np.isnan(r.driver_ohm) else float(r.driver_ohm)
         if r.pair:
-            series.append(None)
-            if needs:
-                opts = termination.advise(float(r.zodd_driver_end), float(r.delay), drv,
-                                          zdiff=float(r.z_driver_end))
-                advice.append(opts[0].text)
-                short.append(f"{opts[0].end_ohm:g} ohm differential")
-            else:
-                advice.append("")
-                short.append("")
+            opts = termination.advise(float(r.zodd_driver_end), float(r.delay), drv, zdiff=float(r.z_driver_end))
+            advice[i] = opts[0].text
+            short[i] = f"{opts[0].end_ohm:g} ohm differential"
             continue
-        rs = termination.series_value(float(r.z_driver_end), drv) if (needs and drv is not None) else None
-        series.append(rs)
-        if needs:
-            opts = termination.advise(float(r.z_driver_end), float(r.delay), drv)
-            advice.append("; or ".join(o.text for o in opts[:2]) if drv is None else opts[0].text +
-                          "; alternatives: " + "; ".join(o.text for o in opts[1:]))
-            short.append(f"{rs:g} ohm series" if rs is not None else
-                         ("series Z0-Rdrv, or " if drv is None else "") + f"{opts[1].end_ohm:g} ohm at far end")
-        else:
-            advice.append("")
-            short.append("")
+        rs = termination.series_value(float(r.z_driver_end), drv) if drv is not None else None
+        series[i] = rs
+        opts = termination.advise(float(r.z_driver_end), float(r.delay), drv)
+        advice[i] = ("; or ".join(o.text for o in opts[:2]) if drv is None else opts[0].text +
+                     "; alternatives: " + "; ".join(o.text for o in opts[1:]))
+        short[i] = (f"{rs:g} ohm series" if rs is not None else
+                    ("series Z0-Rdrv, or " if drv is None else "") + f"{opts[1].end_ohm:g} ohm at far end")
     nets["series_ohm"] = series
     nets["advice"] = advice
     nets["proposal"] = short

@@ -193,10 +193,12 @@ def group_timing(segments: pd.DataFrame, nets: pd.DataFrame, groups) -> list[Gro
 def pair_skew(nets: pd.DataFrame) -> np.ndarray:
     """|delay of a leg - delay of its partner| per net (s); NaN for single nets, and where a leg is known only
     through its partner's rows (its delay is a copy, so its skew is unknown)."""
-    delay = dict(zip(nets["net"], nets["delay"].to_numpy(float)))
-    mirrored = set(nets.loc[nets["mirrored"].to_numpy(bool), "net"]) if "mirrored" in nets.columns else set()
+    net_col, pair_col = nets["net"].to_numpy(object).tolist(), nets["pair"].to_numpy(object).tolist()
+    delay = dict(zip(net_col, nets["delay"].to_numpy(float)))
+    mirrored = (set(nets.loc[nets["mirrored"].to_numpy(bool), "net"].to_numpy(object).tolist())
+                if "mirrored" in nets.columns else set())
     out = np.full(len(nets), np.nan)
-    for i, (net, pair) in enumerate(zip(nets["net"], nets["pair"])):
+    for i, (net, pair) in enumerate(zip(net_col, pair_col)):
         if pair and pair in delay and net not in mirrored and pair not in mirrored:
             out[i] = abs(delay[net] - delay[pair])
     return out

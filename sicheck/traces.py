@@ -155,12 +155,11 @@ def _frame_from_rows(rows: list[list], src: str) -> pd.DataFrame:
     body, numbers = [], []
     for i in range(first + 1, len(rows)):
         r = rows[i]
-        if not any(str(c).strip() for c in r):
+        if not "".join(map(str, r)).strip():        # blank (a cell with text makes the joined text non-blank)
             continue
         if len(r) > width and any(str(c).strip() for c in r[width:]):
             raise InputError(f"row has {len(r)} cells but the header has {width}", file=src, row=i + 1)
-        r = list(r[:width]) + [""] * (width - len(r))
-        body.append(r)
+        body.append(r if len(r) == width else list(r[:width]) + [""] * (width - len(r)))
         numbers.append(i + 1)
     df = pd.DataFrame(body, columns=pd.Index(range(width)), dtype=object)
     df.attrs["header"] = header
@@ -207,8 +206,10 @@ def _map_columns(header: list[str], aliases: dict[str, str], src: str, header_ro
 def _numeric_column(cells: pd.Series, rows: pd.Series, canon: str, header_label: str, header_unit: str | None,
                     default_units: dict[str, str], decimal_comma: bool, src: str) -> np.ndarray:
     dim, implied, _ = COLUMNS[canon]
-    text = cells.map(lambda v: "" if v is None else (repr(float(v)) if isinstance(v, (int, float)) and not
-                                                     isinstance(v, bool) else str(v))).str.strip()
+    # one pass in a list (a CSV's cells are all text already); workbook numbers as repr(float)
+    text = pd.Series([v.strip() if type(v) is str else "" if v is None else
+                      (repr(float(v)) if isinstance(v, (int, float)) and not isinstance(v, bool) else str(v)).strip()
+                      for v in cells.tolist()], index=cells.index)
     empty = text == ""
     fallback_unit = None
     if header_unit:
@@ -228,7 +229,10 @@ def _numeric_column(cells: pd.Series, rows: pd.Series, canon: str, header_label:
     units = np.full(len(text), "", dtype=object)
     if need.any():
         at = np.nonzero(need)[0]
-        parts = text.iloc[at].str.extract(QUANTITY_RE)
+        # each distinct cell text through the pattern once (a column repeats a few values like 350ps)
+        sub = text.iloc[at]
+        codes, uniq = pd.factorize(sub)
+        parts = pd.Series(uniq, dtype=sub.dtype).str.extract(QUANTITY_RE).iloc[codes].set_axis(sub.index)
         bad = parts[0].isna().to_numpy()
         if bad.any():
             i = int(at[np.argmax(bad)])
@@ -332,7 +336,8 @@ def read_traces(path: str | Path, units: dict[str, str] | None = None, aliases: 
             out[canon] = _count_column(cells, rows, label, src)
             continue
         if dim is None:
-            text = cells.map(lambda v: "" if v is None else str(v)).str.strip()
+            text = pd.Series([(v if type(v) is str else "" if v is None else str(v)).strip() for v in cells.tolist()],
+                             index=cells.index)
             if required:
                 blank = (text == "").to_numpy()
                 if blank.any():

@@ -142,65 +142,111 @@ def via_table(seg: pd.DataFrame, stackup, topology: dict | None = None) -> pd.Da
     """
     comp = component_layer(stackup)
     inner = inner_layers(stackup)
-    out: list[tuple] = []
-    has_export = "vias" in seg.columns
-    mirrored = seg["mirrored"].to_numpy(bool) if "mirrored" in seg.columns else np.zeros(len(seg), bool)
-    cols = [seg[c].to_numpy() for c in ("net", "pair", "row", "layer", "freq")]
-    extra = seg["vias"].to_numpy(float) if has_export else np.zeros(len(seg))
-    order: dict[str, list[int]] = {}
-    for i, net in enumerate(cols[0]):
-        order.setdefault(net, []).append(i)
-
-    def add(i, a, b, how, count=1, with_delay=True):
-        t = transition(stackup, a, b)
-        out.append((cols[0][i], cols[1][i], int(cols[2][i]), a, b, how, count, t.stub_length, t.stub_er, t.stub_to,
-                    t.stub_resonance, t.barrel_length, t.barrel_delay if with_delay else 0.0, float(cols[4][i]),
-                    bool(mirrored[i])))
-
     topology = topology or {}
-    for net, idx in order.items():
-        layers = [cols[3][i] for i in idx]
-        t = topology.get(net)
-        if t is not None and len(t.parent) == len(idx):
-            for k, a, b, how in _tree_vias(layers, t, inner):
-                add(idx[k], a or comp, b or comp, how)
-        else:
-            if layers[0] in inner:
-                add(idx[0], comp, layers[0], "escape")
-            for k in range(1, len(idx)):
-                if layers[k] != layers[k - 1]:
-                    add(idx[k], layers[k - 1], layers[k], "layer change")
-            if layers[-1] in inner:
-                add(idx[-1], layers[-1], comp, "escape")
-        for i in idx:
-            n = extra[i]
-            if n > 0:
-                if cols[3][i].lower() == comp.lower():
-                    out.append((cols[0][i], cols[1][i], int(cols[2][i]), comp, comp, "export", int(n), 0.0, 1.0, "",
-                                math.inf, 0.0, 0.0, float(cols[4][i]), bool(mirrored[i])))
-                else:
-                    add(i, comp, cols[3][i], "export", int(n), with_delay=False)
-    return pd.DataFrame(out, columns=VIA_COLUMNS)
+    n = len(seg)
+    net, layer = seg["net"].to_numpy(object), seg["layer"].to_numpy(object)
+    extra = seg["vias"].to_numpy(float) if "vias" in seg.columns else np.zeros(n)
+    # each net's rows in listed order, nets in order of their first row
+    code, names = pd.factorize(net)
+    order = np.argsort(code, kind="stable")
+    c, lay = code[order], layer[order]
+    first, last = np.r_[True, c[1:] != c[:-1]], np.r_[c[1:] != c[:-1], True]
+    start = np.flatnonzero(first)
+    tree = np.zeros(len(names), bool)
+    if topology:
+        size = np.bincount(code, minlength=len(names))
+        where = {name: k for k, name in enumerate(names.tolist())}
+        for name, t in topology.items():
+            k = where.get(name)
+            if k is not None and t is not None and len(t.parent) == size[k]:
+                tree[k] = True
+    chain, on_inner = ~tree[c], np.isin(lay, list(inner))
+    # vias as (position among the net's rows, slot, seg row, from, to, how); sorted into the table's order below
+    p_esc_in = np.flatnonzero(first & chain & on_inner)
+    p_change = np.flatnonzero(~first & chain & (lay != np.r_[lay[:1], lay[:-1]]))
+    p_esc_out = np.flatnonzero(last & chain & on_inner)
+    parts = [(p_esc_in, 0, lay[p_esc_in], lay[p_esc_in], "escape"),
+             (p_change, 1, lay[p_change - 1], lay[p_change], "layer change"),
+             (p_esc_out, 2, lay[p_esc_out], lay[p_esc_out], "escape")]
+    froms = [np.full(len(p_esc_in), comp, dtype=object), parts[1][2], parts[2][2]]
+    tos = [parts[0][3], parts[1][3], np.full(len(p_esc_out), comp, dtype=object)]
+    pos = [q for q, *_ in parts]
+    slot = [np.full(len(q), k) for q, k, *_ in parts]
+    sub = [q for q in pos]
+    how = [np.full(len(q), h, dtype=object) for q, *_, h in parts]
+    for k in np.flatnonzero(tree).tolist():          # trees: a via wherever a branch leaves its parent's layer
+        s0 = start[k]
+        t = topology[names[k]]
+        got = _tree_vias(lay[s0:s0 + len(t.parent)].tolist(), t, inner)
+        pos.append(np.array([s0 + j for j, *_ in got], dtype=int))
+        slot.append(np.full(len(got), 1))
+        sub.append(np.arange(len(got)))
+        froms.append(np.array([a or comp for _, a, _, _ in got], dtype=object))
+        tos.append(np.array([b or comp for _, _, b, _ in got], dtype=object))
+        how.append(np.array([h for *_, h in got], dtype=object))
+    count = [np.ones(len(q), dtype=np.int64) for q in pos]
+    delayed = [np.ones(len(q), bool) for q in pos]
+    p_export = np.flatnonzero(extra[order] > 0)
+    if len(p_export):
+        pos.append(p_export)
+        slot.append(np.full(len(p_export), 3))
+        sub.append(p_export)
+        froms.append(np.full(len(p_export), comp, dtype=object))
+        tos.append(lay[p_export])
+        how.append(np.full(len(p_export), "export", dtype=object))
+        count.append(extra[order][p_export].astype(np.int64))
+        delayed.append(np.zeros(len(p_export), bool))
+    pos, slot, sub = np.concatenate(pos).astype(int), np.concatenate(slot), np.concatenate(sub)
+    if len(pos) == 0:
+        return pd.DataFrame([], columns=VIA_COLUMNS)
+    ranked = np.lexsort((sub, slot, c[pos]))
+    pos = pos[ranked]
+    a, b, how = (np.concatenate(x)[ranked] for x in (froms, tos, how))
+    count, delayed = np.concatenate(count)[ranked], np.concatenate(delayed)[ranked]
+    i = order[pos]
+    # an export count on the component side's own layer joins nothing sicheck knows: no stub, no barrel
+    bare = (how == "export") & (np.char.lower(b.astype(str)) == comp.lower())
+    b = np.where(bare, comp, b)
+    keys, pairs = pd.factorize(pd.MultiIndex.from_arrays([np.where(bare, "", a), np.where(bare, "", b)]))
+    known = [None if x == "" else transition(stackup, x, y) for x, y in pairs]
+
+    def prop(name, bare_value, dtype=float):
+        return np.array([bare_value if t is None else getattr(t, name) for t in known], dtype=dtype)[keys]
+
+    return pd.DataFrame({
+        "net": net[i], "pair": seg["pair"].to_numpy(object)[i], "row": seg["row"].to_numpy()[i].astype(np.int64),
+        "from_layer": a, "to_layer": b, "how": how, "count": count,
+        "stub_length": prop("stub_length", 0.0), "stub_er": prop("stub_er", 1.0),
+        "stub_to": prop("stub_to", "", object), "stub_resonance": prop("stub_resonance", math.inf),
+        "barrel_length": prop("barrel_length", 0.0),
+        "barrel_delay": np.where(delayed, prop("barrel_delay", 0.0), 0.0),
+        "freq": seg["freq"].to_numpy(float)[i],
+        "mirrored": (seg["mirrored"].to_numpy(bool) if "mirrored" in seg.columns else np.zeros(n, bool))[i],
+    }, columns=VIA_COLUMNS)
 
 
 def via_delay_per_row(seg: pd.DataFrame, vias: pd.DataFrame) -> np.ndarray:
     """Each segment's share of barrel delay (the vias entered on its row), aligned with ``seg``'s rows.
 
     Matched on (net, row): a mirrored partner's rows carry the same row numbers as its listed leg's."""
-    add = vias.groupby(["net", "row"])["barrel_delay"].sum()
-    if add.empty:
+    if vias.empty:
         return np.zeros(len(seg))
+    # (net, row) as one integer: the net's code among both tables' names, then the row
+    codes, _ = pd.factorize(np.concatenate([seg["net"].to_numpy(object), vias["net"].to_numpy(object)]))
+    rows = np.concatenate([seg["row"].to_numpy(np.int64), vias["row"].to_numpy(np.int64)])
+    key = codes.astype(np.int64) * (int(rows.max() - rows.min()) + 1) + (rows - rows.min())
+    seg_key, via_key = key[:len(seg)], key[len(seg):]
+    add = vias["barrel_delay"].groupby(via_key).sum()
     # a net's row may repeat only when the export lists a row twice; share the vias' delay among them
-    keys = pd.MultiIndex.from_arrays([seg["net"].to_numpy(), seg["row"].to_numpy()])
-    counts = pd.Series(1, index=keys).groupby(level=[0, 1]).transform("size").to_numpy()
-    return add.reindex(keys).fillna(0.0).to_numpy(float) / counts
+    _, at, counts = np.unique(seg_key, return_inverse=True, return_counts=True)
+    return add.reindex(seg_key).fillna(0.0).to_numpy(float) / counts[at]
 
 
 def net_via_summary(nets: pd.DataFrame, vias: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
     """(number of vias, lowest stub resonance in Hz or NaN) per net of ``nets``."""
     if vias.empty:
         return np.zeros(len(nets), int), np.full(len(nets), np.nan)
-    count = vias.groupby("net")["count"].sum()
-    fres = vias[np.isfinite(vias["stub_resonance"])].groupby("net")["stub_resonance"].min()
+    count = vias.groupby("net", sort=False)["count"].sum()         # order: looked up by name below
+    fres = vias[np.isfinite(vias["stub_resonance"])].groupby("net", sort=False)["stub_resonance"].min()
     n = nets["net"]
     return n.map(count).fillna(0).to_numpy(int), n.map(fres).to_numpy(float)

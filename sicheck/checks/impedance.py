@@ -121,7 +121,7 @@ def z_step(ctx, chk):
     import pandas as pd
     seg = ctx.segments
     nets = ctx.nets
-    lines = set(nets.loc[nets["electrical"] != "lumped", "net"])
+    lines = set(nets.loc[nets["electrical"] != "lumped", "net"].to_numpy(object).tolist())
     limit = ctx.param("z_step_pct")
     paired = (seg["pair"] != "").to_numpy()
     z = np.where(paired, seg["zdiff"].to_numpy(float), seg["z0"].to_numpy(float))
@@ -168,8 +168,11 @@ def no_target(ctx, chk):
     """
     from sicheck.checks.length import lines_longest_first
     untargeted: dict[str, list[str]] = {}
-    for r in lines_longest_first(ctx.nets):
-        if ctx.param("z0", r.net_class) is None and ctx.param("zdiff", r.net_class) is None:
+    nets = ctx.nets[["net", "pair", "net_class", "delay", "termination"]]
+    no_target = {c: ctx.param("z0", c) is None and ctx.param("zdiff", c) is None
+                 for c in set(nets["net_class"].to_numpy(object).tolist())}
+    for r in lines_longest_first(nets):
+        if no_target[r.net_class]:
             label = pair_label(r.net, r.pair) if r.pair else r.net
             untargeted.setdefault(r.net_class or "none", []).append(label)
     for cname, labels in untargeted.items():

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label
+from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label, plain_rows
 from sicheck.checks.loss import first_rows
 
 LUMPED_MAX = Param("lumped_max_td_over_tr", "number", 1.0 / 6.0, "x Tr", "lumped (no termination) when the "
@@ -21,9 +21,10 @@ def lines_longest_first(nets):
     """Nets that need termination, longest delay first, a pair once (by its longer leg)."""
     from sicheck.physics.electrical import NOT_NEEDED
     done: set = set()
-    for r in nets.sort_values("delay", ascending=False).itertuples(index=False):
-        if r.termination == NOT_NEEDED:
-            continue
+    # positions in the order nets.sort_values("delay", ascending=False) gives, without sorting every column
+    order = nets["delay"].reset_index(drop=True).sort_values(ascending=False).index.to_numpy()
+    order = order[(nets["termination"].to_numpy(object) != NOT_NEEDED)[order]]
+    for r in plain_rows(nets.iloc[order]):
         if r.pair:
             ident = pair_id(r.net, r.pair)
             if ident in done:
@@ -51,6 +52,8 @@ def electrical_length(ctx, chk):
     """
     from sicheck.physics.electrical import REQUIRED
     rows = first_rows(ctx.segments)
+    limits = {t: float(ctx.param("required_min_td_over_tr" if t == REQUIRED else "lumped_max_td_over_tr"))
+              for t in set(ctx.nets["termination"].to_numpy(object).tolist())}
     for r in lines_longest_first(ctx.nets):
         label = pair_label(r.net, r.pair) if r.pair else r.net
         msg = (f"one-way delay {_fmt_ps(r.delay)} is {r.td_over_tr:.2f} x the {_fmt_ps(r.rise_time)} rise time "
@@ -70,6 +73,5 @@ def electrical_length(ctx, chk):
         ident = pair_id(r.net, r.pair) if r.pair else r.net
         yield chk.finding(label, r.layers, msg, row=rows.get(r.net, rows.get(r.pair)),
                           key=make_key(chk.id, ident), value=float(r.td_over_tr),
-                          limit=float(ctx.param("required_min_td_over_tr" if r.termination == REQUIRED
-                                                else "lumped_max_td_over_tr")),
+                          limit=limits[r.termination],
                           unit="x Tr", severity=None if r.termination == REQUIRED else "info")

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
-from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label
+import numpy as np
+
+from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label, plain_rows
 
 MAX_LOSS = Param("max_loss_db", "number", None, "dB", "insertion-loss budget of a net at its class's `freq` "
                  "(else the knee frequency)", per_class=True, lo=0.0, lo_open=False, hi=1e4)
@@ -10,7 +12,8 @@ MAX_LOSS = Param("max_loss_db", "number", None, "dB", "insertion-loss budget of 
 
 def first_rows(seg) -> dict:
     """Each net's first trace-list row (where its route starts in the export)."""
-    return {n: int(r) for n, r in seg.groupby("net", sort=False)["row"].first().items()}
+    first = seg.groupby("net", sort=False)["row"].first()
+    return dict(zip(first.index.to_numpy(object).tolist(), first.to_numpy(int).tolist()))
 
 
 @check("loss-budget", "error", params=(MAX_LOSS,))
@@ -25,11 +28,14 @@ def loss_budget(ctx, chk):
     lower-loss dielectric, or re-allot the budget.
     """
     rows = first_rows(ctx.segments)
+    nets = ctx.nets
+    limit = {c: ctx.param("max_loss_db", c) for c in set(nets["net_class"].to_numpy(object).tolist())}
+    lim_row = ctx.param_per_row("max_loss_db", nets["net_class"].to_numpy(object))
+    with np.errstate(invalid="ignore"):        # only nets over a budget reach the loop (NaN loss is over)
+        over = ~np.isnan(lim_row) & ~(nets["loss_db"].to_numpy(float) <= lim_row)
     seen: set = set()
-    for r in ctx.nets.itertuples(index=False):
-        lim = ctx.param("max_loss_db", r.net_class)
-        if lim is None or r.loss_db <= lim:
-            continue
+    for r in plain_rows(nets[over]):
+        lim = limit[r.net_class]
         ident = pair_id(r.net, r.pair) if r.pair else r.net
         if ident in seen:
             continue

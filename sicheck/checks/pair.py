@@ -38,7 +38,7 @@ def pair_mismatch(ctx, chk):
     """
     seg = ctx.segments
     idx = seg.groupby("net", sort=False).indices
-    pair_of = dict(zip(seg["net"], seg["pair"]))
+    pair_of = dict(zip(seg["net"].to_numpy(object).tolist(), seg["pair"].to_numpy(object).tolist()))
     done: set = set()
     for net, partner in pair_of.items():
         if not partner or partner not in idx or pair_of.get(partner) != net:

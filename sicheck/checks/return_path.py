@@ -55,19 +55,25 @@ def return_path(ctx, chk):
     vias = vias_of(ctx)
     if vias is not None and not vias.empty:
         # only transitions between layers that share no plane are grouped (decided once per pair of layers)
+        from_layer, to_layer = vias["from_layer"].to_numpy(object), vias["to_layer"].to_numpy(object)
+        refs = {name: references(st, name) for name in set(from_layer.tolist()) | set(to_layer.tolist())}
         moved: dict[tuple[str, str], bool] = {}
-        for a_name, b_name in set(zip(vias["from_layer"], vias["to_layer"])):
-            a, b = references(st, a_name), references(st, b_name)
+        for a_name, b_name in set(zip(from_layer.tolist(), to_layer.tolist())):
+            a, b = refs[a_name], refs[b_name]
             moved[(a_name, b_name)] = not (a is None or b is None or set(a) & set(b))
         keep = [how != "export" and moved[(x, y)]
-                for how, x, y in zip(vias["how"], vias["from_layer"], vias["to_layer"])]
+                for how, x, y in zip(vias["how"].to_numpy(object).tolist(), from_layer.tolist(), to_layer.tolist())]
+        sides: dict[tuple[str, str], tuple] = {}        # per pair of layers: the planes' text, once
         for ident, label, first, rows in grouped(vias[keep]):
-            a, b = references(st, first.from_layer), references(st, first.to_layer)
+            at = (first.from_layer, first.to_layer)
+            if at not in sides:
+                a, b = refs[at[0]], refs[at[1]]
+                sides[at] = (a, b, sorted({nets[p] for p in a} & {nets[p] for p in b}), _planes(a, nets),
+                             _planes(b, nets))
+            a, b, shared, before, after = sides[at]
             where = transition_label(first.from_layer, first.to_layer, first.how)
-            shared = sorted({nets[p] for p in a} & {nets[p] for p in b})
             n = sum(r.count for r in rows)
             vias_txt = f"{n} via{'s' if n > 1 else ''}"
-            before, after = _planes(a, nets), _planes(b, nets)
             if shared:
                 net = shared[0]
                 msg = (f"{where} ({vias_txt}): the return current moves from {before} to {after}; both carry "
@@ -82,11 +88,11 @@ def return_path(ctx, chk):
             yield chk.finding(label, where, msg, row=int(first.row), key=make_key(chk.id, ident, where),
                               severity=sev)
     seg = ctx.segments
-    for layer in dict.fromkeys(seg["layer"]):
+    for layer in dict.fromkeys(seg["layer"].to_numpy(object).tolist()):
         refs = references(st, layer)
         if not refs or any(is_ground(nets[p]) for p in refs):
             continue
-        on = list(dict.fromkeys(seg.loc[seg["layer"] == layer, "net"]))
+        on = list(dict.fromkeys(seg.loc[seg["layer"] == layer, "net"].to_numpy(object).tolist()))
         shown = ", ".join(on[:4]) + (f" and {len(on) - 4} more" if len(on) > 4 else "")
         yield chk.finding("", layer, f"layer {layer} is referenced only to power ({_planes(refs, nets)}); "
                           f"{len(on)} net{'s' if len(on) > 1 else ''} route on it ({shown}): their return current "

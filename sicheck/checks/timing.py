@@ -8,7 +8,9 @@ from __future__ import annotations
 
 import math
 
-from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label
+import numpy as np
+
+from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label, plain_rows
 from sicheck.checks.loss import first_rows
 from sicheck.skew import group_timing, pair_skew
 
@@ -22,7 +24,7 @@ MAX_DELAY = Param("max_delay", "time", None, "ps", "largest one-way delay of a n
 def _rows(ctx) -> dict:
     """Each net's first trace-list row; a leg listed only through its partner gets the partner's."""
     rows = first_rows(ctx.segments)
-    for net, pair in zip(ctx.nets["net"], ctx.nets["pair"]):
+    for net, pair in zip(ctx.nets["net"].to_numpy(object).tolist(), ctx.nets["pair"].to_numpy(object).tolist()):
         if net not in rows and pair in rows:
             rows[net] = rows[pair]
     return rows
@@ -105,25 +107,28 @@ def pair_skew_check(ctx, chk):
     rows = _rows(ctx)
     nets = ctx.nets
     skew = pair_skew(nets)
-    delay = dict(zip(nets["net"], nets["delay"].to_numpy(float)))
-    length = dict(zip(nets["net"], nets["length"].to_numpy(float)))
+    net_col, pair_col = nets["net"].to_numpy(object).tolist(), nets["pair"].to_numpy(object).tolist()
+    delay = dict(zip(net_col, nets["delay"].to_numpy(float)))
+    length = dict(zip(net_col, nets["length"].to_numpy(float)))
+    cls_col, layers_col = nets["net_class"].to_numpy(object).tolist(), nets["layers"].to_numpy(object).tolist()
+    limits = {c: ctx.param("max_pair_skew", c) for c in set(cls_col)}
     done: set = set()
-    for r, s in zip(nets.itertuples(index=False), skew):
-        if not math.isfinite(s):
-            continue
-        ident = pair_id(r.net, r.pair)
+    for i in np.nonzero(np.isfinite(skew))[0].tolist():       # only pairs have a skew
+        net, partner, s = net_col[i], pair_col[i], skew[i]
+        ident = pair_id(net, partner)
         if ident in done:
             continue
         done.add(ident)
-        limit = ctx.param("max_pair_skew", r.net_class)
+        net_class = cls_col[i]
+        limit = limits[net_class]
         if limit is None or s <= limit:
             continue
-        slow, fast = (r.net, r.pair) if delay[r.net] >= delay[r.pair] else (r.pair, r.net)
+        slow, fast = (net, partner) if delay[net] >= delay[partner] else (partner, net)
         eq = s * length[slow] / delay[slow] if delay[slow] > 0 else float("nan")
         msg = (f"legs differ by {_ps(s)} ({slow} {_ps(delay[slow])}, {fast} {_ps(delay[fast])}"
                + (f"; about {_mm(eq)} of trace" if math.isfinite(eq) else "") + f"), over the {_ps(limit)} limit"
-               f" of class {r.net_class or '-'}: lengthen {fast}")
-        yield chk.finding(pair_label(r.net, r.pair), r.layers, msg, row=rows.get(slow),
+               f" of class {net_class or '-'}: lengthen {fast}")
+        yield chk.finding(pair_label(net, partner), layers_col[i], msg, row=rows.get(slow),
                           key=make_key(chk.id, ident), value=s * 1e12, limit=limit * 1e12, unit="ps")
 
 
@@ -138,20 +143,30 @@ def delay_budget(ctx, chk):
     How to fix: shorten the route, or move it to a faster layer (a microstrip layer has a lower eps_eff
     than a stripline layer); if the budget allows it, raise the class's max_delay.
     """
+    order = ctx.nets.sort_values("delay", ascending=False, kind="stable")
+    limits = {c: ctx.param("max_delay", c) for c in set(order["net_class"].to_numpy(object).tolist())}
+    lim_row = ctx.param_per_row("max_delay", order["net_class"].to_numpy(object))
+    with np.errstate(invalid="ignore"):
+        over = ~np.isnan(lim_row) & ~(order["delay"].to_numpy(float) <= lim_row)
+    if not over.any():
+        return
     rows = _rows(ctx)
     done: set = set()
-    for r in ctx.nets.sort_values("delay", ascending=False, kind="stable").itertuples(index=False):
+    first = []                  # a pair by its slower leg: the first of its legs in delay order
+    for i, (net, pair) in enumerate(zip(order["net"].to_numpy(object).tolist(),
+                                        order["pair"].to_numpy(object).tolist())):
+        ident = pair_id(net, pair) if pair else net
+        if ident not in done:
+            done.add(ident)
+            if over[i]:
+                first.append(i)
+    for r in plain_rows(order.iloc[first]):
         ident = pair_id(r.net, r.pair) if r.pair else r.net
-        if ident in done:
-            continue
-        done.add(ident)
-        limit = ctx.param("max_delay", r.net_class)
-        if limit is None or r.delay <= limit:
-            continue
-        over = r.delay - limit
-        eq = over * r.length / r.delay if r.delay > 0 else float("nan")
+        limit = limits[r.net_class]
+        late = r.delay - limit
+        eq = late * r.length / r.delay if r.delay > 0 else float("nan")
         label = pair_label(r.net, r.pair) if r.pair else r.net
-        msg = (f"delay {_ps(r.delay)} ({_mm(r.length)} on {r.layers}) is {_ps(over)} over the {_ps(limit)} "
+        msg = (f"delay {_ps(r.delay)} ({_mm(r.length)} on {r.layers}) is {_ps(late)} over the {_ps(limit)} "
                f"budget of class {r.net_class}" + (f": about {_mm(eq)} too long" if math.isfinite(eq) else ""))
         yield chk.finding(label, r.layers, msg, row=rows.get(r.net), key=make_key(chk.id, ident),
                           value=r.delay * 1e12, limit=limit * 1e12, unit="ps")

@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 
-from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label
+from sicheck.checks.engine import PAIR_SEP, Param, check, make_key, plain_rows
 
 MIN_RESONANCE_RATIO = Param(
     "min_resonance_ratio", "number", 3.0, "x f", "a via stub's quarter-wave resonance must lie at least this many "
@@ -34,25 +35,34 @@ def grouped(vias):
     """Vias grouped per net (a pair once) and per pair of layers (either direction), in trace-list order.
 
     Yields (ident, label, first via row, all via rows of the group)."""
-    # plain lists and one name lookup per net: a large board has a via per layer change
-    rows = list(vias.itertuples(index=False))
-    names: dict[tuple, tuple[str, str]] = {}
-    groups: dict[tuple, list] = {}
-    for r, net, pair, how, a, b in zip(rows, vias["net"].tolist(), vias["pair"].tolist(), vias["how"].tolist(),
-                                      vias["from_layer"].str.lower().tolist(), vias["to_layer"].str.lower().tolist()):
-        named = names.get((net, pair))
-        if named is None:
-            named = names[(net, pair)] = (pair_id(net, pair), pair_label(net, pair)) if pair else (net, net)
-        key = (named[0], how == "export", (a, b) if a <= b else (b, a))
-        g = groups.get(key)
-        if g is None:
-            g = groups[key] = [named[0], named[1], []]
-        g[2].append(r)
-    for ident, label, rows in groups.values():
-        # a pair listed on both legs has each via twice: count one leg's
-        legs = {r.net for r in rows}
-        one = [r for r in rows if r.net == min(legs)] if len(legs) > 1 else rows
-        yield ident, label, one[0], one
+    if vias.empty:
+        return
+    # one key per via, grouped by pandas: a large board has a via per layer change
+    net, pair = vias["net"].to_numpy(object), vias["pair"].to_numpy(object)
+    paired = pair != ""
+    label = np.where(paired, net + PAIR_SEP + pair, net)
+    ident = np.where(paired & (pair < net), pair + PAIR_SEP + net, label)        # pair_id: names sorted
+    a, b = (vias[c].str.lower().to_numpy(object) for c in ("from_layer", "to_layer"))
+    lo, hi = np.where(a <= b, a, b), np.where(a <= b, b, a)
+    key = np.zeros(len(vias), np.int64)        # the four parts as one integer (each part's code, mixed radix)
+    for part in (ident, (vias["how"] == "export").to_numpy(), lo, hi):
+        c, u = pd.factorize(part)
+        key = key * (len(u) + 1) + c
+    codes, _ = pd.factorize(key)
+    order = np.argsort(codes, kind="stable")             # groups in order of their first via
+    starts = np.flatnonzero(np.r_[True, codes[order][1:] != codes[order][:-1]])
+    size = np.diff(np.r_[starts, len(order)])
+    other_leg = net[order] != np.repeat(net[order][starts], size)
+    both = np.bincount(np.repeat(np.arange(len(starts)), size), weights=other_leg, minlength=len(starts)) > 0
+    rows = list(plain_rows(vias))
+    order_list, ends = order.tolist(), np.r_[starts[1:], len(order)].tolist()
+    for k, (s, e) in enumerate(zip(starts.tolist(), ends)):
+        group = [rows[i] for i in order_list[s:e]]
+        if both[k]:      # a pair listed on both legs has each via twice: count one leg's
+            leg = min(r.net for r in group)
+            group = [r for r in group if r.net == leg]
+        i = order_list[s]
+        yield ident[i], label[i], group[0], group
 
 
 def _advice(kind: str, far: str) -> str:
@@ -86,7 +96,8 @@ def via_stub(ctx, chk):
     ratio = float(ctx.param("min_resonance_ratio"))
     kind = ctx.stackup.vias.kind if ctx.stackup is not None else "through"
     cls_freq = {name: c.freq for name, c in ctx.classes.items() if c.freq}
-    net_class = dict(zip(ctx.nets["net"], ctx.nets["net_class"]))        # mirrored partners included
+    net_class = dict(zip(ctx.nets["net"].to_numpy(object).tolist(),          # mirrored partners included
+                         ctx.nets["net_class"].to_numpy(object).tolist()))
     res, freq = vias["stub_resonance"].to_numpy(float), vias["freq"].to_numpy(float)
     low = np.isfinite(res) & (res < ratio * freq)        # only the vias that resonate too low are grouped
     for ident, label, first, rows in grouped(vias[low]):

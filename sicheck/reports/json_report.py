@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+from typing import Iterator
 
 import numpy as np
 
@@ -35,7 +36,7 @@ def round_sig(a: np.ndarray, digits: int = 6) -> list:
     """
     a = np.asarray(a, dtype=float)
     finite = np.isfinite(a)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):   # such values go by _num below
         exp = np.floor(np.log10(np.abs(np.where(finite & (a != 0), a, 1.0))))
         k = (digits - 1 - exp).astype(int)
         up = k >= 0
@@ -46,15 +47,24 @@ def round_sig(a: np.ndarray, digits: int = 6) -> list:
         tie = np.abs(np.abs(scaled - np.floor(scaled)) - 0.5) < 1e-6
     r = np.where(a == 0, 0.0, r)
     out = r.tolist()
-    # not finite -> None; beyond 1e22 a power of ten is not exact in a double, and a near-tie may round the
-    # other way than the exact binary value does: format those one by one, as _num does
-    for i in np.nonzero(~finite | (np.abs(k) > 22) | tie)[0]:
+    for i in np.flatnonzero(~finite).tolist():       # not finite -> None (a column of gaps is mostly NaN)
+        out[i] = None
+    # beyond 1e22 a power of ten is not exact in a double, and a near-tie may round the other way than the
+    # exact binary value does: format those one by one, as _num does
+    for i in np.flatnonzero(finite & ((np.abs(k) > 22) | tie)).tolist():
         out[i] = _num(a[i], digits)
     return out
 
 
 def _col(df, name, scale=1.0, digits=6):
     return round_sig(df[name].to_numpy(float) * scale, digits)
+
+
+# every segment's first keys, in their order (model and solver are text; the others from 4 on are numbers)
+SEGMENT_KEYS = ("row", "net", "layer", "kind", "length_mm", "width_mm", "z0_ohm", "eps_eff", "delay_ps",
+                "delay_ps_per_mm", "l_nh_per_mm", "c_pf_per_mm", "model", "solver", "uncertainty_pct", "freq_ghz",
+                "conductor_loss_db_per_mm", "dielectric_loss_db_per_mm", "loss_db_per_mm", "loss_db",
+                "loss_uncertainty_pct")
 
 
 def segments_json(seg) -> list[dict]:
@@ -81,20 +91,16 @@ def segments_json(seg) -> list[dict]:
            _col(seg, "fext_pct", 1, 4)) if "next_pct" in seg else None)       # crosstalk inputs given
     joined = ((seg["routed_net"].tolist(), seg["part_ohm"].tolist(), seg["part_farad"].tolist())
               if "routed_net" in seg.columns else None)
+    solver = ["field" if m.startswith("field") else "formula" for m in model]
+    base = zip(row, net, layer, kind, *(cols[k] for k in SEGMENT_KEYS[4:12]), model, solver,
+               *(cols[k] for k in SEGMENT_KEYS[14:]))
+    single = [k for k in band if not k.startswith("zdiff")]       # a single line's band has no zdiff keys
+    band_pair, band_single = list(zip(*(cols[k] for k in band))), list(zip(*(cols[k] for k in single)))
     out = []
-    for i in range(len(seg)):
-        d = {"row": row[i], "net": net[i], "layer": layer[i], "kind": kind[i],
-             "length_mm": cols["length_mm"][i], "width_mm": cols["width_mm"][i],
-             "z0_ohm": cols["z0_ohm"][i], "eps_eff": cols["eps_eff"][i], "delay_ps": cols["delay_ps"][i],
-             "delay_ps_per_mm": cols["delay_ps_per_mm"][i], "l_nh_per_mm": cols["l_nh_per_mm"][i],
-             "c_pf_per_mm": cols["c_pf_per_mm"][i], "model": model[i],
-             "solver": "field" if model[i].startswith("field") else "formula",
-             "uncertainty_pct": cols["uncertainty_pct"][i], "freq_ghz": cols["freq_ghz"][i],
-             "conductor_loss_db_per_mm": cols["conductor_loss_db_per_mm"][i],
-             "dielectric_loss_db_per_mm": cols["dielectric_loss_db_per_mm"][i],
-             "loss_db_per_mm": cols["loss_db_per_mm"][i], "loss_db": cols["loss_db"][i],
-             "loss_uncertainty_pct": cols["loss_uncertainty_pct"][i]}
-        d.update({k: cols[k][i] for k in band if pair[i] or not k.startswith("zdiff")})
+    for i, values in enumerate(base):
+        d = dict(zip(SEGMENT_KEYS, values))
+        if band:
+            d.update(zip(band, band_pair[i]) if pair[i] else zip(single, band_single[i]))
         if pair[i]:
             d.update(pair=pair[i], gap_mm=cols["gap_mm"][i], zdiff_ohm=cols["zdiff_ohm"][i],
                      zodd_ohm=cols["zodd_ohm"][i], zeven_ohm=cols["zeven_ohm"][i])
@@ -145,25 +151,22 @@ def nets_json(nets) -> list[dict]:
     if has_vias:
         n_vias = [int(v) for v in nets["vias"].tolist()]
         f_stub = _col(nets, "via_stub_resonance", 1e-9, 4)
+    base = zip(net, _or_none(cls), _or_none(pair), segs, layers, *(c[k] for k in MEASURES), el, term, series,
+               c["z_driver_end_ohm"], _or_none(advice), mirrored, pair_skew_ps, _or_none(on_die))
+    if has_wave:
+        before = list(zip(*(wave[f"before_{k}"] for k in WAVE_KEYS)))
+        after = list(zip(*(wave[f"after_{k}"] for k in WAVE_KEYS)))
+    receivers = _receivers_json(rx)
     out = []
-    for i in range(n):
-        d = {"net": net[i], "net_class": cls[i] or None, "pair": pair[i] or None, "segments": segs[i],
-             "layers": layers[i], "length_mm": c["length_mm"][i], "copper_length_mm": c["copper_length_mm"][i],
-             "delay_ps": c["delay_ps"][i],
-             "rise_time_ps": c["rise_time_ps"][i], "td_over_tr": c["td_over_tr"][i], "freq_ghz": c["freq_ghz"][i],
-             "loss_db": c["loss_db"][i], "knee_ghz": c["knee_ghz"][i],
-             "wavelength_at_knee_mm": c["wavelength_at_knee_mm"][i], "lumped_limit_mm": c["lumped_limit_mm"][i],
-             "critical_length_mm": c["critical_length_mm"][i], "electrical": el[i], "termination": term[i],
-             "series_ohm": series[i], "z_driver_end_ohm": c["z_driver_end_ohm"][i], "advice": advice[i] or None,
-             "listed_via_partner": mirrored[i], "pair_skew_ps": pair_skew_ps[i],
-             "on_die": on_die[i] or None}      # the receiver's own termination (sicheck/on_die.py)
+    for i, values in enumerate(base):
+        d = dict(zip(NET_KEYS, values))
         if has_wave and isinstance(part[i], str) and part[i]:
             d["recommended_termination"] = part[i]
             d["termination_scheme"] = scheme[i]
             d["overshoot_pct"] = wave["after_overshoot_pct"][i]
             d["settle_ns"] = wave["after_settle_ns"][i]
-            d["before"] = {k: wave[f"before_{k}"][i] for k in WAVE_KEYS}
-            d["after"] = {k: wave[f"after_{k}"][i] for k in WAVE_KEYS}
+            d["before"] = dict(zip(WAVE_KEYS, before[i]))
+            d["after"] = dict(zip(WAVE_KEYS, after[i]))
             d["meets_limits"] = bool(meets[i])
             d["termination_power_mw"] = power[i]
             if assumptions[i]:
@@ -173,10 +176,8 @@ def nets_json(nets) -> list[dict]:
             d["recommended_termination"] = None
             if has_wave and isinstance(assumptions[i], str) and assumptions[i]:
                 d["assumptions"] = assumptions[i]
-        if isinstance(rx[i], list):         # every receiver's metrics (one for a chain)
-            d["receivers"] = [{"receiver": x["receiver"], "load_pf": _num(x["load_pf"]), "meets_limits": bool(x["meets"]),
-                               "before": {k: _num(x["before"][k], 4) for k in WAVE_KEYS},
-                               "after": {k: _num(x["after"][k], 4) for k in WAVE_KEYS}} for x in rx[i]]
+        if receivers[i] is not None:         # every receiver's metrics (one for a chain)
+            d["receivers"] = receivers[i]
         if has_vias:
             d["vias"] = n_vias[i]
             d["via_stub_resonance_ghz"] = f_stub[i]
@@ -198,6 +199,36 @@ def nets_json(nets) -> list[dict]:
 
 
 WAVE_KEYS = ("overshoot_pct", "ringback_pct", "settle_ns", "flight_ns")
+# every net's first keys, in their order (MEASURES: the numbers of nets_json's c among them)
+MEASURES = ("length_mm", "copper_length_mm", "delay_ps", "rise_time_ps", "td_over_tr", "freq_ghz", "loss_db",
+            "knee_ghz", "wavelength_at_knee_mm", "lumped_limit_mm", "critical_length_mm")
+NET_KEYS = ("net", "net_class", "pair", "segments", "layers", *MEASURES, "electrical", "termination",
+            "series_ohm", "z_driver_end_ohm", "advice", "listed_via_partner", "pair_skew_ps",
+            "on_die")       # on_die: the receiver's own termination (sicheck/on_die.py)
+
+
+def _or_none(values: list) -> list:
+    return [v or None for v in values]
+
+
+def _receivers_json(rx: list) -> list:
+    """Each net's receivers (None where the net has no list): their numbers rounded a whole column at a time."""
+    flat = [x for lst in rx if isinstance(lst, list) for x in lst]
+    load = round_sig(np.array([x["load_pf"] for x in flat], dtype=float))
+
+    def side(name):
+        cols = (round_sig(np.array([x[name][k] for x in flat], dtype=float), 4) for k in WAVE_KEYS)
+        return [dict(zip(WAVE_KEYS, v)) for v in zip(*cols)]
+    before, after = side("before"), side("after")
+    out, m = [], 0
+    for lst in rx:
+        if not isinstance(lst, list):
+            out.append(None)
+            continue
+        out.append([{"receiver": x["receiver"], "load_pf": load[m + k], "meets_limits": bool(x["meets"]),
+                     "before": before[m + k], "after": after[m + k]} for k, x in enumerate(lst)])
+        m += len(lst)
+    return out
 
 
 def _tolerances(rules) -> dict:
@@ -251,4 +282,38 @@ def match_groups_json(rv: Review) -> list[dict]:
 
 
 def review_json(rv: Review) -> str:
-    return json.dumps(review_dict(rv), ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+    return "".join(json_pieces(review_dict(rv)))
+
+
+PIECE_ITEMS = 2000        # list items encoded at a time
+
+
+def _encode(x) -> str:
+    return json.dumps(x, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+
+
+def json_pieces(doc: dict) -> Iterator[str]:
+    """The text of ``doc`` as compact JSON, in pieces that join to exactly json.dumps's text.
+
+    Why: a large board's document is hundreds of MB; encoded at once it is one string that is copied
+    whole (and, with one non-ASCII character anywhere, stored at two bytes a character) before a byte
+    is written. Its long lists are encoded a few thousand items at a time instead.
+    """
+    yield "{"
+    for k, (key, value) in enumerate(doc.items()):
+        yield ("," if k else "") + _encode(key) + ":"
+        if isinstance(value, list) and len(value) > PIECE_ITEMS:
+            yield "["
+            for start in range(0, len(value), PIECE_ITEMS):
+                yield ("," if start else "") + _encode(value[start:start + PIECE_ITEMS])[1:-1]
+            yield "]"
+        else:
+            yield _encode(value)
+    yield "}"
+
+
+def write_review_json(path, rv: Review) -> None:
+    """The review's JSON into ``path`` (the caller makes the write atomic)."""
+    with open(path, "w", encoding="utf-8") as f:
+        for piece in json_pieces(review_dict(rv)):
+            f.write(piece)

@@ -3,8 +3,8 @@
 Why: XlsxWriter spends about 10 us of Python per cell; a 100 000-segment review has millions of
 cells, so the Segments and Nets sheets dominated the whole review. A table's rows are plain
 (a number, a text or a boolean in a column with a known style), so they are generated here as XML
-text at about 1-2 us per cell and spliced into the sheet that XlsxWriter wrote (header, column
-widths, print set-up, filters, validations), in place of its empty body.
+text, a column at a time (rows_xml), and spliced into the sheet that XlsxWriter wrote (header,
+column widths, print set-up, filters, validations), in place of its empty body.
 
 The cell markup is the Office Open XML SpreadsheetML one (ECMA-376 Part 1, 18.3.1: row, c, v, is/t):
 numbers as ``<v>``, text as inline strings (``t="inlineStr"``, as XlsxWriter's constant-memory
@@ -18,7 +18,11 @@ import os
 import re
 import shutil
 import zipfile
-from typing import Callable, Iterable, Iterator
+from itertools import chain, repeat
+from operator import itemgetter
+from typing import Callable, Iterator
+
+import numpy as np
 
 _XML_SPECIAL = re.compile("[&<>]")
 _ESCAPES = {"&": "&amp;", "<": "&lt;", ">": "&gt;"}
@@ -41,48 +45,102 @@ def _escape(s: str) -> str:
     return _XML_SPECIAL.sub(lambda m: _ESCAPES[m.group()], s) if _XML_SPECIAL.search(s) else s
 
 
-def rows_xml(rows: Iterable[tuple[int, list, float | None, dict | None]], n_cols: int, col_style: list[int],
-             text_cell: Callable[[int, str, dict | None], tuple[str, int]]) -> Iterator[str]:
+def rows_xml(rows: list[tuple[int, list, float | None, dict | None]], n_cols: int, col_style: list[int],
+             text_cells: Callable[[int, list[str], tuple], tuple[list[str], list[int]]]) -> Iterator[str]:
     """SpreadsheetML for buffered rows, in chunks of text.
 
     rows: (zero-based row index, values, height in points or None, per-row style overrides or None).
     col_style: each column's style index, used for a plain cell.
-    text_cell(j, text, overrides) -> (clean text, style index): the text-only path decides quoting,
-    cleaning and fills; it is called for every non-empty text, so user text never bypasses it.
+    text_cells(j, texts, overrides) -> (clean texts, style indices): the text-only path decides quoting,
+    cleaning and fills for column j of a chunk (its texts, "" where empty; the rows' overrides, or None
+    when no row of the chunk overrides this column); every
+    text goes through it, so user text never bypasses it.
+
+    The XML is built a column at a time (str.join, repr and zip over whole columns run in C): a
+    per-cell Python loop cost most of the time of a large review's workbook.
     """
     letters = column_letters(n_cols)
-    styles = [f' s="{s}"' if s else "" for s in col_style]
-    out: list[str] = []
-    for k, (r, values, height, over) in enumerate(rows, start=1):
-        rs = str(r + 1)
-        parts = [f'<row r="{rs}" ht="{height:g}" customHeight="1">' if height else f'<row r="{rs}">']
-        for j, v in enumerate(values):
-            if v is None:
-                continue
-            cls = v.__class__
-            if cls is str:
-                if not v:
-                    continue
-                text, style = text_cell(j, v, over)
-                space = ' xml:space="preserve"' if (text[0].isspace() or text[-1].isspace()) else ""
-                parts.append(f'<c r="{letters[j]}{rs}" s="{style}" t="inlineStr"><is><t{space}>{_escape(text)}'
-                             f'</t></is></c>' if style else
-                             f'<c r="{letters[j]}{rs}" t="inlineStr"><is><t{space}>{_escape(text)}</t></is></c>')
-                continue
-            style = styles[j] if over is None or j not in over else f' s="{over[j]}"'
-            if cls is bool or cls.__name__ == "bool_":
-                parts.append(f'<c r="{letters[j]}{rs}"{style} t="b"><v>{int(v)}</v></c>')
-                continue
-            f = float(v)
-            if math.isfinite(f):
-                parts.append(f'<c r="{letters[j]}{rs}"{style}><v>{f!r}</v></c>')
-        parts.append("</row>")
-        out.append("".join(parts))
-        if k % CHUNK_ROWS == 0:
-            yield "".join(out)
-            out = []
-    if out:
-        yield "".join(out)
+    for start in range(0, len(rows), CHUNK_ROWS):
+        index, values, heights, overs = zip(*rows[start:start + CHUNK_ROWS])
+        rs = list(map(str, map((1).__add__, index)))
+        opens = [f'<row r="{r}" ht="{h:g}" customHeight="1">' if h else f'<row r="{r}">'
+                 for r, h in zip(rs, heights)]
+        padded = [v if len(v) == n_cols else list(v) + [None] * (n_cols - len(v)) for v in values]
+        over_cols = set(chain.from_iterable(o for o in overs if o))
+        cells = [_column(letters[j], j, col, rs, col_style[j], overs if j in over_cols else None, text_cells)
+                 for j, col in enumerate(zip(*padded))]
+        yield "".join(map("".join, zip(opens, *cells, repeat("</row>"))))
+
+
+_NUMBER_TYPES = {float, int, type(None), np.float64, np.int64}
+_TEXT_TYPES = {str, type(None)}
+_FIRST, _LAST = itemgetter(slice(None, 1)), itemgetter(slice(-1, None))
+
+
+def _column(letter: str, j: int, col: tuple, rs: list[str], style: int, overs: tuple | None,
+            text_cells) -> list[str]:
+    """The cells of one column of a chunk ("" for an empty cell)."""
+    types = set(map(type, col))
+    if types <= _NUMBER_TYPES and overs is None:
+        a = np.array(col, dtype=float)          # None -> NaN: no cell, as for any value not finite
+        attr = f' s="{style}"' if style else ""
+        out = list(map("".join, zip(repeat(f'<c r="{letter}'), rs, repeat(f'"{attr}><v>'), _reprs(a),
+                                    repeat("</v></c>"))))
+        for i in np.flatnonzero(~np.isfinite(a)).tolist():
+            out[i] = ""
+        return out
+    if types <= _TEXT_TYPES:
+        texts = ["" if v is None else v for v in col] if type(None) in types else list(col)
+        return _text_column(letter, j, texts, rs, overs, text_cells)
+    # mixed (a table of settings, say): cell by cell, texts still through text_cells
+    out = []
+    for i, v in enumerate(col):
+        if isinstance(v, str):
+            out.append(_text_column(letter, j, [v], rs[i:i + 1], (overs[i],) if overs else None, text_cells)[0])
+            continue
+        if v is None:
+            out.append("")
+            continue
+        o = overs[i] if overs else None
+        attr = f' s="{o[j]}"' if o and j in o else (f' s="{style}"' if style else "")
+        if v.__class__ is bool or v.__class__.__name__ == "bool_":
+            out.append(f'<c r="{letter}{rs[i]}"{attr} t="b"><v>{int(v)}</v></c>')
+            continue
+        f = float(v)
+        out.append(f'<c r="{letter}{rs[i]}"{attr}><v>{f!r}</v></c>' if math.isfinite(f) else "")
+    return out
+
+
+def _reprs(a: np.ndarray) -> list[str]:
+    """repr() of each value: the shortest text that reads back as the same double. Formatting a double
+    is the costly part, and a column repeats values (one per cross-section, say): each distinct value
+    is formatted once. -0.0 equals 0.0 but prints differently, so a column holding it is done one by one."""
+    if a.size < 64 or (np.signbit(a) & (a == 0)).any():
+        return list(map(repr, a.tolist()))
+    distinct, where = np.unique(a, return_inverse=True)
+    return list(map(list(map(repr, distinct.tolist())).__getitem__, where.tolist()))
+
+
+def _text_column(letter: str, j: int, texts: list[str], rs: list[str], overs: tuple | None, text_cells) -> list[str]:
+    texts, styles = text_cells(j, texts, overs)
+    joined = "\x00".join(texts)
+    if _XML_SPECIAL.search(joined):
+        if joined.count("\x00") == len(texts) - 1:     # no text holds the separator: escape the column at once
+            texts = joined.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;").split("\x00")
+        else:
+            texts = [_escape(t) for t in texts]
+    attrs = {s: f'" s="{s}" t="inlineStr"><is><t' if s else '" t="inlineStr"><is><t' for s in set(styles)}
+    # xml:space="preserve" where a text starts or ends with white space
+    first, last = list(map(str.isspace, map(_FIRST, texts))), list(map(str.isspace, map(_LAST, texts)))
+    spaces = ([' xml:space="preserve"' if a or b else "" for a, b in zip(first, last)] if any(first) or any(last)
+              else repeat(""))
+    out = list(map("".join, zip(repeat(f'<c r="{letter}'), rs, map(attrs.__getitem__, styles), spaces, repeat(">"),
+                                texts, repeat("</t></is></c>"))))
+    if "" in texts:
+        for i, t in enumerate(texts):
+            if not t:
+                out[i] = ""
+    return out
 
 
 _DIMENSION = re.compile(rb'<dimension ref="[^"]*"/>')

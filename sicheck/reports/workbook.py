@@ -14,6 +14,7 @@ import math
 import re
 import textwrap
 from datetime import date
+from itertools import repeat
 from pathlib import Path
 
 import numpy as np
@@ -113,6 +114,8 @@ def text_lines(text: str, width: float) -> int:
     Rows are given this height explicitly: spreadsheet programs do not all fit row heights on opening.
     """
     per_line = max(1.0, width * 1.2 - 2.0)
+    if "\n" not in text:                  # the common case, without a generator per call
+        return max(1, math.ceil(len(text) / per_line))
     return sum(max(1, math.ceil(len(part) / per_line)) for part in text.split("\n"))
 
 
@@ -170,6 +173,7 @@ class _Sheet:
         self.header_row = header_row
         self.rows = header_row - 1          # zero-based index of the last row written
         self._buf: list = []
+        self._fills: dict[tuple, object] = {}     # (column, fill, quote prefix) -> format, for row()
         book._tables.append(self)
 
     def header(self):
@@ -196,7 +200,12 @@ class _Sheet:
             for j in fill_cols:
                 v = values[j] if j < len(values) else None
                 quote = isinstance(v, str) and clean_text(v)[1]
-                over[j] = self.book.fmt(**self._col_props[j], bg_color=fill, **({"quote_prefix": True} if quote else {}))
+                key = (j, fill, quote)
+                f = self._fills.get(key)
+                if f is None:
+                    f = self._fills[key] = self.book.fmt(**self._col_props[j], bg_color=fill,
+                                                         **({"quote_prefix": True} if quote else {}))
+                over[j] = f
         self._buf.append((self.rows, values, LINE_PT * min(lines, 27) if lines > 1 else None, over))  # 409 pt max
 
     @property
@@ -219,19 +228,25 @@ class _Sheet:
         """(used range, row XML chunks) for sheet_rows.splice_rows."""
         quote_style = [_xf(f) for f in self._quote]
         col_style = self._col_style
-        formula_start = FORMULA_START
 
-        def text_cell(j: int, v: str, over: dict | None) -> tuple[str, int]:
-            if v.startswith(formula_start) or len(v) > MAX_TEXT or _CONTROL.search(v):
-                v, quote = clean_text(v)
-            else:
-                quote = False
-            if over is not None and j in over:
-                return v, over[j]
-            return v, quote_style[j] if quote else col_style[j]
+        def text_cells(j: int, texts: list[str], overs: tuple | None) -> tuple[list[str], list[int]]:
+            styles = [col_style[j]] * len(texts)
+            # the rare text needing care, found with whole-column scans (they run in C)
+            if (any(map(str.startswith, texts, repeat(FORMULA_START))) or _CONTROL.search("".join(texts))
+                    or max(map(len, texts), default=0) > MAX_TEXT):
+                texts = list(texts)
+                for i, v in enumerate(texts):
+                    if v.startswith(FORMULA_START) or len(v) > MAX_TEXT or _CONTROL.search(v):
+                        texts[i], quote = clean_text(v)
+                        if quote:
+                            styles[i] = quote_style[j]
+            for i, over in enumerate(overs or ()):
+                if over is not None and j in over:
+                    styles[i] = over[j]
+            return texts, styles
 
         last = column_letters(self.n)[-1]
-        return f"A1:{last}{self.rows + 1}", rows_xml(self._buf, self.n, col_style, text_cell)
+        return f"A1:{last}{self.rows + 1}", rows_xml(self._buf, self.n, col_style, text_cells)
 
     def finish(self):
         self.ws.autofilter(self.header_row - 1, 0, max(self.rows, self.header_row), self.n - 1)
@@ -442,7 +457,7 @@ def _timing(book: Book, rv: Review):
                           gt.group.max_skew * 1e12, gt.skew_length * 1e3, gt.main_layer, over], gt.over))
     skew = pair_skew(nets)
     done = set()
-    for r, s in zip(nets.itertuples(index=False), skew):
+    for r, s in zip(nets[["net", "pair", "net_class"]].itertuples(index=False), skew):
         if not np.isfinite(s) or frozenset((r.net, r.pair)) in done:
             continue
         done.add(frozenset((r.net, r.pair)))
