@@ -81,6 +81,7 @@ def _source(given: bool, cls, attr: str, key: str) -> str:
 
 
 POOL_MIN_NETS = 400      # below this a process pool costs more than it saves
+CHUNK_MIN = 50           # nets per piece of work sent to a process
 
 
 def _choose_args(args) -> tuple[tuple, dict]:
@@ -96,7 +97,22 @@ def _choose_chunk(jobs):
     """[(index, (before, after) candidates or the reason the net cannot be simulated)], the nets' stages
     simulated together (physics/chain_batch.py)."""
     results = choose_many([_choose_args(a) for _, a in jobs])
-    return [(i, str(r) if isinstance(r, ValueError) else (r[0], r[1])) for (i, _), r in zip(jobs, results)]
+    out = [(i, str(r) if isinstance(r, ValueError) else (r[0], r[1])) for (i, _), r in zip(jobs, results)]
+    _chart_waves_only(out)
+    return out
+
+
+def _chart_waves_only(results) -> None:
+    """Drop the waveforms of nets that cannot be among the CHARTS charted (the worst by unterminated
+    overshoot): only this chunk's CHARTS worst (ties kept) can be, so only theirs travel back."""
+    done = [r for _, r in results if not isinstance(r, str)]
+    over = sorted((o for o in (b.metrics["overshoot_pct"] for b, _ in done) if o == o), reverse=True)   # not NaN
+    if len(over) < CHARTS:
+        return
+    cut = over[CHARTS - 1]
+    for before, after in done:
+        if not before.metrics["overshoot_pct"] >= cut:
+            before.wave = after.wave = None
 
 
 def workers() -> int:
@@ -112,7 +128,7 @@ def run_jobs(jobs: list) -> list:
         return _choose_chunk(jobs)
     import gc
     from concurrent.futures import ProcessPoolExecutor
-    size = max(50, len(jobs) // (8 * n))
+    size = max(CHUNK_MIN, len(jobs) // (8 * n))
     chunks = [jobs[k:k + size] for k in range(0, len(jobs), size)]
     out: list = []
     # the review's tables are a large heap of long-lived objects: frozen, the workers' (forked) garbage
@@ -330,7 +346,8 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         if "on_die" in used and not before.meets:
             notes[i] += ("; terminated on the die, limits not met with it: only a series part at the driver was "
                          "tried on top of it (no second parallel termination)")
-        waves[net] = (before.wave, after.wave, before.metrics["v_final"] if before.wave else None)
+        if before.wave is not None:
+            waves[net] = (before.wave, after.wave, before.metrics["v_final"])
     for i, j in partners:
         for c in cols:
             cols[c][i] = cols[c][j]

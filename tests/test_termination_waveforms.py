@@ -2,6 +2,8 @@
 
 import json
 
+import numpy as np
+
 import pytest
 from openpyxl import load_workbook
 
@@ -214,3 +216,27 @@ def test_process_pool_gives_the_same_review(run, board, tmp_path, monkeypatch):
         out[label] = {n["net"]: n for n in json.loads(js.read_text())["nets"]}
     assert out["serial"] == out["pool"]
     assert all(n["recommended_termination"] for n in out["pool"].values())
+
+
+def test_charted_waveforms_do_not_depend_on_the_process_pool(board, monkeypatch):
+    # Workers send back waveforms only for their own worst nets; the review's charts (the CHARTS worst by
+    # unterminated overshoot, equal nets included) must be those of a serial run.
+    from sicheck import waveform_review
+    from sicheck.review import build_review
+    from sicheck.rules import load_rules
+    from sicheck.stackup import load_stackup
+    from sicheck.traces import read_traces
+    rows = ["net,layer,length,width,rise_time,driver_ohm"]
+    rows += [f"S{i},L3,{60 + 5 * (i % 9)}mm,0.15mm,{200 + 40 * (i % 7)}ps,{5 + 3 * (i % 5)}" for i in range(40)]
+    tr, st = board("\n".join(rows) + "\n")
+    charts = {}
+    for label, n_workers, pool_min in (("serial", "1", 10 ** 6), ("pool", "2", 1)):
+        monkeypatch.setenv("SICHECK_WORKERS", n_workers)
+        monkeypatch.setattr(waveform_review, "POOL_MIN_NETS", pool_min)
+        monkeypatch.setattr(waveform_review, "CHUNK_MIN", 3)       # many small chunks
+        rv = build_review(read_traces(tr), load_stackup(st), load_rules(None))
+        charts[label] = rv.waves
+    assert list(charts["serial"]) == list(charts["pool"]) and len(charts["serial"]) == waveform_review.CHARTS
+    for net, (b, a, vf) in charts["serial"].items():
+        b2, a2, vf2 = charts["pool"][net]
+        assert vf == vf2 and np.array_equal(b[1], b2[1]) and np.array_equal(a[1], a2[1])
