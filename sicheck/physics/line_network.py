@@ -35,6 +35,8 @@ candidates are batched so that no batch holds more than BATCH_BINS complex bins.
 
 from __future__ import annotations
 
+import bisect
+import functools
 import math
 from dataclasses import dataclass
 from typing import Mapping, Sequence
@@ -394,9 +396,13 @@ def record_size(t_end: float, dt: float) -> int:
 def record_ladder(need: int) -> int:
     """The smallest size 2^k x (1, 1.25, 1.5 or 1.75) >= need: fast FFT sizes at most 25 % above the need,
     few enough that candidates of different stages share a record (and its two-ports)."""
-    bits = int(need).bit_length()
-    sizes = sorted(((1 << j) * m) // 4 for j in range(max(2, bits - 2), bits + 2) for m in (4, 5, 6, 7))
-    return next(n for n in sizes if n >= need)
+    sizes = _ladder(int(need).bit_length())
+    return sizes[bisect.bisect_left(sizes, need)]
+
+
+@functools.lru_cache(maxsize=64)
+def _ladder(bits: int) -> tuple[int, ...]:
+    return tuple(sorted(((1 << j) * m) // 4 for j in range(max(2, bits - 2), bits + 2) for m in (4, 5, 6, 7)))
 
 
 def record_groups(needs: np.ndarray) -> list[tuple[int, np.ndarray]]:
