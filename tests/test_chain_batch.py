@@ -162,3 +162,23 @@ def test_many_nets_choose_as_one_at_a_time(monkeypatch, budget):
                 assert a.metrics[k] == pytest.approx(b.metrics[k], abs=1e-6, nan_ok=True)
             assert (a.wave is None) == (b.wave is None)
     assert sum(isinstance(g, ValueError) for g in got) == 1
+
+
+def test_sections_of_one_cross_section_share_their_shape():
+    # Nets routed on two cross-sections, lengths all different: the loss per unit delay is the cross-section's,
+    # so the batch works K and M out once per cross-section; the waveforms must be those of one net at a time.
+    rng = np.random.default_rng(5)
+    xsec = [(48.0, 6.0e-9, 2.2, 0.4), (55.0, 6.8e-9, 3.1, 0.9)]     # Z, s/m, R(f0) per ns, R dc per ns
+    sims = []
+    for _ in range(12):
+        z, td, lo = [], [], []
+        for k in rng.integers(0, 2, int(rng.integers(1, 5))):
+            zk, per_m, r_ns, rdc_ns = xsec[k]
+            d = per_m * rng.uniform(0.005, 0.06)
+            z.append(zk)
+            td.append(d)
+            lo.append(LineLoss(f_ref=1.3e9, r_ac=r_ns * d / 1e-9, tan_delta=0.018, r_dc=rdc_ns * d / 1e-9))
+        sims.append(chain_sim(z, td, lo, [15.0, 33.0], [Load(cap=2e-12), Load(cap=2e-12)], rise=0.4e-9,
+                              t_end=3 * sum(td) + 4e-9))
+    for sim, got in zip(sims, simulate_many(sims)):
+        assert_same(got, sim.run(), sim.swing)

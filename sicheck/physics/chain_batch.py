@@ -25,7 +25,7 @@ from typing import Sequence
 import numpy as np
 from scipy import fft as sfft
 
-from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, per_delay_lines
+from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, per_delay_lines, shape_key
 from sicheck.physics.line_network import (BATCH_BINS, RECORD_FACTOR, SAMPLES_PER_RAMP, SHAPE_NODES, WRAP_DAMPING,
                                           Simulation, _extend_unsettled, record_ladder, record_size, settle_window)
 from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, ramp_voltage
@@ -198,7 +198,16 @@ def _chains(chains: list[list[Line]], s: np.ndarray):
     n_max = len(chains[order[0]])
     count = [sum(1 for j in order if len(chains[j]) > pos) for pos in range(n_max)]   # chains with a section here
     lines = [chains[j][pos] for pos in range(n_max) for j in order[:count[pos]]]
-    k, m = _shapes(lines, s)
+    # sections of one cross-section (same Z and loss per unit delay) share K and M: each worked out once
+    index: dict = {}
+    which = np.array([index.setdefault(shape_key(x) if x.loss is not None else ("lossless",), len(index))
+                      for x in lines])
+    if len(index) < len(lines):
+        first = np.unique(which, return_index=True)[1]
+        k, m = _shapes([lines[i] for i in first], s)
+        k, m = k[which], m[which]
+    else:
+        k, m = _shapes(lines, s)
     z0 = np.array([x.z0 for x in lines])[:, None]
     td = np.array([x.delay for x in lines])[:, None]
     e1 = np.exp(-(s[None, :] * td) * k)          # one line: [[1 + E^2, Zc (1 - E^2)], [(1 - E^2)/Zc, 1 + E^2]] / 2E
