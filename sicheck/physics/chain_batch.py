@@ -198,16 +198,12 @@ def _chains(chains: list[list[Line]], s: np.ndarray):
     n_max = len(chains[order[0]])
     count = [sum(1 for j in order if len(chains[j]) > pos) for pos in range(n_max)]   # chains with a section here
     lines = [chains[j][pos] for pos in range(n_max) for j in order[:count[pos]]]
-    # sections of one cross-section (same Z and loss per unit delay) share K and M: each worked out once
+    # sections of one cross-section (same Z and loss per unit delay: shape_key) share K and M, worked out
+    # once from the key itself, so that a section's answer does not depend on the nets batched with it
     index: dict = {}
-    which = np.array([index.setdefault(shape_key(x) if x.loss is not None else ("lossless",), len(index))
-                      for x in lines])
-    if len(index) < len(lines):
-        first = np.unique(which, return_index=True)[1]
-        k, m = _shapes([lines[i] for i in first], s)
-        k, m = k[which], m[which]
-    else:
-        k, m = _shapes(lines, s)
+    which = np.array([index.setdefault(shape_key(x), len(index)) for x in lines])
+    k, m = _shapes([_unit_line(key) for key in index], s)
+    k, m = k[which], m[which]
     z0 = np.array([x.z0 for x in lines])[:, None]
     td = np.array([x.delay for x in lines])[:, None]
     e1 = np.exp(-(s[None, :] * td) * k)          # one line: [[1 + E^2, Zc (1 - E^2)], [(1 - E^2)/Zc, 1 + E^2]] / 2E
@@ -231,6 +227,16 @@ def _chains(chains: list[list[Line]], s: np.ndarray):
         a[:n], b[:n], c[:n], d[:n] = a1 * a2 + b1 * c2, a1 * b2 + b1 * a2, c1 * a2 + d1 * c2, c1 * b2 + d1 * a2
         g[:n] *= 2.0 * e1[blk]
     return (a, b, c, d, g), row
+
+
+def _unit_line(key) -> Line:
+    """A section of one second's delay with the shape key's Z and loss per unit delay (same K and M)."""
+    if key is None:
+        return Line(50.0, 1.0)
+    kind, z0, r_ac, r_dc, tan_delta, f_ref = key
+    if kind != "ds":
+        raise ValueError(f"no batched shape for a {kind} line")
+    return Line(z0, 1.0, LineLoss(f_ref=f_ref, r_ac=r_ac, tan_delta=tan_delta, r_dc=r_dc))
 
 
 def _shapes(lines: list[Line], s: np.ndarray):
