@@ -225,6 +225,34 @@ def _per_delay_ds(lines, s):
     return k, k / eps
 
 
+def smooth_per_delay_lines(lines, s, nodes: int):
+    """per_delay_lines on a grid s = sigma + j w (w ascending from 0 or above), each row (K, M) of a section.
+
+    K and M vary smoothly and slowly with frequency (the oscillation is all in e^(-s delay K)), so on grids
+    longer than 4 x ``nodes`` they are evaluated exactly at ``nodes`` log-spaced frequencies (and the grid's
+    first two) and interpolated between them linearly in log w (power laws such as the skin effect stay near
+    linear); the waveform moves by less than 1e-4 of the swing (tests/test_transient.py).
+    """
+    if len(s) <= 4 * nodes or not any(x.loss is not None for x in lines):
+        return per_delay_lines(lines, s)
+    w = s.imag
+    start = 1 if w[0] == 0.0 else 0
+    at = np.geomspace(w[start], w[-1], nodes)
+    at[0], at[-1] = w[start], w[-1]
+    kc, mc = per_delay_lines(lines, s.real[0] + 1j * at)
+    x, xn = np.log(w[start:]), np.log(at)
+    i = np.clip(np.searchsorted(xn, x, side="right") - 1, 0, len(xn) - 2)
+    f = ((x - xn[i]) / (xn[i + 1] - xn[i]))[None, :]
+    k = np.empty((len(lines), len(s)), dtype=complex)
+    m = np.empty_like(k)
+    k[:, start:] = kc[:, i] + f * (kc[:, i + 1] - kc[:, i])
+    m[:, start:] = mc[:, i] + f * (mc[:, i + 1] - mc[:, i])
+    if start:
+        k0, m0 = per_delay_lines(lines, s[:1])
+        k[:, 0], m[:, 0] = k0[:, 0], m0[:, 0]
+    return k, m
+
+
 def shape_key(line: Line):
     """Sections with equal keys have equal (K, M): same z0 and the same loss per unit delay."""
     lo = line.loss

@@ -25,7 +25,7 @@ from typing import Sequence
 import numpy as np
 from scipy import fft as sfft
 
-from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, per_delay_lines, shape_key
+from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, shape_key, smooth_per_delay_lines
 from sicheck.physics.line_network import (BATCH_BINS, RECORD_FACTOR, SAMPLES_PER_RAMP, SHAPE_NODES, WRAP_DAMPING,
                                           Simulation, _extend_unsettled, record_ladder, record_size, settle_window)
 from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, ramp_voltage
@@ -202,7 +202,7 @@ def _chains(chains: list[list[Line]], s: np.ndarray):
     # once from the key itself, so that a section's answer does not depend on the nets batched with it
     index: dict = {}
     which = np.array([index.setdefault(shape_key(x), len(index)) for x in lines])
-    k, m = _shapes([_unit_line(key) for key in index], s)
+    k, m = smooth_per_delay_lines([_unit_line(key) for key in index], s, SHAPE_NODES)
     k, m = k[which], m[which]
     z0 = np.array([x.z0 for x in lines])[:, None]
     td = np.array([x.delay for x in lines])[:, None]
@@ -237,29 +237,6 @@ def _unit_line(key) -> Line:
     if kind != "ds":
         raise ValueError(f"no batched shape for a {kind} line")
     return Line(z0, 1.0, LineLoss(f_ref=f_ref, r_ac=r_ac, tan_delta=tan_delta, r_dc=r_dc))
-
-
-def _shapes(lines: list[Line], s: np.ndarray):
-    """(K, M) of every section on the grid s; on long grids exact at SHAPE_NODES frequencies and interpolated
-    between them linearly in log w, as line_network._smooth_per_delay does."""
-    if len(s) <= 4 * SHAPE_NODES or not any(x.loss is not None for x in lines):
-        return per_delay_lines(lines, s)
-    w = s.imag
-    start = 1 if w[0] == 0.0 else 0
-    nodes = np.geomspace(w[start], w[-1], SHAPE_NODES)
-    nodes[0], nodes[-1] = w[start], w[-1]
-    kc, mc = per_delay_lines(lines, s.real[0] + 1j * nodes)
-    x, xn = np.log(w[start:]), np.log(nodes)
-    i = np.clip(np.searchsorted(xn, x, side="right") - 1, 0, len(xn) - 2)
-    f = ((x - xn[i]) / (xn[i + 1] - xn[i]))[None, :]
-    k = np.empty((len(lines), len(s)), dtype=complex)
-    m = np.empty_like(k)
-    k[:, start:] = kc[:, i] + f * (kc[:, i + 1] - kc[:, i])
-    m[:, start:] = mc[:, i] + f * (mc[:, i + 1] - mc[:, i])
-    if start:
-        k0, m0 = per_delay_lines(lines, s[:1])
-        k[:, 0], m[:, 0] = k0[:, 0], m0[:, 0]
-    return k, m
 
 
 def _admittance(loads: LoadSet, s: np.ndarray) -> np.ndarray:

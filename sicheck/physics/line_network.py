@@ -44,7 +44,8 @@ from typing import Mapping, Sequence
 import numpy as np
 from scipy import fft as sfft
 
-from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, dc_resistance, front_delay, per_delay, shape_key
+from sicheck.physics.causal_line import (ConstantRG, Line, LineLoss, dc_resistance, front_delay, per_delay, shape_key,
+                                         smooth_per_delay_lines)
 from sicheck.physics.transient import (RAMP_PER_RISE, SETTLE_BAND, Load, LoadSet, Waveform, metrics_batch,
                                        ramp_voltage)
 
@@ -158,28 +159,11 @@ def _two_port(e: Line | Series, s: np.ndarray, shapes: dict | None = None):
 
 
 def _smooth_per_delay(e: Line, s: np.ndarray):
-    """per_delay(e, s) on a grid s = sigma + j w (w ascending from 0 or above).
-
-    K and M vary smoothly and slowly with frequency (the oscillation is all in e^(-s delay K)), so
-    on long grids they are evaluated exactly at SHAPE_NODES log-spaced frequencies (and the grid's
-    first two) and interpolated between them linearly in log w (power laws such as the skin effect
-    stay near linear); the waveform moves by less than 1e-4 of the swing (tests/test_transient.py).
-    """
+    """per_delay(e, s), interpolated on long grids (causal_line.smooth_per_delay_lines)."""
     if len(s) <= 4 * SHAPE_NODES:
         return per_delay(e, s)
-    w = s.imag
-    start = 1 if w[0] == 0.0 else 0
-    nodes = np.geomspace(w[start], w[-1], SHAPE_NODES)
-    nodes[0], nodes[-1] = w[start], w[-1]
-    kc, mc = per_delay(e, s.real[0] + 1j * nodes)
-    x, xn = np.log(w[start:]), np.log(nodes)       # power laws (skin effect, DC resistance) are near linear in log w
-    k = np.empty(len(s), dtype=complex)
-    m = np.empty(len(s), dtype=complex)
-    k[start:] = np.interp(x, xn, kc.real) + 1j * np.interp(x, xn, kc.imag)
-    m[start:] = np.interp(x, xn, mc.real) + 1j * np.interp(x, xn, mc.imag)
-    if start:
-        k[0], m[0] = (v[0] for v in per_delay(e, s[:1]))
-    return k, m
+    k, m = smooth_per_delay_lines([e], s, SHAPE_NODES)
+    return k[0], m[0]
 
 
 def _cascade(p, q):

@@ -64,13 +64,17 @@ def synthetic_board(path: Path, n: int) -> None:
 class Clock:
     """Wall and CPU time of a block (the machine is shared: CPU time is the steadier of the two)."""
 
+    @staticmethod
+    def _cpu():
+        return time.process_time()
+
     def __enter__(self):
-        self.w0, self.c0 = time.perf_counter(), time.process_time()
+        self.w0, self.c0 = time.perf_counter(), self._cpu()
         return self
 
     def __exit__(self, *exc):
         self.wall = time.perf_counter() - self.w0
-        self.cpu = time.process_time() - self.c0
+        self.cpu = self._cpu() - self.c0
 
     def __str__(self):
         return f"{self.wall:6.2f} s wall {self.cpu:6.2f} s CPU"
@@ -83,14 +87,6 @@ class ClockWithChildren(Clock):
     def _cpu():
         t = os.times()
         return time.process_time() + t.children_user + t.children_system
-
-    def __enter__(self):
-        self.w0, self.c0 = time.perf_counter(), self._cpu()
-        return self
-
-    def __exit__(self, *exc):
-        self.wall = time.perf_counter() - self.w0
-        self.cpu = self._cpu() - self.c0
 
 
 def output_stage(rv, d: Path, repeat: int = 2) -> dict[str, Clock]:
