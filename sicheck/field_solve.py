@@ -72,6 +72,37 @@ def _solve_one(args) -> LineResult:
     return field2d.solve_field(xs, target)
 
 
+def _in_parallel(fn, args: list, keys: list, workers: int | None):
+    """(key, fn(arg)) for each, over a process pool of $SICHECK_WORKERS or the CPUs (at most 4) from three jobs
+    up; the slowest first (pairs solve four fields and their isolated line; open microstrip has the larger
+    grid), so that no worker is left with a long job at the end."""
+    if workers is None and os.environ.get("SICHECK_WORKERS", "").isdigit():
+        workers = int(os.environ["SICHECK_WORKERS"])
+    n_workers = workers if workers is not None else min(os.cpu_count() or 1, 4)
+    order = sorted(range(len(args)), key=lambda k: (not args[k][0].coupled, args[k][0].kind != "microstrip"))
+    jobs = [args[k] for k in order]
+    if len(jobs) >= 3 and n_workers > 1:
+        with ProcessPoolExecutor(max_workers=n_workers) as pool:
+            yield from zip((keys[k] for k in order), pool.map(fn, jobs))
+    else:
+        for k, a in zip(order, jobs):
+            yield keys[k], fn(a)
+
+
+def _fixed_grid_one(args) -> LineResult:
+    xs, level = args
+    return field2d.fixed_grid_impedance(xs, level)
+
+
+def fixed_grid_all(xs_list: list[CrossSection], level: int = field2d.SENSITIVITY_LEVEL,
+                   workers: int | None = None) -> list[LineResult]:
+    """field2d.fixed_grid_impedance of each cross-section (same order), in parallel; not cached (it is cheap)."""
+    out: list = [None] * len(xs_list)
+    for i, r in _in_parallel(_fixed_grid_one, [(x, level) for x in xs_list], list(range(len(xs_list))), workers):
+        out[i] = r
+    return out
+
+
 def solve_field_all(xs_list: list[CrossSection], target_pct: float = field2d.DEFAULT_TARGET_PCT,
                     use_cache: bool = True, progress: Callable[[int, int], None] | None = None,
                     workers: int | None = None) -> list[LineResult]:
@@ -90,25 +121,11 @@ def solve_field_all(xs_list: list[CrossSection], target_pct: float = field2d.DEF
     done = len(xs_list) - len(todo)
     if progress:
         progress(done, len(xs_list))
-    if workers is None and os.environ.get("SICHECK_WORKERS", "").isdigit():
-        workers = int(os.environ["SICHECK_WORKERS"])
-    n_workers = workers if workers is not None else min(os.cpu_count() or 1, 4)
-    # the slowest first (pairs solve four fields and their isolated line; open microstrip has the
-    # larger grid), so that no worker is left with a long job at the end
-    todo.sort(key=lambda i: (not xs_list[i].coupled, xs_list[i].kind != "microstrip"))
-    if len(todo) >= 3 and n_workers > 1:
-        with ProcessPoolExecutor(max_workers=n_workers) as pool:
-            for i, r in zip(todo, pool.map(_solve_one, [(xs_list[i], target_pct) for i in todo])):
-                results[i] = r
-                done += 1
-                if progress:
-                    progress(done, len(xs_list))
-    else:
-        for i in todo:
-            results[i] = _solve_one((xs_list[i], target_pct))
-            done += 1
-            if progress:
-                progress(done, len(xs_list))
+    for i, r in _in_parallel(_solve_one, [(xs_list[i], target_pct) for i in todo], todo, workers):
+        results[i] = r
+        done += 1
+        if progress:
+            progress(done, len(xs_list))
     for i in todo:
         if use_cache:
             _store(cdir / f"{cache_key(xs_list[i], target_pct)}.json", results[i])

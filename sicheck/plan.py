@@ -240,7 +240,8 @@ def add_bands(st: Stackup, targets: list[Target], solver: Solver, rule: GapRule,
     if not done:
         return
     xs = [_make(st, t.layer, t.width, t.what, rule, min_feature) for t in done]
-    b = tolerance_band(xs, [t._result for t in done], solver, tol)
+    b = tolerance_band(xs, [t._result for t in done], solver, tol,
+                       ratio_solve=getattr(solver, "band_ratios", None))      # field: ratios on one fixed grid
     for i, t in enumerate(done):
         lo, hi, rss = ((b.zdiff_min, b.zdiff_max, b.zdiff_rss) if t.what == "zdiff" else (b.z_min, b.z_max, b.z_rss))
         t.band = (float(lo[i]), float(hi[i]), float(rss[i]))

@@ -187,7 +187,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     seg = _segment_table(df, codes, xs, results)
     # fabrication band: each cross-section re-solved at its tolerance limits (sicheck.physics.fab_band)
     if band:          # off (review --no-band): no band columns, so tolerance-band has nothing to check
-        for name, values in band_columns(tolerance_band(xs, results, solver, fab_tolerances(rules))).items():
+        b = tolerance_band(xs, results, solver, fab_tolerances(rules), ratio_solve=getattr(solver, "band_ratios", None))
+        for name, values in band_columns(b).items():
             seg[name] = values[codes]
     seg["vias"] = df["vias"].to_numpy(float) if "vias" in df else 0.0
     _add_loss(seg, stackup, xs, results, codes, solver)

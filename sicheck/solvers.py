@@ -44,4 +44,13 @@ def solver_fn(name: str, no_cache: bool = False, show_progress: bool = True):
             task = bar.add_task("solve", total=len(xs_list))
             return solve_field_all(xs_list, use_cache=not no_cache,
                                    progress=lambda done, total: bar.update(task, completed=done))
+    def band_ratios(xs_list):
+        """The fabrication band's ratio solve (physics/fab_band.py): the field solver on one fixed grid,
+        or the closed forms when 'auto' chose them."""
+        if chosen.get("closed"):
+            return solve_formula(xs_list)
+        from sicheck.field_solve import fixed_grid_all
+        return fixed_grid_all(xs_list)
+
+    field.band_ratios = band_ratios
     return field

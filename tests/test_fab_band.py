@@ -218,3 +218,36 @@ def test_no_band_option_skips_the_band(board, run, tmp_path):
     assert code in (0, 1), err
     (seg,) = json.loads(js.read_text())["segments"]
     assert "z_min_ohm" not in seg and seg["z0_ohm"] > 0
+
+
+def test_band_from_fixed_grid_ratios_matches_the_extrapolated_band():
+    # The field solver's band from ratios on one fixed grid (what a review uses) against the band from
+    # Richardson-extrapolated solves of every limit: a microstrip under a thin mask, a pair, a stripline
+    # between two different laminates. Allowed: 0.15 % of Z, below the solver's own stated uncertainty.
+    from sicheck.field_solve import fixed_grid_all
+    strip = CrossSection("stripline", 0.12e-3, 18e-6, (Stratum(0.13e-3, 3.9),), (Stratum(0.2e-3, 4.4),))
+    xs = [MICROSTRIP, PAIR, strip]
+    tol = Tolerances(width=12.7e-6, dielectric_pct=10.0, er_pct=5.0, copper_pct=10.0)
+
+    def field(lst):
+        return [field2d.solve_field(x, loss=False) for x in lst]
+    nominal = field(xs)
+    full = tolerance_band(xs, nominal, field, tol)
+    fast = tolerance_band(xs, nominal, lambda lst: pytest.fail("the full solve is not used"), tol,
+                          ratio_solve=lambda lst: fixed_grid_all(lst, workers=1))
+    for a, b in ((fast.z_min, full.z_min), (fast.z_max, full.z_max), (fast.zdiff_min[1:2], full.zdiff_min[1:2]),
+                 (fast.zdiff_max[1:2], full.zdiff_max[1:2])):
+        assert np.allclose(a, b, rtol=1.5e-3, atol=0)
+    assert np.all(full.z_max - full.z_min > 2.0)                        # a real band
+    assert np.allclose(fast.z_rss, full.z_rss, rtol=0.02)
+
+
+def test_field_solver_gives_the_band_its_fixed_grid_ratio_solve(monkeypatch):
+    from sicheck import field_solve, solvers
+    seen = []
+    monkeypatch.setattr(field_solve, "fixed_grid_all", lambda lst, **k: seen.append(len(lst)) or solve_formula(lst))
+    monkeypatch.setattr(field_solve, "solve_field_all", lambda lst, **k: solve_formula(lst))
+    field = solvers.solver_fn("field", show_progress=False)
+    field.band_ratios([MICROSTRIP, PAIR])
+    assert seen == [2]
+    assert not hasattr(solvers.solver_fn("formula"), "band_ratios")      # the closed forms solve every limit

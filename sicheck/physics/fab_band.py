@@ -120,14 +120,29 @@ def stack(nominal: np.ndarray, up: list[np.ndarray], down: list[np.ndarray]):
 
 
 def tolerance_band(xs_list: list[CrossSection], results: list[LineResult],
-                   solve: Callable[[list[CrossSection]], list[LineResult]], tol: Tolerances) -> Band:
-    """The fabrication band of every cross-section: one batched ``solve`` of every limit of every quantity."""
+                   solve: Callable[[list[CrossSection]], list[LineResult]], tol: Tolerances,
+                   ratio_solve: Callable[[list[CrossSection]], list[LineResult]] | None = None) -> Band:
+    """The fabrication band of every cross-section: one batched ``solve`` of every limit of every quantity.
+
+    ``ratio_solve``: a cheaper solve whose error is nearly the same for a cross-section and its limits (the
+    field solver on one fixed grid, field2d.fixed_grid_impedance); the limits are then the nominal ``results``
+    times its ratios Z(p +/- dp) / Z(p), and ``solve`` is not called.
+    """
     z0, zd0 = _z(results)
     n = len(xs_list)
     used = [q for q in QUANTITIES if tol.amount(q) > 0] if n else []
     limits = [(q, sign) for q in used for sign in (1, -1)]
-    # one batched solve of every limit of every cross-section (a field solver spreads them over its workers)
-    z, zd = _z(solve([perturbed(x, q, sign, tol) for q, sign in limits for x in xs_list])) if limits else ([], [])
+    moved = [perturbed(x, q, sign, tol) for q, sign in limits for x in xs_list]
+    if not limits:
+        z, zd = [], []
+    elif ratio_solve is None:
+        # one batched solve of every limit of every cross-section (a field solver spreads them over its workers)
+        z, zd = _z(solve(moved))
+    else:
+        z_ref, zd_ref = _z(ratio_solve(list(xs_list)))
+        z, zd = _z(ratio_solve(moved))
+        z = z / np.tile(z_ref, len(limits)) * np.tile(z0, len(limits))
+        zd = zd / np.tile(zd_ref, len(limits)) * np.tile(zd0, len(limits))
     zu = [z[2 * k * n:(2 * k + 1) * n] for k in range(len(used))]
     zl = [z[(2 * k + 1) * n:(2 * k + 2) * n] for k in range(len(used))]
     du = [zd[2 * k * n:(2 * k + 1) * n] for k in range(len(used))]
