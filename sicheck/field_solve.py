@@ -36,9 +36,11 @@ def cache_dir() -> Path:
     return Path(base) / "sicheck"
 
 
-def cache_key(xs: CrossSection, target_pct: float) -> str:
-    payload = json.dumps({"xs": dataclasses.asdict(xs), "v": SOLVER_VERSION, "target": target_pct},
-                         sort_keys=True)
+def cache_key(xs: CrossSection, target_pct: float | int) -> str:
+    """The cache file's name: the cross-section, the solver's version and its setting (an extrapolated solve's
+    target in %, a float; a fixed-grid solve's level, an int)."""
+    setting = {"target": target_pct} if isinstance(target_pct, float) else {"fixed_grid_level": target_pct}
+    payload = json.dumps({"xs": dataclasses.asdict(xs), "v": SOLVER_VERSION, **setting}, sort_keys=True)
     return hashlib.sha256(payload.encode()).hexdigest()[:32]
 
 
@@ -94,26 +96,14 @@ def _fixed_grid_one(args) -> LineResult:
     return field2d.fixed_grid_impedance(xs, level)
 
 
-def fixed_grid_all(xs_list: list[CrossSection], level: int = field2d.SENSITIVITY_LEVEL,
-                   workers: int | None = None) -> list[LineResult]:
-    """field2d.fixed_grid_impedance of each cross-section (same order), in parallel; not cached (it is cheap)."""
-    out: list = [None] * len(xs_list)
-    for i, r in _in_parallel(_fixed_grid_one, [(x, level) for x in xs_list], list(range(len(xs_list))), workers):
-        out[i] = r
-    return out
-
-
-def solve_field_all(xs_list: list[CrossSection], target_pct: float = field2d.DEFAULT_TARGET_PCT,
-                    use_cache: bool = True, progress: Callable[[int, int], None] | None = None,
-                    workers: int | None = None) -> list[LineResult]:
-    """Field results for each cross-section (same order), with the closed form beside them."""
-    formula = solve_formula(xs_list)
+def _cached_solves(xs_list: list[CrossSection], fn, setting, use_cache: bool, progress, workers) -> list[LineResult]:
+    """fn((xs, setting)) for each cross-section, from the cache where it holds one (keyed by the setting)."""
     results: list[LineResult | None] = [None] * len(xs_list)
     todo = []
     cdir = cache_dir()
     for i, xs in enumerate(xs_list):
         if use_cache:
-            hit = _load(cdir / f"{cache_key(xs, target_pct)}.json")
+            hit = _load(cdir / f"{cache_key(xs, setting)}.json")
             if hit is not None:
                 results[i] = hit
                 continue
@@ -121,14 +111,29 @@ def solve_field_all(xs_list: list[CrossSection], target_pct: float = field2d.DEF
     done = len(xs_list) - len(todo)
     if progress:
         progress(done, len(xs_list))
-    for i, r in _in_parallel(_solve_one, [(xs_list[i], target_pct) for i in todo], todo, workers):
+    for i, r in _in_parallel(fn, [(xs_list[i], setting) for i in todo], todo, workers):
         results[i] = r
         done += 1
         if progress:
             progress(done, len(xs_list))
     for i in todo:
         if use_cache:
-            _store(cdir / f"{cache_key(xs_list[i], target_pct)}.json", results[i])
+            _store(cdir / f"{cache_key(xs_list[i], setting)}.json", results[i])
+    return results
+
+
+def fixed_grid_all(xs_list: list[CrossSection], level: int = field2d.SENSITIVITY_LEVEL, use_cache: bool = True,
+                   workers: int | None = None) -> list[LineResult]:
+    """field2d.fixed_grid_impedance of each cross-section (same order), in parallel, cached."""
+    return _cached_solves(xs_list, _fixed_grid_one, level, use_cache, None, workers)
+
+
+def solve_field_all(xs_list: list[CrossSection], target_pct: float = field2d.DEFAULT_TARGET_PCT,
+                    use_cache: bool = True, progress: Callable[[int, int], None] | None = None,
+                    workers: int | None = None) -> list[LineResult]:
+    """Field results for each cross-section (same order), with the closed form beside them."""
+    formula = solve_formula(xs_list)
+    results = _cached_solves(xs_list, _solve_one, target_pct, use_cache, progress, workers)
     out = []
     for r, f in zip(results, formula):
         r.formula_z0 = f.z0

@@ -50,7 +50,7 @@ def solver_fn(name: str, no_cache: bool = False, show_progress: bool = True):
         if chosen.get("closed"):
             return solve_formula(xs_list)
         from sicheck.field_solve import fixed_grid_all
-        return fixed_grid_all(xs_list)
+        return fixed_grid_all(xs_list, use_cache=not no_cache)
 
     field.band_ratios = band_ratios
     return field

@@ -251,3 +251,14 @@ def test_field_solver_gives_the_band_its_fixed_grid_ratio_solve(monkeypatch):
     field.band_ratios([MICROSTRIP, PAIR])
     assert seen == [2]
     assert not hasattr(solvers.solver_fn("formula"), "band_ratios")      # the closed forms solve every limit
+
+
+def test_fixed_grid_solves_are_cached_apart_from_extrapolated_ones(tmp_path, monkeypatch):
+    from sicheck import field_solve
+    monkeypatch.setenv("SICHECK_CACHE_DIR", str(tmp_path))
+    first = field_solve.fixed_grid_all([MICROSTRIP, PAIR], workers=1)
+    assert len(list(tmp_path.glob("*.json"))) == 2
+    monkeypatch.setattr(field2d, "fixed_grid_impedance", lambda *a: pytest.fail("solved again"))
+    again = field_solve.fixed_grid_all([MICROSTRIP, PAIR], workers=1)
+    assert [(r.z0, r.zdiff) for r in again] == [(r.z0, r.zdiff) for r in first]
+    assert field_solve.cache_key(MICROSTRIP, 0) != field_solve.cache_key(MICROSTRIP, 0.0)

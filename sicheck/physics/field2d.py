@@ -633,9 +633,10 @@ def fixed_grid_impedance(xs: CrossSection, level: int = SENSITIVITY_LEVEL) -> Li
 
     For ratios of nearby cross-sections, Z(p + dp) / Z(p), as the fabrication band takes them: the grid's
     error is nearly the same on both and cancels in the ratio. On the 12 cross-sections of the KS-4 benchmark
-    board (microstrip with a thin mask, stripline, pairs of both) band edges from level-0 ratios times the
-    extrapolated nominal are within 0.08 % of edges from extrapolated solves throughout, at an eighth of the
-    cost (tests/test_fab_band.py). ``uncertainty_pct`` is not estimated here (NaN): use the ratio only.
+    board (microstrip with a thin mask, stripline, pairs of both) and on the demo board, band edges from
+    level-0 ratios times the extrapolated nominal are within 0.1 % of edges from extrapolated solves of every
+    limit, at about an eighth of the cost (tests/test_fab_band.py allows 0.15 %). ``uncertainty_pct`` is not
+    estimated here (NaN): use the ratio only.
     """
     lay = layout_of(xs)
     ers = {s.er for s in xs.below} | {s.er for s in xs.above}
