@@ -19,7 +19,9 @@ from sicheck.physics.chain_batch import plain_chain, samples_needed, simulate_ma
 from sicheck.physics.line_network import Network, Series, Simulation
 from sicheck.physics.termination_choice import Limits, choose, choose_many
 from sicheck.physics.transient import Load, LoadSet
-from test_transient import LOSSLESS_CASES, compare, needs_ngspice, ngspice_run
+from ngspice_ref import needs_ngspice
+from ngspice_ref import ramp_run as ngspice_run
+from test_transient import LOSSLESS_CASES, compare
 
 LOADS = [Load(cap=2e-12), Load(), Load(cap=1e-12, end_ohm=50.0, end_volts=1.65),
          Load(cap=2e-12, end_ohm=55.0, end_cap=120e-12), Load(cap=3e-12, end_ohm=47.0, end_volts=0.0)]

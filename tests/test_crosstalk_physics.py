@@ -1,7 +1,5 @@
 """Crosstalk coefficients against exact results, ngspice and physical invariants."""
 
-import shutil
-import subprocess
 
 import numpy as np
 import pytest
@@ -9,6 +7,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.special import ellipk
 
+from ngspice_ref import needs_ngspice, transient
 from sicheck.physics import crosstalk as xt
 from sicheck.physics.cross_section import CrossSection, Stratum
 from sicheck.physics.field2d import solve_field
@@ -89,7 +88,6 @@ def test_near_end_saturation_and_far_end_growth():
 
 # ---------------------------------------------------------------- ngspice: coupled ladder
 
-NGSPICE = shutil.which("ngspice")
 
 
 def ladder_noise(tmp_path, c, length, rise, dx=0.1e-3):
@@ -115,15 +113,9 @@ def ladder_noise(tmp_path, c, length, rise, dx=0.1e-3):
                   f"Cm{i} a{i} v{i} {f * cm * d:.6e}"]
     t_end = 2 * length * float(np.ravel(c.delay_per_m)[0]) + 3 * ramp
     step = ramp / 400
-    out = tmp_path / "xt.txt"
-    cir = tmp_path / "xt.cir"
-    cir.write_text("* coupled ladder\n" + "\n".join(lines) +
-                   f"\n.tran {step:.4e} {t_end:.4e} 0 {step:.4e}\n.control\nrun\n"
-                   f"wrdata {out} v(v0) v(v{n})\nquit\n.endc\n.end\n")
-    subprocess.run([NGSPICE, "-b", str(cir)], capture_output=True, check=True, timeout=300)
-    data = np.loadtxt(out)
+    ts, (v_ne, v_fe) = transient(tmp_path, "coupled ladder", "\n".join(lines), step, t_end, ("v0", f"v{n}"))
     t = np.linspace(0.0, t_end, 4001)
-    ne, fe = np.interp(t, data[:, 0], data[:, 1]), np.interp(t, data[:, 0], data[:, 3])
+    ne, fe = np.interp(t, ts, v_ne), np.interp(t, ts, v_fe)
     # A lumped ladder rings (Gibbs) at its cut-off where the far-end pulse has its sharp edges; a moving
     # average over ramp/10 removes that artefact of the discretisation and leaves the line's pulse.
     k = max(int(round((ramp / 10) / (t[1] - t[0]))), 1)
@@ -136,7 +128,7 @@ def microstrip_pair():
     return coupling(solve_field(microstrip(0.2e-3, 0.2e-3)))
 
 
-@pytest.mark.skipif(NGSPICE is None, reason="ngspice is not installed (.ci/run installs it)")
+@needs_ngspice
 @pytest.mark.parametrize("times_saturation", [0.35, 3.0])
 def test_near_and_far_end_noise_against_ngspice_ladder(tmp_path, microstrip_pair, times_saturation):
     # Reference: ngspice (general-purpose circuit simulator) on a coupled ladder built from the field-solved
@@ -197,20 +189,15 @@ def ladder_waves(tmp_path, c, length, rise, r_drv, r_victim, c_far, t_end, dx=0.
         lines += [f"Ca{i} a{i} 0 {f * (cs - cm) * d:.6e}", f"Cv{i} v{i} 0 {f * (cs - cm) * d:.6e}",
                   f"Cm{i} a{i} v{i} {f * cm * d:.6e}"]
     step = ramp / 400
-    out, cir = tmp_path / "w.txt", tmp_path / "w.cir"
-    cir.write_text("* coupled ladder, real ends\n" + "\n".join(lines) +
-                   f"\n.tran {step:.4e} {t_end:.4e} 0 {step:.4e}\n.control\nrun\n"
-                   f"wrdata {out} v(v0) v(v{n})\nquit\n.endc\n.end\n")
-    subprocess.run([NGSPICE, "-b", str(cir)], capture_output=True, check=True, timeout=300)
-    data = np.loadtxt(out)
+    ts, (v_ne, v_fe) = transient(tmp_path, "coupled ladder, real ends", "\n".join(lines), step, t_end,
+                                 ("v0", f"v{n}"))
     t = np.linspace(0.0, t_end, 4001)
     k = max(int(round((ramp / 10) / (t[1] - t[0]))), 1)
     kernel = np.ones(k) / k
-    return (t, np.convolve(np.interp(t, data[:, 0], data[:, 1]), kernel, "same"),
-            np.convolve(np.interp(t, data[:, 0], data[:, 3]), kernel, "same"))
+    return (t, np.convolve(np.interp(t, ts, v_ne), kernel, "same"), np.convolve(np.interp(t, ts, v_fe), kernel, "same"))
 
 
-@pytest.mark.skipif(NGSPICE is None, reason="ngspice is not installed (.ci/run installs it)")
+@needs_ngspice
 def test_crosstalk_waveforms_with_real_ends_match_ngspice(tmp_path, microstrip_pair):
     # Reference: ngspice on the coupled ladder with a 25 ohm aggressor driver, the victim's quiet 25 ohm driver
     # at its near end and 3 pF receivers at both far ends (nothing matched): the victim's waveforms at both

@@ -9,19 +9,16 @@ waveform as the chooser's own external termination of the same value at the rece
 from __future__ import annotations
 
 import json
-import shutil
-import subprocess
 
 import numpy as np
 import pytest
 
+from ngspice_ref import needs_ngspice, ramp_run
 from sicheck.errors import InputError
 from sicheck.physics.termination_choice import Limits, choose
 from sicheck.physics.transient import receiver_metrics
 from sicheck.rules import load_rule_sets, load_rules
 
-NGSPICE = shutil.which("ngspice")
-needs_ngspice = pytest.mark.skipif(NGSPICE is None, reason="ngspice is not installed (.ci/run installs it)")
 KEYS_V = ("v_max", "ringback")
 KEYS_T = ("flight_ns", "settle_ns")
 
@@ -71,27 +68,10 @@ def test_on_die_single_line_against_ngspice(tmp_path):
     ramp = rise / 0.8
     before, _, _ = choose([50.0], [1e-9], rise, 34.0, swing, 2e-12, Limits(), on_die=(60.0, 0.75, "od"))
     ours = before.metrics
-    cir, out = tmp_path / "od.cir", tmp_path / "od.txt"
-    step = ramp / 400
     t_end = ours["window_ns"] * 1e-9
-    cir.write_text(f"""* on-die termination
-V1 src 0 PWL(0 0 {ramp:.6e} {swing})
-R1 src a 34
-T1 a 0 rx 0 Z0=50 TD=1n
-Rodt rx vt 60
-Vt vt 0 0.75
-C1 rx 0 2p
-.tran {step:.4e} {t_end:.4e} 0 {step:.4e}
-.control
-run
-wrdata {out} v(rx)
-quit
-.endc
-.end
-""")
-    subprocess.run([NGSPICE, "-b", str(cir)], capture_output=True, check=True, timeout=300)
-    d = np.loadtxt(out)
-    ref = receiver_metrics(d[:, 0], d[:, 1], ours["v_final"], ramp)
+    t, v = ramp_run(tmp_path, "R1 src a 34\nT1 a 0 rx 0 Z0=50 TD=1n\nRodt rx vt 60\nVt vt 0 0.75\nC1 rx 0 2p", swing, ramp,
+                    t_end, ramp / 400)
+    ref = receiver_metrics(t, v, ours["v_final"], ramp)
     _same(ours, ref, swing)
     # DC: the divider 0.75 + (1.5 - 0.75) x 60 / 94
     assert ours["v_final"] == pytest.approx(0.75 + 0.75 * 60 / 94, rel=1e-3)

@@ -8,13 +8,12 @@ elements and an R or C element for the part, at the tolerances of the waveform t
 from __future__ import annotations
 
 import json
-import shutil
-import subprocess
 
 import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
 
+from ngspice_ref import needs_ngspice, ramp_run
 from sicheck.errors import InputError
 from sicheck.physics.causal_line import Line
 from sicheck.physics.line_network import Network, Series, simulate_network
@@ -23,27 +22,10 @@ from sicheck.physics.termination_choice import Limits, choose
 from sicheck.physics.transient import receiver_metrics
 from sicheck.series_parts import parse_part
 
-NGSPICE = shutil.which("ngspice")
-needs_ngspice = pytest.mark.skipif(NGSPICE is None, reason="ngspice is not installed (.ci/run installs it)")
 
 
 def spice(tmp_path, body: str, vin: float, ramp: float, t_end: float) -> tuple[np.ndarray, np.ndarray]:
-    cir, out = tmp_path / "s.cir", tmp_path / "s.txt"
-    cir.write_text(f"""* a net through a series part
-V1 src 0 PWL(0 0 {ramp:.6e} {vin})
-{body}
-.tran {ramp / 400:.4e} {t_end:.4e} 0 {ramp / 400:.4e}
-.control
-run
-wrdata {out} v(rx)
-quit
-.endc
-.end
-""")
-    subprocess.run([NGSPICE, "-b", str(cir)], capture_output=True, check=True, timeout=300)
-    d = np.loadtxt(out)
-    assert d[-1, 0] >= 0.99 * t_end, "ngspice stopped early"
-    return d[:, 0], d[:, 1]
+    return ramp_run(tmp_path, body, vin, ramp, t_end, ramp / 400)
 
 
 def same_metrics(ours: dict, t, v, ramp, swing):

@@ -7,18 +7,15 @@ tolerances as the chain tests in tests/test_transient.py (metrics within 0.5 % o
 from __future__ import annotations
 
 import json
-import shutil
-import subprocess
 
 import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
 
+from ngspice_ref import needs_ngspice, transient
 from sicheck.physics.termination_choice import Limits, choose
 from sicheck.physics.transient import receiver_metrics
 
-NGSPICE = shutil.which("ngspice")
-needs_ngspice = pytest.mark.skipif(NGSPICE is None, reason="ngspice is not installed (.ci/run installs it)")
 
 # A T with a stub at mid-trunk: driver -> 20 mm -> M -> 20 mm -> T; T -> 30 mm -> U2.1 (50 ohm) and
 # T -> 30 mm -> U3.1 (60 ohm), 3 pF each; M -> 10 mm -> an open test pad. About 6.1 ps/mm.
@@ -31,10 +28,8 @@ SWING, RISE, RDRV = 3.3, 0.3e-9, 25.0
 
 def spice_tree(tmp_path, r_series: float, end: str, t_end: float, step: float):
     """ngspice on the same T; returns (t, v(rx1), v(rx2)). `end`: extra elements at rx1 (the main path's end)."""
-    cir, out = tmp_path / "t.cir", tmp_path / "t.txt"
     drive = f"R1 src d {RDRV}\nRs d a {r_series}" if r_series else f"R1 src a {RDRV}"
-    cir.write_text(f"""* T with a mid-trunk stub
-V1 src 0 PWL(0 0 {RISE / 0.8:.6e} {SWING})
+    body = f"""V1 src 0 PWL(0 0 {RISE / 0.8:.6e} {SWING})
 {drive}
 T1 a 0 m 0 Z0=50 TD=122p
 T2 m 0 t 0 Z0=50 TD=122p
@@ -44,18 +39,9 @@ T5 m 0 tp 0 Z0=50 TD=61p
 Rleak tp 0 1e12
 C1 rx1 0 3p
 C2 rx2 0 3p
-{end}
-.tran {step:.4e} {t_end:.4e} 0 {step:.4e}
-.control
-run
-wrdata {out} v(rx1) v(rx2)
-quit
-.endc
-.end
-""")
-    subprocess.run([NGSPICE, "-b", str(cir)], capture_output=True, check=True, timeout=300)
-    d = np.loadtxt(out)
-    return d[:, 0], d[:, 1], d[:, 3]
+{end}"""
+    t, (v1, v2) = transient(tmp_path, "T with a mid-trunk stub", body, step, t_end, ("rx1", "rx2"))
+    return t, v1, v2
 
 
 @needs_ngspice
