@@ -90,20 +90,19 @@ def test_near_end_saturation_and_far_end_growth():
 
 
 
-def ladder_noise(tmp_path, c, length, rise, dx=0.1e-3):
-    """Near- and far-end victim peaks of a coupled LC ladder in ngspice, as fractions of the incident step.
+def coupled_ladder(tmp_path, c, length, rise, ends: list[str], swing: float, t_end: float, dx=0.1e-3):
+    """ngspice on a coupled LC ladder: (t, victim near end, victim far end), smoothed over ramp/10.
 
     Each section carries Ls dx on both lines with a mutual K = Lm/Ls, Cs - Cm to ground on each line
-    and a mutual capacitor Cm dx between them (pi sections: half capacitors at the ends). The source
-    (2 V through Z) launches 1 V; all four ends are terminated in Z = sqrt(Ls/Cs).
+    and a mutual capacitor Cm dx between them (pi sections: half capacitors at the ends). The aggressor
+    is driven at node a0 from node src (a ramp of ``swing``); ``ends`` are the elements at src/a0, v0,
+    a{n} and v{n}, with {n} the last node.
     """
     ls, lm, cs, cm = (float(np.ravel(v)[0]) for v in (c.ls, c.lm, c.cs, c.cm))
-    z = float(np.ravel(c.z_line)[0])
     n = max(int(round(length / dx)), 10)
     d = length / n
     ramp = rise / 0.8
-    lines = [f"V1 src 0 PWL(0 0 {ramp:.6e} 2)", f"Rs src a0 {z}", f"Rne v0 0 {z}", f"Rfa a{n} 0 {z}",
-             f"Rfv v{n} 0 {z}"]
+    lines = [f"V1 src 0 PWL(0 0 {ramp:.6e} {swing})"] + [e.replace("{n}", str(n)) for e in ends]
     for i in range(1, n + 1):
         lines += [f"La{i} a{i - 1} a{i} {ls * d:.6e}", f"Lv{i} v{i - 1} v{i} {ls * d:.6e}",
                   f"K{i} La{i} Lv{i} {lm / ls:.9f}"]
@@ -111,16 +110,23 @@ def ladder_noise(tmp_path, c, length, rise, dx=0.1e-3):
         f = 0.5 if i in (0, n) else 1.0
         lines += [f"Ca{i} a{i} 0 {f * (cs - cm) * d:.6e}", f"Cv{i} v{i} 0 {f * (cs - cm) * d:.6e}",
                   f"Cm{i} a{i} v{i} {f * cm * d:.6e}"]
-    t_end = 2 * length * float(np.ravel(c.delay_per_m)[0]) + 3 * ramp
-    step = ramp / 400
-    ts, (v_ne, v_fe) = transient(tmp_path, "coupled ladder", "\n".join(lines), step, t_end, ("v0", f"v{n}"))
+    ts, (v_ne, v_fe) = transient(tmp_path, "coupled ladder", "\n".join(lines), ramp / 400, t_end, ("v0", f"v{n}"))
     t = np.linspace(0.0, t_end, 4001)
-    ne, fe = np.interp(t, ts, v_ne), np.interp(t, ts, v_fe)
     # A lumped ladder rings (Gibbs) at its cut-off where the far-end pulse has its sharp edges; a moving
     # average over ramp/10 removes that artefact of the discretisation and leaves the line's pulse.
     k = max(int(round((ramp / 10) / (t[1] - t[0]))), 1)
     kernel = np.ones(k) / k
-    return np.convolve(ne, kernel, "same").max(), np.convolve(fe, kernel, "same").min()
+    return (t, np.convolve(np.interp(t, ts, v_ne), kernel, "same"), np.convolve(np.interp(t, ts, v_fe), kernel, "same"))
+
+
+def ladder_noise(tmp_path, c, length, rise, dx=0.1e-3):
+    """Near- and far-end victim peaks of the coupled ladder, as fractions of the incident step: the source
+    (2 V through Z) launches 1 V; all four ends are terminated in Z = sqrt(Ls/Cs)."""
+    z = float(np.ravel(c.z_line)[0])
+    t_end = 2 * length * float(np.ravel(c.delay_per_m)[0]) + 3 * rise / 0.8
+    _, ne, fe = coupled_ladder(tmp_path, c, length, rise, [f"Rs src a0 {z}", f"Rne v0 0 {z}", f"Rfa a{{n}} 0 {z}",
+                                                           f"Rfv v{{n}} 0 {z}"], 2.0, t_end, dx)
+    return ne.max(), fe.min()
 
 
 @pytest.fixture(scope="module")
@@ -173,28 +179,11 @@ def test_field_solved_coupling_falls_with_spacing():
 # ---------------------------------------------------------------- waveforms with real ends: modal solution vs ngspice
 
 def ladder_waves(tmp_path, c, length, rise, r_drv, r_victim, c_far, t_end, dx=0.1e-3):
-    """ngspice coupled LC ladder (as ladder_noise) with a 1 V ramp behind r_drv, the victim's near end in
-    r_victim and both far ends a capacitor c_far: (t, victim near, victim far), smoothed over ramp/10."""
-    ls, lm, cs, cm = (float(np.ravel(v)[0]) for v in (c.ls, c.lm, c.cs, c.cm))
-    n = max(int(round(length / dx)), 10)
-    d = length / n
-    ramp = rise / 0.8
-    lines = [f"V1 src 0 PWL(0 0 {ramp:.6e} 1)", f"Rs src a0 {r_drv}", f"Rne v0 0 {r_victim}",
-             f"Cfa a{n} 0 {c_far:.6e}", f"Cfv v{n} 0 {c_far:.6e}"]
-    for i in range(1, n + 1):
-        lines += [f"La{i} a{i - 1} a{i} {ls * d:.6e}", f"Lv{i} v{i - 1} v{i} {ls * d:.6e}",
-                  f"K{i} La{i} Lv{i} {lm / ls:.9f}"]
-    for i in range(n + 1):
-        f = 0.5 if i in (0, n) else 1.0
-        lines += [f"Ca{i} a{i} 0 {f * (cs - cm) * d:.6e}", f"Cv{i} v{i} 0 {f * (cs - cm) * d:.6e}",
-                  f"Cm{i} a{i} v{i} {f * cm * d:.6e}"]
-    step = ramp / 400
-    ts, (v_ne, v_fe) = transient(tmp_path, "coupled ladder, real ends", "\n".join(lines), step, t_end,
-                                 ("v0", f"v{n}"))
-    t = np.linspace(0.0, t_end, 4001)
-    k = max(int(round((ramp / 10) / (t[1] - t[0]))), 1)
-    kernel = np.ones(k) / k
-    return (t, np.convolve(np.interp(t, ts, v_ne), kernel, "same"), np.convolve(np.interp(t, ts, v_fe), kernel, "same"))
+    """The coupled ladder with a 1 V ramp behind r_drv, the victim's near end in r_victim and both far ends a
+    capacitor c_far: (t, victim near, victim far), smoothed over ramp/10."""
+    return coupled_ladder(tmp_path, c, length, rise, [f"Rs src a0 {r_drv}", f"Rne v0 0 {r_victim}",
+                                                      f"Cfa a{{n}} 0 {c_far:.6e}", f"Cfv v{{n}} 0 {c_far:.6e}"],
+                          1.0, t_end, dx)
 
 
 @needs_ngspice
