@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import math
 import os
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
@@ -54,22 +55,28 @@ class SegmentLosses:
         ac, ad = (np.asarray(x, dtype=float) for x in (a_c_db, a_d_db))
         ac = np.where(np.isfinite(ac), ac, 0.0) / NP_TO_DB
         ad = np.where(np.isfinite(ad), ad, 0.0) / NP_TO_DB
-        ar = np.array([np.nan if a is None else a for a in area], dtype=float)
+        if isinstance(area, np.ndarray) and area.dtype.kind == "f":
+            ar = area.astype(float)
+        else:
+            ar = np.array([np.nan if a is None else a for a in area], dtype=float)
         ok = np.isfinite(ar) & (ar > 0)
         r_dc = np.where(ok, RHO_COPPER * ln / np.where(ok, ar, 1.0), 0.0)
         with np.errstate(invalid="ignore", divide="ignore"):
             tand = np.minimum(ad * ln / (math.pi * f * td), 0.5)
-        self._none = ((ac == 0.0) & (ad == 0.0) & (r_dc == 0.0)).tolist()
-        self._f, self._tand, self._r_dc = f.tolist(), tand.tolist(), r_dc.tolist()
-        self._ac, self._ln = ac.tolist(), ln.tolist()           # R at f0 = 2 Z alpha_c length
-        self._z = z.tolist()
+        self.lossless = (ac == 0.0) & (ad == 0.0) & (r_dc == 0.0)
+        self._z = z
+        self._columns = (f, tand, r_dc, ac, ln)
 
     def of(self, segments, z=None) -> list[LineLoss | None]:
-        """LineLoss (or None) of the given segments; z: their impedance, when not the one given at first."""
-        zs = [self._z[j] for j in segments] if z is None else z
-        return [None if self._none[j] else LineLoss(f_ref=self._f[j], r_ac=2.0 * zi * self._ac[j] * self._ln[j],
-                                                    tan_delta=self._tand[j], r_dc=self._r_dc[j])
-                for j, zi in zip(segments, zs)]
+        """LineLoss (or None) of the given segments (indices, in any order; repeats allowed); z: their
+        impedance, when not the one given at first. Each segment's arithmetic is elementwise on arrays."""
+        j = np.asarray(segments if isinstance(segments, np.ndarray) else list(segments), dtype=np.intp)
+        f, tand, r_dc, ac, ln = (a[j] for a in self._columns)
+        zj = self._z[j] if z is None else np.asarray(z, dtype=float)
+        r_ac = 2.0 * zj * ac * ln           # R at f0 = 2 Z alpha_c length
+        return [None if none else LineLoss(f_ref=fj, r_ac=rj, tan_delta=tj, r_dc=dj)
+                for none, fj, rj, tj, dj in zip(self.lossless[j].tolist(), f.tolist(), r_ac.tolist(),
+                                                tand.tolist(), r_dc.tolist())]
 
 
 def _source(given: bool, cls, attr: str, key: str) -> str:
@@ -78,6 +85,106 @@ def _source(given: bool, cls, attr: str, key: str) -> str:
     if cls is not None and getattr(cls, attr, None) is not None:
         return f"net class '{cls.name}'"
     return f"{RULES_SRC} {key}"
+
+
+IN_ORDER_MAX = 7     # numpy sums up to this many float64 values strictly in order (tests/test_waveform_inputs.py)
+
+
+class _Chains:
+    """The segments of many nets laid end to end (net after net, each net's own order): per-net sums,
+    first values and tests done once over whole arrays instead of once per net on tiny ones."""
+
+    def __init__(self, ixs: list[np.ndarray]):
+        self.counts = np.fromiter(map(len, ixs), dtype=np.intp, count=len(ixs))
+        if (self.counts == 0).any():
+            raise ValueError("a net without segments")
+        self.cat = np.concatenate(ixs).astype(np.intp) if ixs else np.zeros(0, np.intp)
+        self.starts = np.cumsum(self.counts) - self.counts
+        self.first = self.cat[self.starts]
+        self._bounds = list(zip(self.starts.tolist(), (self.starts + self.counts).tolist()))
+
+    def split(self, a) -> list:
+        """Each net's part of a per-segment array (a view) or list."""
+        return [a[s:e] for s, e in self._bounds]
+
+    def _reduce(self, ufunc, a, empty):
+        return ufunc.reduceat(a, self.starts) if len(self.starts) else np.zeros(0, dtype=empty)
+
+    def sums(self, a: np.ndarray) -> np.ndarray:
+        """Each net's part's a.sum(), to the last bit: numpy adds fewer than IN_ORDER_MAX + 1 values one
+        after the other from 0.0 (its pairwise summation starts at 8; ufunc.reduceat adds in another order),
+        so those nets are summed a segment position at a time over all of them, longer ones one by one."""
+        a = np.asarray(a, dtype=float)
+        out = 0.0 + a[self.starts]
+        short = self.counts <= IN_ORDER_MAX
+        for k in range(1, min(IN_ORDER_MAX, int(self.counts.max(initial=1)))):
+            m = np.flatnonzero(short & (self.counts > k))
+            out[m] += a[self.starts[m] + k]
+        for j in np.flatnonzero(~short).tolist():
+            s, e = self._bounds[j]
+            out[j] = a[s:e].sum()
+        return out
+
+    def any(self, mask: np.ndarray) -> np.ndarray:
+        return self._reduce(np.logical_or, mask, bool)
+
+    def all(self, mask: np.ndarray) -> np.ndarray:
+        return self._reduce(np.logical_and, mask, bool)
+
+    def first_true(self, mask: np.ndarray) -> np.ndarray:
+        """Each net's first segment (0-based, in the net) where mask holds; 0 where none does (as argmax)."""
+        local = np.arange(len(mask)) - np.repeat(self.starts, self.counts)
+        k = self._reduce(np.minimum, np.where(mask, local, len(mask)), int)
+        return np.where(k == len(mask), 0, k)
+
+
+@dataclass(frozen=True)
+class _ClassInputs:
+    """What a net's class (or, without one, the rules) gives every net of it of one kind (single or pair)."""
+
+    cls: object
+    driver_on_die: float | None
+    driver_src: str              # where driver_ohm and load_pf come from when the trace list does not give them
+    load_src: str
+    rise_src: str                # ... and the rise time
+    swing: float
+    swing_src: str
+    leg_swing: float             # a pair's leg: half the swing (odd mode)
+    limits: Limits               # one object for the class's nets: frozen, and pickled once per chunk of jobs
+    overshoot_src: str
+    ringback_src: str
+    settle_src: str
+    on_die: dict | None          # the on-die termination as reported (copied into each net's inputs)
+    on_die_sim: tuple | None     # ... and as simulated
+
+
+def _class_inputs(rules: Rules, cls, class_name: str, pair: bool) -> _ClassInputs:
+    od, drv_od = on_die_for(rules, cls, pair), driver_on_die(rules, cls)
+    swing = cls.swing if cls and cls.swing else None
+    swing_src = f"net class '{cls.name}'" if swing is not None else f"{RULES_SRC} swing"
+    if swing is None:
+        swing = rules.swing
+
+    def pick(attr, default):
+        v = getattr(cls, attr, None) if cls else None
+        return (v, f"net class '{cls.name}'") if v is not None else (default, f"{RULES_SRC} {attr}")
+
+    over, over_src = pick("max_overshoot_pct", rules.max_overshoot_pct)
+    ring, ring_src = pick("max_ringback_pct", rules.max_ringback_pct)
+    settle = cls.max_settle_ns if cls else None
+    settle_src = (f"net class '{cls.name}'" if settle is not None else
+                  f"flight + ramp + {rules.settle_rise_times:g} x Tr ({RULES_SRC} settle_rise_times)")
+    on_die = None if od is None else {
+        "ohm": od.ohm, "to_v": None if pair else od.volts, "simulated_ohm": od.sim_ohm,
+        "source": od.source + (" (odd mode: half the differential value from each leg to the centre)" if pair else "")}
+    return _ClassInputs(
+        cls=cls, driver_on_die=drv_od, driver_src=_source(False, cls, "driver_ohm", "driver_ohm"),
+        load_src=_source(False, cls, "load_pf", "load_pf"), rise_src=f"net class '{class_name}'",
+        swing=swing, swing_src=swing_src, leg_swing=swing / (2.0 if pair else 1.0),
+        limits=Limits(max_overshoot_pct=over, max_ringback_pct=ring, max_settle_ns=settle,
+                      settle_rise_times=rules.settle_rise_times),
+        overshoot_src=over_src, ringback_src=ring_src, settle_src=settle_src, on_die=on_die,
+        on_die_sim=None if od is None else (od.sim_ohm, od.sim_volts, od.text))
 
 
 POOL_MIN_NETS = 400      # below this a process pool costs more than it saves
@@ -189,52 +296,73 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
     part_farad = seg["part_farad"].to_numpy(float) if "part_farad" in seg.columns else np.full(len(seg), np.nan)
     done_pair: dict[frozenset, int] = {}
     partners: list[tuple[int, int]] = []
-    jobs: list = []
-    pending: dict = {}
     copy_cols = (scheme, part, power, meets, notes, violations, lossy, inputs, rx_out)
     keys = ("net", "pair", "net_class", "driver_ohm", "load_pf", "rise_time", "z_driver_end")
-    rows = {i: dict(zip(keys, v)) for i, v in zip(nets.index, zip(*(nets[k].tolist() for k in keys)))}
-    # per segment, once: the loss models (single-ended and odd mode) and the loss totals
-    xs_area = (area[arr["xs"].astype(int)] if area is not None else [None] * len(seg))
-    loss_args = (arr["delay"], arr["length"], arr["freq"], arr["conductor_loss_db_per_m"],
-                 arr["dielectric_loss_db_per_m"], xs_area)
-    seg_losses = SegmentLosses(arr["z0"], *loss_args)
-    length = arr["length"].astype(float)
-    db_c = length * arr["conductor_loss_db_per_m"].astype(float)
-    db_d = length * arr["dielectric_loss_db_per_m"].astype(float)
-    db_all = np.nan_to_num(db_c + db_d)
-    db_c, db_d = np.nan_to_num(db_c), np.nan_to_num(db_d)
-    for i in order:
-        r = rows[i]
-        net, pair = r["net"], r["pair"]
+    sim = []          # the nets simulated: (index, net, pair, class, driver_ohm, load_pf, rise_time, z_driver_end)
+    for row in zip(order.tolist(), *(nets.loc[order, k].tolist() for k in keys)):
+        i, net, pair = row[:3]
         if pair:
             key = frozenset((net, pair))
             if key in done_pair:      # the partner leg: same result (filled in below)
                 partners.append((i, done_pair[key]))
                 continue
             done_pair[key] = i
+        sim.append(row)
+    # the simulated nets' segments end to end: per-net sums, first values and tests over whole arrays
+    ixs = [pos[r[1]] for r in sim]
+    ch = _Chains(ixs)
+    cat = ch.cat
+    is_pair = np.repeat(np.array([bool(r[2]) for r in sim], dtype=bool), ch.counts)
+    z_cat = np.where(is_pair, arr["zodd"][cat].astype(float), arr["z0"][cat].astype(float))
+    td_cat = arr["delay"][cat].astype(float)
+    # per segment: the loss models (single-ended and odd mode) and the loss totals
+    xs_area = (area[arr["xs"].astype(int)] if area is not None else [None] * len(seg))
+    seg_losses = SegmentLosses(arr["z0"], arr["delay"], arr["length"], arr["freq"], arr["conductor_loss_db_per_m"],
+                               arr["dielectric_loss_db_per_m"], xs_area)
+    losses_cat = seg_losses.of(cat, z_cat)
+    length = arr["length"].astype(float)
+    db_c = length * arr["conductor_loss_db_per_m"].astype(float)
+    db_d = length * arr["dielectric_loss_db_per_m"].astype(float)
+    db_all = np.nan_to_num(db_c + db_d)
+    db_c, db_d = np.nan_to_num(db_c), np.nan_to_num(db_d)
+    rise_net = np.array([float(r[6]) for r in sim], dtype=float)
+    per_net = zip(
+        ch.split(z_cat), ch.split(td_cat), ch.split(losses_cat), ch.counts.tolist(),
+        (ch.sums(td_cat) * 1e12).tolist(), ch.sums(db_all[cat]).tolist(), ch.sums(db_c[cat]).tolist(),
+        ch.sums(db_d[cat]).tolist(), (~ch.all(seg_losses.lossless[cat])).tolist(),
+        given["driver_ohm"][ch.first].tolist(), given["load_pf"][ch.first].tolist(),
+        # the net's edge is given in the trace list when a row giving it has that edge
+        ch.any(given["rise_time"][cat] & (arr["rise_time"][cat] == np.repeat(rise_net, ch.counts))).tolist(),
+        (ch.first_true(driver_end[cat]) if driver_end is not None else np.zeros(len(sim), int)).tolist(),
+        ch.any(np.isfinite(part_ohm[cat])).tolist(), arr["freq"][ch.first].tolist(),
+        (arr["freq"][ch.first] * 1e-9).tolist())
+    per_class: dict[tuple[str, bool], _ClassInputs] = {}
+    ramps: dict[float, str] = {}
+    jobs: list = []
+    pending: dict = {}
+    for (i, net, pair, net_class, drv_in, cap_in, rise_in, zde), (
+            z, td, losses, n_seg, delay_ps, loss_db, cond_db, diel_db, has_loss, drv_given, cap_given, rise_given,
+            de_local, has_parts, f0, f0_ghz) in zip(sim, per_net):
         ix = pos[net]
-        z = arr["zodd" if pair else "z0"][ix].astype(float)
-        td = arr["delay"][ix].astype(float)
-        losses = seg_losses.of(ix.tolist(), z.tolist())
-        cls = classes.get(r["net_class"])
+        c = per_class.get((net_class, bool(pair)))
+        if c is None:
+            c = per_class[net_class, bool(pair)] = _class_inputs(rules, classes.get(net_class), net_class, bool(pair))
+        cls = c.cls
         assumed = []
-        drv = float(r["driver_ohm"])
-        drv_src = _source(bool(given["driver_ohm"][ix[0]]), cls, "driver_ohm", "driver_ohm")
-        od, drv_od = on_die_for(rules, cls, bool(pair)), driver_on_die(rules, cls)
-        if drv_od is not None and not given["driver_ohm"][ix[0]]:
-            drv, drv_src = float(drv_od), f"net class '{cls.name}' driver_on_die_ohm"
-        if np.isnan(drv):
+        drv = float(drv_in)
+        drv_src = "trace list" if drv_given else c.driver_src
+        if c.driver_on_die is not None and not drv_given:
+            drv, drv_src = float(c.driver_on_die), f"net class '{cls.name}' driver_on_die_ohm"
+        if math.isnan(drv):
             drv = rules.driver_ohm
             assumed.append(f"driver {drv:g} ohm")
-        cap = float(r["load_pf"])
-        cap_src = _source(bool(given["load_pf"][ix[0]]), cls, "load_pf", "load_pf")
-        if np.isnan(cap):
+        cap = float(cap_in)
+        cap_src = "trace list" if cap_given else c.load_src
+        if math.isnan(cap):
             cap = rules.load_pf
             assumed.append(f"load {cap:g} pF")
         topo = topology.get(net)
-        # the segment whose impedance the driver sees (review._topology: not a short neck-down)
-        de_local = int(np.argmax(driver_end[ix])) if driver_end is not None else 0
+        # the segment whose impedance the driver sees (review._topology: not a short neck-down): de_local
         tree, rx_used = (None, None, de_local), [{"receiver": "far end", "load_pf": cap, "source": cap_src}]
         if topo is not None:       # a tree: each receiver its own load, the driver end on the main path
             rx_used, rx = [], []
@@ -249,71 +377,55 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                 [f"load {rules.load_pf:g} pF"] if any(u["source"].startswith(RULES_SRC) for u in rx_used) else [])
             tree = (list(topo.parent), rx, de_local)
             cap, cap_src = rx_used[0]["load_pf"], rx_used[0]["source"]
-        swing = cls.swing if cls and cls.swing else None
-        swing_src = f"net class '{cls.name}'" if swing is not None else f"{RULES_SRC} swing"
-        if swing is None:
-            swing = rules.swing
-        rise = float(r["rise_time"])
-        rise_rows = arr["rise_time"][ix] == rise
-        rise_src = "trace list" if np.any(given["rise_time"][ix] & rise_rows) else f"net class '{r['net_class']}'"
-
-        def pick(attr, default):
-            v = getattr(cls, attr, None) if cls else None
-            return (v, f"net class '{cls.name}'") if v is not None else (default, f"{RULES_SRC} {attr}")
-
-        over, over_src = pick("max_overshoot_pct", rules.max_overshoot_pct)
-        ring, ring_src = pick("max_ringback_pct", rules.max_ringback_pct)
-        settle = cls.max_settle_ns if cls else None
-        limits = Limits(max_overshoot_pct=over, max_ringback_pct=ring, max_settle_ns=settle,
-                        settle_rise_times=rules.settle_rise_times)
-        has_loss = any(lo is not None for lo in losses)
-        zd = float(r["z_driver_end"]) if pair else None
-        leg_swing = swing / (2.0 if pair else 1.0)
-        loss_db = float(db_all[ix].sum())
+            delay_ps = float(td[list(topo.path)].sum() * 1e12)
+        rise = float(rise_in)
+        ramp = ramps.get(rise)
+        if ramp is None:
+            ramp = ramps[rise] = (f"linear ramp 0-100 % in {rise / 0.8 * 1e12:.4g} ps (Tr/0.8) behind the driver "
+                                  "resistance")
+        zd = float(zde) if pair else None
         used = {
             "engine": ("frequency domain: the chain of lines solved with exact delays (a model of the net: an estimate)"
                        if tree is None else "frequency domain: the tree of lines (each branch a shunt input admittance "
                        "at its node) solved with exact delays (a model of the net: an estimate)"),
-            "source": f"linear ramp 0-100 % in {rise / 0.8 * 1e12:.4g} ps (Tr/0.8) behind the driver resistance",
+            "source": ramp,
             "mode": "odd mode of the pair: one leg, half the swing, Zodd per segment" if pair else "single-ended",
-            "segments": int(len(ix)),
-            "delay_ps": {"value": float((td.sum() if topo is None else td[list(topo.path)].sum()) * 1e12),
+            "segments": n_seg,
+            "delay_ps": {"value": delay_ps,
                          "source": "segments (field solver or closed form)" + ("" if topo is None else
                                                                                ", along the main path")},
             "driver_ohm": {"value": drv, "source": drv_src},
             "load_pf": {"value": cap, "source": cap_src},
             "receivers": rx_used,
-            "swing_v": {"value": swing, "source": swing_src},
-            "rise_time_ps": {"value": rise * 1e12, "source": rise_src + " (fastest edge on the net's rows)"},
-            "max_overshoot_pct": {"value": over, "source": over_src},
-            "max_ringback_pct": {"value": ring, "source": ring_src},
-            "max_settle_ns": ({"value": settle, "source": f"net class '{cls.name}'"} if settle is not None else
-                              {"value": None, "source": f"flight + ramp + {rules.settle_rise_times:g} x Tr "
-                                                        f"({RULES_SRC} settle_rise_times)"}),
-            "loss": {"included": has_loss, "freq_ghz": float(arr["freq"][ix][0] * 1e-9), "insertion_loss_db": loss_db,
-                     "conductor_db": float(db_c[ix].sum()),
-                     "dielectric_db": float(db_d[ix].sum()),
+            "swing_v": {"value": c.swing, "source": c.swing_src},
+            "rise_time_ps": {"value": rise * 1e12, "source": ("trace list" if rise_given else c.rise_src)
+                             + " (fastest edge on the net's rows)"},
+            "max_overshoot_pct": {"value": c.limits.max_overshoot_pct, "source": c.overshoot_src},
+            "max_ringback_pct": {"value": c.limits.max_ringback_pct, "source": c.ringback_src},
+            "max_settle_ns": {"value": c.limits.max_settle_ns, "source": c.settle_src},
+            "loss": {"included": has_loss, "freq_ghz": f0_ghz, "insertion_loss_db": loss_db,
+                     "conductor_db": cond_db,
+                     "dielectric_db": diel_db,
                      "dc_resistance_ohm": float(sum(lo.r_dc for lo in losses if lo is not None)),
                      "source": "segment loss columns at the net's frequency: conductor as a causal skin-effect "
                                "impedance from the DC resistance (copper resistivity over the trace section), "
                                "dielectric as a Djordjevic-Sarkar wideband loss tangent"},
         }
-        if od is not None:
-            used["on_die"] = {"ohm": od.ohm, "to_v": None if pair else od.volts, "simulated_ohm": od.sim_ohm,
-                              "source": od.source + (" (odd mode: half the differential value from each leg to the "
-                                                     "centre)" if pair else "")}
+        if c.on_die is not None:
+            used["on_die"] = dict(c.on_die)
         if topo is not None:
             used["topology"] = {"driver": topo.driver, "driver_source": topo.driver_source,
                                 "open_ends": list(topo.open_ends),
                                 "stubs": [{"node": b.node, "end": b.end, "length_mm": b.length * 1e3} for b in topo.stubs]}
-        parts = series_parts_of(ix, part_ohm, part_farad)
+        parts = series_parts_of(ix, part_ohm, part_farad) if has_parts else {}
         if parts:
             used["series_parts"] = [{"after_row": int(seg["row"].iat[ix[k]]), "ohm": p.ohm,
                                      "farad": p.farad} for k, p in parts.items()]
-        od_sim = None if od is None else (od.sim_ohm, od.sim_volts, od.text)
-        jobs.append((i, (z, td, rise, drv, leg_swing, cap * 1e-12, limits, zd, losses, tree, od_sim, parts or None)))
-        pending[i] = (net, used, has_loss, loss_db, float(arr["freq"][ix][0]), assumed)
+        jobs.append((i, (z, td, rise, drv, c.leg_swing, cap * 1e-12, c.limits, zd, losses, tree, c.on_die_sim,
+                         parts or None)))
+        pending[i] = (net, used, has_loss, loss_db, f0, assumed)
 
+    done, metric_rows = [], []       # the nets simulated and their metrics (before then after, as in cols)
     for i, result in run_jobs(jobs):
         net, used, has_loss, loss_db, f0, assumed = pending[i]
         inputs[i] = used
@@ -321,9 +433,9 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
             notes[i] = f"not simulated: {result}"
             continue
         before, after = result
-        for k in METRIC_KEYS:
-            cols[f"before_{k}"][i] = before.metrics[k]
-            cols[f"after_{k}"][i] = after.metrics[k]
+        done.append(i)
+        metric_rows.append(tuple(map(before.metrics.__getitem__, METRIC_KEYS))
+                           + tuple(map(after.metrics.__getitem__, METRIC_KEYS)))
         scheme[i] = after.scheme
         part[i] = ("no part: meets the limits as it is" if after.scheme == "none" else
                    f"no external part: {after.text}" + ("" if after.meets else ", limits not met")
@@ -348,11 +460,15 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                          "tried on top of it (no second parallel termination)")
         if before.wave is not None:
             waves[net] = (before.wave, after.wave, before.metrics["v_final"])
-    for i, j in partners:
-        for c in cols:
-            cols[c][i] = cols[c][j]
-        for a in copy_cols:
-            a[i] = a[j]
+    if done:
+        for c, values in zip(cols.values(), np.array(metric_rows, dtype=float).T):
+            c[done] = values
+    if partners:
+        legs, firsts = (np.array(x, dtype=np.intp) for x in zip(*partners))
+        for c in cols.values():
+            c[legs] = c[firsts]
+        for a in copy_cols:          # object columns: the same objects, as one leg's result is the pair's
+            a[legs] = a[firsts]
     out = nets.copy()
     for c, v in cols.items():
         out[c] = v

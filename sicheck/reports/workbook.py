@@ -103,6 +103,11 @@ class Book:
         bodies = {f"xl/worksheets/sheet{sh.ws.index + 1}.xml": sh.body() for sh in self._tables if sh.buffered}
         if bodies:
             splice_rows(self.path, bodies)
+        # the book and its table sheets refer to each other: let the buffered rows (a large board's
+        # millions of objects) go now, by reference count, not in a later pass of the garbage collector
+        for sh in self._tables:
+            sh._buf = []
+        self._tables = []
 
 
 LINE_PT = 15.0                        # height of one line of 11 pt text
