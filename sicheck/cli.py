@@ -265,14 +265,19 @@ def main(argv: list[str] | None = None) -> None:
     if args == ["--version"]:
         print(f"sicheck {__version__}")
         return
+    from sicheck import quick_exit
     from sicheck.errors import InputError
+    if argv is None:            # the program itself, not a caller in its own process (tests, scripts)
+        quick_exit.allow()
     try:
         app(args=args, prog_name="sicheck", standalone_mode=True)
     except InputError as e:
         from rich.markup import escape
         _err_console().print(f"[bold red]error:[/] {escape(str(e))}", soft_wrap=True)
         sys.exit(2)
-    except SystemExit:
+    except SystemExit as e:
+        if argv is None:
+            quick_exit.end_now(e.code)      # returns unless the command left a large review to drop
         raise
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)

@@ -63,7 +63,10 @@ def run_review(traces: Path, stackup: Path, rules: list[Path] | None, out: Path 
         write_text_atomic(markdown, review_markdown(rv))
         if not quiet:
             console.print(f"markdown: {markdown}")
-    return rv.exit_code
+    code = rv.exit_code
+    from sicheck.quick_exit import keep
+    keep(rv, tl)            # the program ends next: not freed one object at a time first (sicheck/quick_exit.py)
+    return code
 
 
 @contextmanager
