@@ -19,6 +19,7 @@ from __future__ import annotations
 import math
 import os
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 import pandas as pd
@@ -200,13 +201,43 @@ def _choose_args(args) -> tuple[tuple, dict]:
                                                         parts=parts)
 
 
+class Outcome(NamedTuple):
+    """What the review keeps of a net's simulation (unterminated `before`, chosen termination `after`),
+    worked out where the net was simulated: a worker sends back these few values, not the candidates."""
+
+    metrics: tuple                 # METRIC_KEYS before, then after
+    scheme: str
+    part: str                      # the termination part as the nets table says it
+    power_w: float
+    meets: bool
+    violations: str
+    meets_before: bool
+    worst: int                     # the worst receiver's index (terminated)
+    receivers: list                # per receiver: (metrics before, metrics after, meets after)
+    wave: tuple | None             # (before, after, v_final) for a net that may be charted
+
+
+def outcome(before, after) -> Outcome:
+    return Outcome(
+        metrics=tuple(map(before.metrics.__getitem__, METRIC_KEYS)) + tuple(map(after.metrics.__getitem__,
+                                                                              METRIC_KEYS)),
+        scheme=after.scheme,
+        part=("no part: meets the limits as it is" if after.scheme == "none" else
+              f"no external part: {after.text}" + ("" if after.meets else ", limits not met")
+              if after.scheme == "on-die" else after.text),
+        power_w=after.power_w, meets=after.meets, violations="; ".join(after.violations), meets_before=before.meets,
+        worst=after.worst,
+        receivers=[(b["metrics"], a["metrics"], a["meets"]) for b, a in zip(before.receivers, after.receivers)],
+        wave=None if before.wave is None else (before.wave, after.wave, before.metrics["v_final"]))
+
+
 def _choose_chunk(jobs):
-    """[(index, (before, after) candidates or the reason the net cannot be simulated)], the nets' stages
-    simulated together (physics/chain_batch.py)."""
+    """[(index, Outcome or the reason the net cannot be simulated)], the nets' stages simulated together
+    (physics/chain_batch.py)."""
     results = choose_many([_choose_args(a) for _, a in jobs])
     out = [(i, str(r) if isinstance(r, ValueError) else (r[0], r[1])) for (i, _), r in zip(jobs, results)]
     _chart_waves_only(out)
-    return out
+    return [(i, r if isinstance(r, str) else outcome(*r)) for i, r in out]
 
 
 def _chart_waves_only(results) -> None:
@@ -432,34 +463,30 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         if isinstance(result, str):
             notes[i] = f"not simulated: {result}"
             continue
-        before, after = result
         done.append(i)
-        metric_rows.append(tuple(map(before.metrics.__getitem__, METRIC_KEYS))
-                           + tuple(map(after.metrics.__getitem__, METRIC_KEYS)))
-        scheme[i] = after.scheme
-        part[i] = ("no part: meets the limits as it is" if after.scheme == "none" else
-                   f"no external part: {after.text}" + ("" if after.meets else ", limits not met")
-                   if after.scheme == "on-die" else after.text)
-        power[i] = after.power_w
-        meets[i] = after.meets
-        violations[i] = "; ".join(after.violations)
+        metric_rows.append(result.metrics)
+        scheme[i] = result.scheme
+        part[i] = result.part
+        power[i] = result.power_w
+        meets[i] = result.meets
+        violations[i] = result.violations
         lossy[i] = has_loss
         loss_note = (f"simulated with loss ({loss_db:.2f} dB at {f0 * 1e-9:.3g} GHz)" if has_loss
                      else "simulated lossless (no loss data)")
         notes[i] = loss_note + ("; assumed " + ", ".join(assumed) + f" ({RULES_SRC})" if assumed else "")
         rx_used = used["receivers"]
-        rx_out[i] = [{"receiver": u["receiver"], "load_pf": u["load_pf"], "before": b["metrics"], "after": a["metrics"],
-                      "meets": a["meets"]} for u, b, a in zip(rx_used, before.receivers, after.receivers)]
+        rx_out[i] = [{"receiver": u["receiver"], "load_pf": u["load_pf"], "before": b, "after": a, "meets": m}
+                     for u, (b, a, m) in zip(rx_used, result.receivers)]
         if len(rx_used) > 1:
-            notes[i] += (f"; multi-drop, {len(rx_used)} receivers, worst '{rx_used[after.worst]['receiver']}'"
-                         + ("" if after.meets else "; no scheme that fits a multi-drop net (series at the driver; "
+            notes[i] += (f"; multi-drop, {len(rx_used)} receivers, worst '{rx_used[result.worst]['receiver']}'"
+                         + ("" if result.meets else "; no scheme that fits a multi-drop net (series at the driver; "
                             f"parallel, Thevenin or RC at the far end of the main path, '{rx_used[0]['receiver']}') "
                             "meets the limits at every receiver"))
-        if "on_die" in used and not before.meets:
+        if "on_die" in used and not result.meets_before:
             notes[i] += ("; terminated on the die, limits not met with it: only a series part at the driver was "
                          "tried on top of it (no second parallel termination)")
-        if before.wave is not None:
-            waves[net] = (before.wave, after.wave, before.metrics["v_final"])
+        if result.wave is not None:
+            waves[net] = result.wave
     if done:
         for c, values in zip(cols.values(), np.array(metric_rows, dtype=float).T):
             c[done] = values
@@ -481,7 +508,8 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
     out["waveform_loss"] = lossy
     out["waveform_inputs"] = inputs
     out["receivers"] = rx_out
-    worst = out.loc[order].sort_values("before_overshoot_pct", ascending=False)
+    # the order depends on the sorted column alone: the other columns are not copied along
+    worst = out.loc[order, ["net", "pair", "before_overshoot_pct"]].sort_values("before_overshoot_pct", ascending=False)
     keep, seen = [], set()
     for net, pair in zip(worst["net"], worst["pair"]):
         key = frozenset((net, pair)) if pair else net
