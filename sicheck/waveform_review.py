@@ -19,7 +19,8 @@ from __future__ import annotations
 import math
 import os
 from dataclasses import dataclass
-from typing import NamedTuple
+from itertools import islice
+from typing import Iterable, Iterator, NamedTuple
 
 import numpy as np
 import pandas as pd
@@ -259,26 +260,35 @@ def workers() -> int:
     return int(env) if env.isdigit() and int(env) > 0 else min(os.cpu_count() or 1, 4)
 
 
-def run_jobs(jobs: list) -> list:
-    """[(index, result)] for each job; the nets are independent, so large boards use a process pool."""
+def run_jobs(jobs: Iterable, count: int) -> Iterator[tuple]:
+    """(index, result) for each of the `count` jobs, in their order; the nets are independent, so large boards
+    use a process pool. Each chunk of jobs goes to the pool as soon as it is made (jobs may come from a
+    generator that prepares them), so the workers start while the later jobs are still being prepared; and
+    the results are handed on as the chunks finish, so they are sorted out while the last ones run."""
     n = workers()
-    if len(jobs) < POOL_MIN_NETS or n < 2:
-        return _choose_chunk(jobs)
+    if count < POOL_MIN_NETS or n < 2:
+        yield from _choose_chunk(list(jobs))
+        return
     import gc
     from concurrent.futures import ProcessPoolExecutor
-    size = max(CHUNK_MIN, len(jobs) // (8 * n))
-    chunks = [jobs[k:k + size] for k in range(0, len(jobs), size)]
-    out: list = []
-    # the review's tables are a large heap of long-lived objects: frozen, the workers' (forked) garbage
-    # collector no longer walks them each time the results pile up
-    gc.freeze()
+    size = max(CHUNK_MIN, count // (8 * n))
+    it = iter(jobs)
+    futures: list = []
     try:
         with ProcessPoolExecutor(max_workers=n) as pool:
-            for part in pool.map(_choose_chunk, chunks):
-                out.extend(part)
+            while chunk := list(islice(it, size)):
+                # the review's tables and the jobs so far are a large heap of long-lived objects: frozen, the
+                # workers' (forked) garbage collector no longer walks them each time the results pile up
+                gc.freeze()
+                futures.append(pool.submit(_choose_chunk, chunk))
+            for f in futures:
+                yield from f.result()
+    except BaseException:
+        for f in futures:          # the waveform stage stops here: what has not started need not run
+            f.cancel()
+        raise
     finally:
         gc.unfreeze()
-    return out
 
 
 def series_parts_of(ix, part_ohm, part_farad) -> dict:
@@ -369,95 +379,100 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
         (arr["freq"][ch.first] * 1e-9).tolist())
     per_class: dict[tuple[str, bool], _ClassInputs] = {}
     ramps: dict[float, str] = {}
-    jobs: list = []
     pending: dict = {}
-    for (i, net, pair, net_class, drv_in, cap_in, rise_in, zde), (
-            z, td, losses, n_seg, delay_ps, loss_db, cond_db, diel_db, has_loss, drv_given, cap_given, rise_given,
-            de_local, has_parts, f0, f0_ghz) in zip(sim, per_net):
-        ix = pos[net]
-        c = per_class.get((net_class, bool(pair)))
-        if c is None:
-            c = per_class[net_class, bool(pair)] = _class_inputs(rules, classes.get(net_class), net_class, bool(pair))
-        cls = c.cls
-        assumed = []
-        drv = float(drv_in)
-        drv_src = "trace list" if drv_given else c.driver_src
-        if c.driver_on_die is not None and not drv_given:
-            drv, drv_src = float(c.driver_on_die), f"net class '{cls.name}' driver_on_die_ohm"
-        if math.isnan(drv):
-            drv = rules.driver_ohm
-            assumed.append(f"driver {drv:g} ohm")
-        cap = float(cap_in)
-        cap_src = "trace list" if cap_given else c.load_src
-        if math.isnan(cap):
-            cap = rules.load_pf
-            assumed.append(f"load {cap:g} pF")
-        topo = topology.get(net)
-        # the segment whose impedance the driver sees (review._topology: not a short neck-down): de_local
-        tree, rx_used = (None, None, de_local), [{"receiver": "far end", "load_pf": cap, "source": cap_src}]
-        if topo is not None:       # a tree: each receiver its own load, the driver end on the main path
-            rx_used, rx = [], []
-            for name, k in zip(topo.receivers, topo.receiver_segment):
-                c_k = float(arr["load_pf"][ix[k]])
-                src_k = _source(bool(given["load_pf"][ix[k]]), cls, "load_pf", "load_pf")
-                if np.isnan(c_k):
-                    c_k = rules.load_pf
-                rx.append((int(k), c_k * 1e-12, name))
-                rx_used.append({"receiver": name, "load_pf": c_k, "source": src_k})
-            assumed = [a for a in assumed if not a.startswith("load ")] + (
-                [f"load {rules.load_pf:g} pF"] if any(u["source"].startswith(RULES_SRC) for u in rx_used) else [])
-            tree = (list(topo.parent), rx, de_local)
-            cap, cap_src = rx_used[0]["load_pf"], rx_used[0]["source"]
-            delay_ps = float(td[list(topo.path)].sum() * 1e12)
-        rise = float(rise_in)
-        ramp = ramps.get(rise)
-        if ramp is None:
-            ramp = ramps[rise] = (f"linear ramp 0-100 % in {rise / 0.8 * 1e12:.4g} ps (Tr/0.8) behind the driver "
-                                  "resistance")
-        zd = float(zde) if pair else None
-        used = {
-            "engine": ("frequency domain: the chain of lines solved with exact delays (a model of the net: an estimate)"
-                       if tree is None else "frequency domain: the tree of lines (each branch a shunt input admittance "
-                       "at its node) solved with exact delays (a model of the net: an estimate)"),
-            "source": ramp,
-            "mode": "odd mode of the pair: one leg, half the swing, Zodd per segment" if pair else "single-ended",
-            "segments": n_seg,
-            "delay_ps": {"value": delay_ps,
-                         "source": "segments (field solver or closed form)" + ("" if topo is None else
-                                                                               ", along the main path")},
-            "driver_ohm": {"value": drv, "source": drv_src},
-            "load_pf": {"value": cap, "source": cap_src},
-            "receivers": rx_used,
-            "swing_v": {"value": c.swing, "source": c.swing_src},
-            "rise_time_ps": {"value": rise * 1e12, "source": ("trace list" if rise_given else c.rise_src)
-                             + " (fastest edge on the net's rows)"},
-            "max_overshoot_pct": {"value": c.limits.max_overshoot_pct, "source": c.overshoot_src},
-            "max_ringback_pct": {"value": c.limits.max_ringback_pct, "source": c.ringback_src},
-            "max_settle_ns": {"value": c.limits.max_settle_ns, "source": c.settle_src},
-            "loss": {"included": has_loss, "freq_ghz": f0_ghz, "insertion_loss_db": loss_db,
-                     "conductor_db": cond_db,
-                     "dielectric_db": diel_db,
-                     "dc_resistance_ohm": float(sum(lo.r_dc for lo in losses if lo is not None)),
-                     "source": "segment loss columns at the net's frequency: conductor as a causal skin-effect "
-                               "impedance from the DC resistance (copper resistivity over the trace section), "
-                               "dielectric as a Djordjevic-Sarkar wideband loss tangent"},
-        }
-        if c.on_die is not None:
-            used["on_die"] = dict(c.on_die)
-        if topo is not None:
-            used["topology"] = {"driver": topo.driver, "driver_source": topo.driver_source,
-                                "open_ends": list(topo.open_ends),
-                                "stubs": [{"node": b.node, "end": b.end, "length_mm": b.length * 1e3} for b in topo.stubs]}
-        parts = series_parts_of(ix, part_ohm, part_farad) if has_parts else {}
-        if parts:
-            used["series_parts"] = [{"after_row": int(seg["row"].iat[ix[k]]), "ohm": p.ohm,
-                                     "farad": p.farad} for k, p in parts.items()]
-        jobs.append((i, (z, td, rise, drv, c.leg_swing, cap * 1e-12, c.limits, zd, losses, tree, c.on_die_sim,
-                         parts or None)))
-        pending[i] = (net, used, has_loss, loss_db, f0, assumed)
+
+    def prepared():
+        """Each net's job, made as the pool takes them: the first chunks are simulated meanwhile."""
+        for (i, net, pair, net_class, drv_in, cap_in, rise_in, zde), (
+                z, td, losses, n_seg, delay_ps, loss_db, cond_db, diel_db, has_loss, drv_given, cap_given, rise_given,
+                de_local, has_parts, f0, f0_ghz) in zip(sim, per_net):
+            ix = pos[net]
+            c = per_class.get((net_class, bool(pair)))
+            if c is None:
+                c = per_class[net_class, bool(pair)] = _class_inputs(rules, classes.get(net_class), net_class,
+                                                                     bool(pair))
+            cls = c.cls
+            assumed = []
+            drv = float(drv_in)
+            drv_src = "trace list" if drv_given else c.driver_src
+            if c.driver_on_die is not None and not drv_given:
+                drv, drv_src = float(c.driver_on_die), f"net class '{cls.name}' driver_on_die_ohm"
+            if math.isnan(drv):
+                drv = rules.driver_ohm
+                assumed.append(f"driver {drv:g} ohm")
+            cap = float(cap_in)
+            cap_src = "trace list" if cap_given else c.load_src
+            if math.isnan(cap):
+                cap = rules.load_pf
+                assumed.append(f"load {cap:g} pF")
+            topo = topology.get(net)
+            # the segment whose impedance the driver sees (review._topology: not a short neck-down): de_local
+            tree, rx_used = (None, None, de_local), [{"receiver": "far end", "load_pf": cap, "source": cap_src}]
+            if topo is not None:       # a tree: each receiver its own load, the driver end on the main path
+                rx_used, rx = [], []
+                for name, k in zip(topo.receivers, topo.receiver_segment):
+                    c_k = float(arr["load_pf"][ix[k]])
+                    src_k = _source(bool(given["load_pf"][ix[k]]), cls, "load_pf", "load_pf")
+                    if np.isnan(c_k):
+                        c_k = rules.load_pf
+                    rx.append((int(k), c_k * 1e-12, name))
+                    rx_used.append({"receiver": name, "load_pf": c_k, "source": src_k})
+                assumed = [a for a in assumed if not a.startswith("load ")] + (
+                    [f"load {rules.load_pf:g} pF"] if any(u["source"].startswith(RULES_SRC) for u in rx_used) else [])
+                tree = (list(topo.parent), rx, de_local)
+                cap, cap_src = rx_used[0]["load_pf"], rx_used[0]["source"]
+                delay_ps = float(td[list(topo.path)].sum() * 1e12)
+            rise = float(rise_in)
+            ramp = ramps.get(rise)
+            if ramp is None:
+                ramp = ramps[rise] = (f"linear ramp 0-100 % in {rise / 0.8 * 1e12:.4g} ps (Tr/0.8) behind the driver "
+                                      "resistance")
+            zd = float(zde) if pair else None
+            used = {
+                "engine": ("frequency domain: the chain of lines solved with exact delays (a model of the net: "
+                           "an estimate)" if tree is None else "frequency domain: the tree of lines (each branch a "
+                           "shunt input admittance at its node) solved with exact delays (a model of the net: an "
+                           "estimate)"),
+                "source": ramp,
+                "mode": "odd mode of the pair: one leg, half the swing, Zodd per segment" if pair else "single-ended",
+                "segments": n_seg,
+                "delay_ps": {"value": delay_ps,
+                             "source": "segments (field solver or closed form)" + ("" if topo is None else
+                                                                                   ", along the main path")},
+                "driver_ohm": {"value": drv, "source": drv_src},
+                "load_pf": {"value": cap, "source": cap_src},
+                "receivers": rx_used,
+                "swing_v": {"value": c.swing, "source": c.swing_src},
+                "rise_time_ps": {"value": rise * 1e12, "source": ("trace list" if rise_given else c.rise_src)
+                                 + " (fastest edge on the net's rows)"},
+                "max_overshoot_pct": {"value": c.limits.max_overshoot_pct, "source": c.overshoot_src},
+                "max_ringback_pct": {"value": c.limits.max_ringback_pct, "source": c.ringback_src},
+                "max_settle_ns": {"value": c.limits.max_settle_ns, "source": c.settle_src},
+                "loss": {"included": has_loss, "freq_ghz": f0_ghz, "insertion_loss_db": loss_db,
+                         "conductor_db": cond_db,
+                         "dielectric_db": diel_db,
+                         "dc_resistance_ohm": float(sum(lo.r_dc for lo in losses if lo is not None)),
+                         "source": "segment loss columns at the net's frequency: conductor as a causal skin-effect "
+                                   "impedance from the DC resistance (copper resistivity over the trace section), "
+                                   "dielectric as a Djordjevic-Sarkar wideband loss tangent"},
+            }
+            if c.on_die is not None:
+                used["on_die"] = dict(c.on_die)
+            if topo is not None:
+                used["topology"] = {"driver": topo.driver, "driver_source": topo.driver_source,
+                                    "open_ends": list(topo.open_ends),
+                                    "stubs": [{"node": b.node, "end": b.end, "length_mm": b.length * 1e3}
+                                              for b in topo.stubs]}
+            parts = series_parts_of(ix, part_ohm, part_farad) if has_parts else {}
+            if parts:
+                used["series_parts"] = [{"after_row": int(seg["row"].iat[ix[k]]), "ohm": p.ohm,
+                                         "farad": p.farad} for k, p in parts.items()]
+            pending[i] = (net, used, has_loss, loss_db, f0, assumed)     # before its job is handed out
+            yield (i, (z, td, rise, drv, c.leg_swing, cap * 1e-12, c.limits, zd, losses, tree, c.on_die_sim,
+                       parts or None))
 
     done, metric_rows = [], []       # the nets simulated and their metrics (before then after, as in cols)
-    for i, result in run_jobs(jobs):
+    for i, result in run_jobs(prepared(), len(sim)):
         net, used, has_loss, loss_db, f0, assumed = pending[i]
         inputs[i] = used
         if isinstance(result, str):

@@ -4,6 +4,7 @@ SegmentLosses.of) give, to the last bit, what the same operations give net by ne
 import math
 
 import numpy as np
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as hst
 
@@ -102,3 +103,47 @@ def test_segment_losses_match_the_formula_segment_by_segment():
                                  tan_delta=min(ad * float(ln[j]) / (math.pi * float(f[j]) * float(td[j])), 0.5),
                                  r_dc=r_dc))
                 assert got[k] == want
+
+
+def _job(i, z=50.0):
+    from sicheck.physics.termination_choice import Limits
+    return (i, (np.array([z]), np.array([1e-9]), 0.5e-9, 15.0, 3.3, 2e-12, Limits(), None, [None], None, None, None))
+
+
+def test_pool_takes_jobs_as_they_are_made(monkeypatch):
+    # the first chunk is simulated while later jobs are still being prepared; results come in the jobs' order,
+    # the same as without the pool
+    import multiprocessing
+
+    from sicheck import waveform_review as wr
+    monkeypatch.setenv("SICHECK_WORKERS", "2")
+    monkeypatch.setattr(wr, "POOL_MIN_NETS", 2)
+    monkeypatch.setattr(wr, "CHUNK_MIN", 2)
+    workers_seen = []
+
+    def jobs():
+        for i in range(8):
+            if i == 4:                      # two chunks (of 2) handed out by now
+                workers_seen.append(len(multiprocessing.active_children()))
+            yield _job(i, 30.0 + 10 * i)
+
+    pooled = list(wr.run_jobs(jobs(), 8))
+    assert workers_seen[0] >= 1
+    serial = wr._choose_chunk([_job(i, 30.0 + 10 * i) for i in range(8)])
+    assert [i for i, _ in pooled] == list(range(8))
+    assert [r.metrics for _, r in pooled] == [r.metrics for _, r in serial]
+    assert [r.part for _, r in pooled] == [r.part for _, r in serial]
+
+
+def test_pool_error_reaches_the_caller(monkeypatch):
+    import multiprocessing
+
+    from sicheck import waveform_review as wr
+    monkeypatch.setenv("SICHECK_WORKERS", "2")
+    monkeypatch.setattr(wr, "POOL_MIN_NETS", 2)
+    monkeypatch.setattr(wr, "CHUNK_MIN", 2)
+    jobs = [_job(i) for i in range(6)]
+    jobs[3] = (3, (None,) + jobs[3][1][1:])          # not a number: a bug, not a net that cannot be simulated
+    with pytest.raises(TypeError):
+        list(wr.run_jobs(iter(jobs), len(jobs)))
+    assert not multiprocessing.active_children()
