@@ -8,6 +8,7 @@ solves a network of lines with them is sicheck/physics/line_network.py.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Sequence
 
@@ -43,12 +44,10 @@ class LoadSet:
 
     @classmethod
     def of(cls, loads: Sequence[Load]) -> "LoadSet":
-        def arr(fn):
-            return np.array([fn(x) for x in loads], dtype=float)
-        return cls(cap=arr(lambda x: x.cap),
-                   end_ohm=arr(lambda x: np.nan if x.end_ohm is None else x.end_ohm),
-                   end_volts=arr(lambda x: x.end_volts),
-                   end_cap=arr(lambda x: np.nan if x.end_cap is None else x.end_cap))
+        nan = math.nan
+        rows = np.array([(x.cap, nan if x.end_ohm is None else x.end_ohm, x.end_volts,
+                          nan if x.end_cap is None else x.end_cap) for x in loads], dtype=float).reshape(-1, 4)
+        return cls(*(rows[:, j].copy() for j in range(4)))
 
     def __len__(self) -> int:
         return len(self.cap)
