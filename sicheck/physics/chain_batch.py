@@ -116,9 +116,13 @@ def _prepare(sim: Simulation, lines: list[Line]) -> dict:
         ls = ls.take(np.zeros(m, dtype=int))
     ramp = sim.rise * RAMP_PER_RISE
     dt = ramp / SAMPLES_PER_RAMP
-    ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), (m,)) if sim.t_end is not None
-            else settle_window(sim.net, rs, sim.loads, ramp))
-    records = [record_ladder(record_size(te, dt)) for te in ends]
+    if sim.t_end is not None and np.ndim(sim.t_end) == 0:     # one window for all: one record size
+        ends = np.full(m, float(sim.t_end))
+        records = [record_ladder(record_size(float(sim.t_end), dt))] * m
+    else:
+        ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), (m,)) if sim.t_end is not None
+                else settle_window(sim.net, rs, sim.loads, ramp))
+        records = [record_ladder(record_size(te, dt)) for te in ends]
     # DC: the driver, the lines' DC resistance in series, the load's conductance to its voltage
     r_line = sum(x.loss.r_dc for x in lines if isinstance(x.loss, LineLoss))
     g_src = 1.0 / (rs + r_line)

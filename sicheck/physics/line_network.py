@@ -49,7 +49,7 @@ from sicheck.physics.causal_line import (ConstantRG, Line, LineLoss, dc_resistan
 from sicheck.physics.transient import (RAMP_PER_RISE, SETTLE_BAND, Load, LoadSet, Waveform, metrics_batch,
                                        ramp_voltage)
 
-SAMPLES_PER_RAMP = 32
+SAMPLES_PER_RAMP = 24
 RECORD_FACTOR = 1.25           # record length / window kept
 WRAP_DAMPING = 1e-3            # e^(-sigma T): what wraps around from one record length later is damped by this
 MAX_SAMPLES = 3 << 20          # about three million samples: one simulation stays within about 350 MB
