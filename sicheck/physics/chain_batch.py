@@ -125,13 +125,18 @@ def _prepare(sim: Simulation, lines: list[Line]) -> dict:
         ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), (m,)) if sim.t_end is not None
                 else settle_window(sim.net, rs, sim.loads, ramp))
         records = [record_ladder(record_size(te, dt)) for te in ends]
-    # DC: the driver, the lines' DC resistance in series, the load's conductance to its voltage
+    # DC: the driver, the lines' DC resistance in series, the load's conductance to its voltage (on plain
+    # floats: a handful of candidates, and numpy's per-call cost on arrays this small is most of the time)
     r_line = sum(x.loss.r_dc for x in lines if isinstance(x.loss, LineLoss))
-    g_src = 1.0 / (rs + r_line)
-    g_load = ls.dc_conductance()
-    v_t = np.where(g_load > 0, ls.end_volts, 0.0)
-    v_low = g_load * v_t / (g_src + g_load)
-    v_high = (g_src * sim.swing + g_load * v_t) / (g_src + g_load)
+    v_low, v_high = [], []
+    for r, r_end, v_end, c_end in zip(rs.tolist(), ls.end_ohm.tolist(), ls.end_volts.tolist(), ls.end_cap.tolist()):
+        g_src = 1.0 / (r + r_line)
+        if not r_end > 0 and r_end == r_end:
+            raise ValueError("a termination resistance must be above zero")
+        g_load = 1.0 / r_end if r_end == r_end and c_end != c_end else 0.0      # a plain resistor (not an RC)
+        v_t = v_end if g_load > 0 else 0.0
+        v_low.append(g_load * v_t / (g_src + g_load))
+        v_high.append((g_src * sim.swing + g_load * v_t) / (g_src + g_load))
     return {"lines": lines, "end": end, "ramp": ramp, "dt": dt, "ends": ends, "records": records, "r_source": rs,
             "loads": ls, "v_low": v_low, "v_high": v_high, "front": sum(front_delay(x) for x in lines)}
 
