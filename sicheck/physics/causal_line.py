@@ -255,6 +255,7 @@ def smooth_per_delay_lines(lines, s, nodes: int):
     return k, m
 
 
+@functools.lru_cache(maxsize=1 << 16)     # asked for every section at every stage of every net
 def shape_key(line: Line):
     """Sections with equal keys have equal (K, M): same z0 and the same loss per unit delay."""
     lo = line.loss

@@ -28,7 +28,7 @@ from scipy import fft as sfft
 from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, shape_key, smooth_per_delay_lines
 from sicheck.physics.line_network import (BATCH_BINS, RECORD_FACTOR, SAMPLES_PER_RAMP, SHAPE_NODES, WRAP_DAMPING,
                                           Simulation, _extend_unsettled, record_ladder, record_size, settle_window)
-from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch
+from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, preview_index
 
 
 def plain_chain(sim: Simulation) -> list[Line] | None:
@@ -170,6 +170,8 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
     n_keep = int(math.floor(n_rec / RECORD_FACTOR)) + 1
     t = np.arange(n_keep) * dt
     growth = np.exp(sigma * t) / dt
+    idx = preview_index(n_keep)
+    t_shown = t[idx]
     shapes: dict = {}                  # shape_key -> (K, M) on this grid, for all the group's batches
     for batch in _batches(members, plan, k_bins):
         nets = list(dict.fromkeys(k for k, _ in batch))
@@ -213,8 +215,10 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
         v += v_low[:, None]
         v += h0[:, None] * (swing[:, None] * np.clip((t[None, :] - t0[:, None]) / ramp, 0.0, 1.0))[net_of]
         rows = metrics_batch(t, v, v_high, ramp)
+        shown = v[:, idx]                  # what a chart keeps, for the whole batch at once
         for j, (k, i) in enumerate(batch):
-            waves[k][i] = Waveform(t=t, v_rx=v[j], v_src=None, v_final=float(v_high[j]), ramp=ramp, metrics=rows[j])
+            waves[k][i] = Waveform(t=t, v_rx=v[j], v_src=None, v_final=float(v_high[j]), ramp=ramp, metrics=rows[j],
+                                   preview=(t_shown, shown[j]))
 
 
 def _delays(sigma: float, step: float, t0: np.ndarray, k_bins: int) -> np.ndarray:

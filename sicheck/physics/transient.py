@@ -8,6 +8,7 @@ solves a network of lines with them is sicheck/physics/line_network.py.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 from typing import Sequence
@@ -91,6 +92,16 @@ class Waveform:
     v_final: float
     ramp: float
     metrics: dict = field(default_factory=dict)
+    preview: tuple | None = None       # (t, v_rx) at PREVIEW_POINTS evenly spaced samples, when worked out in bulk
+
+
+PREVIEW_POINTS = 160                   # samples of a waveform kept for charts
+
+
+@functools.lru_cache(maxsize=256)
+def preview_index(length: int, n: int = PREVIEW_POINTS) -> np.ndarray:
+    """The samples a chart keeps of a record of ``length``: n evenly spaced, first and last included."""
+    return np.linspace(0, length - 1, min(n, length)).astype(int)
 
 
 def metrics_batch(t: np.ndarray, v: np.ndarray, v_final, ramp: float) -> list[dict]:
