@@ -423,6 +423,6 @@ def test_trapped_ringing_gets_a_longer_window():
     wf = simulate_chain(lines, 3.3, 5e-11, 5.0, Load(cap=0.0))
     assert wf.metrics["settled_in_window"]
     assert wf.v_rx[-1] == pytest.approx(3.3, abs=0.05 * 3.3)
-    # a window the caller gives is kept as given
+    # a window the caller gives is kept as given (up to the record ladder's rounding, at most 25 %)
     short = simulate_chain(lines, 3.3, 5e-11, 5.0, Load(cap=0.0), t_end=20e-9)
-    assert short.t[-1] < 22e-9 and not short.metrics["settled_in_window"]
+    assert 20e-9 <= short.t[-1] < 1.25 * 20e-9 and not short.metrics["settled_in_window"]

