@@ -142,7 +142,7 @@ def _prepare(sim: Simulation, lines: list[Line]) -> dict:
             "loads": ls, "v_low": v_low, "v_high": v_high, "front": sum(front_delay(x) for x in lines)}
 
 
-GROUP_BINS = 1 << 17     # complex bins per batch: 2 MB per array, so a batch's arrays stay in cache (7 % faster than 8 MB)
+GROUP_BINS = 1 << 17     # complex bins per batch: 2 MB arrays stay in cache (7 % faster than 8 MB ones)
 
 
 def _batches(members, plan, k_bins):
@@ -249,9 +249,9 @@ def _loaded_chains(chains: list[list[Line]], owner: np.ndarray, y: np.ndarray, s
     [(1 - E^2)/Zc, 1 + E^2]] (scaled by 2E, E = e^(-gl)): with a = P + Zc Q, b = E^2 (P - Zc Q) the next
     vector is (a + b, (a - b)/Zc), three products per section instead of eight.
 
-    Sections of one cross-section end to end are one uniform line (_uniform_runs): a trace list often splits a
-    trace at its corners. Nets are taken longest first and their sections position by position from the far end, so that every
-    step works on a leading slice. Returns (p, q, at, g, rank): p and q in that order (load u is row at[u]),
+    Sections of one cross-section end to end are one uniform line (_uniform_runs): a trace list often splits
+    a trace at its corners. Nets are taken longest first and their sections position by position from the far
+    end, so that every step works on a leading slice. Returns (p, q, at, g, rank): p and q in that order (load u is row at[u]),
     g's row for net j is rank[j]. shapes: K and M per shape key on s, filled in as needed.
     """
     chains = [_uniform_runs(c) for c in chains]
