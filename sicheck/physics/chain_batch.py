@@ -251,8 +251,8 @@ def _loaded_chains(chains: list[list[Line]], owner: np.ndarray, y: np.ndarray, s
 
     Sections of one cross-section end to end are one uniform line (_uniform_runs): a trace list often splits
     a trace at its corners. Nets are taken longest first and their sections position by position from the far
-    end, so that every step works on a leading slice. Returns (p, q, at, g, rank): p and q in that order (load u is row at[u]),
-    g's row for net j is rank[j]. shapes: K and M per shape key on s, filled in as needed.
+    end, so that every step works on a leading slice. Returns (p, q, at, g, rank): p and q in that order (load
+    u is row at[u]), g's row for net j is rank[j]. shapes: K and M per shape key on s, filled in as needed.
     """
     chains = [_uniform_runs(c) for c in chains]
     order = sorted(range(len(chains)), key=lambda j: -len(chains[j]))
