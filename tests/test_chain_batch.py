@@ -50,6 +50,23 @@ losses_st = hst.one_of(
                hst.sampled_from([0.0, 0.005, 0.02]), hst.sampled_from([0.0, 0.2, 1.0, 5.0])))
 
 
+def _split(z, td, lo, parts):
+    """One uniform line as ``parts`` sections end to end (the loss scaled with each piece's share)."""
+    share = np.linspace(1.0, 2.0, parts) / np.linspace(1.0, 2.0, parts).sum()
+    return [Line(z, td * f, None if lo is None else LineLoss(f_ref=lo.f_ref, r_ac=lo.r_ac * f, tan_delta=lo.tan_delta,
+                                                               r_dc=lo.r_dc * f)) for f in share]
+
+
+@pytest.mark.parametrize("lo", [None, LineLoss(f_ref=1e9, r_ac=3.0, tan_delta=0.02, r_dc=0.4)])
+def test_sections_of_one_cross_section_end_to_end_are_one_line(lo):
+    # the batched engine joins them into one uniform line; simulate_network keeps every section
+    lines = _split(45.0, 0.6e-9, lo, 3) + _split(70.0, 0.25e-9, lo, 2) + [Line(45.0, 0.2e-9, lo)]
+    net, end = Network.chain(lines)
+    sims = [Simulation(net, [end], 3.3, 0.2e-9, np.array([20.0, 45.0]), {end: LoadSet.of([Load(cap=2e-12)])})]
+    assert len(chain_batch._uniform_runs(lines)) == 3
+    assert_same(simulate_many(sims)[0], sims[0].run(), 3.3)
+
+
 @settings(max_examples=40, deadline=None)
 @given(hst.lists(hst.tuples(hst.floats(20, 120), hst.floats(5e-12, 2e-9), losses_st), min_size=1, max_size=4))
 def test_line_shapes_for_many_sections_equal_one_by_one(spec):
