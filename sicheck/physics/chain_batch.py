@@ -27,7 +27,7 @@ import numpy as np
 from scipy import fft as sfft
 
 from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, shape_key, smooth_per_delay_lines
-from sicheck.physics.line_network import (BATCH_BINS, RECORD_FACTOR, SAMPLES_PER_RAMP, SHAPE_NODES, WRAP_DAMPING,
+from sicheck.physics.line_network import (RECORD_FACTOR, SAMPLES_PER_RAMP, SHAPE_NODES, WRAP_DAMPING,
                                           Simulation, _extend_unsettled, record_ladder, record_size, settle_window)
 from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, preview_index
 
