@@ -67,6 +67,19 @@ def test_sections_of_one_cross_section_end_to_end_are_one_line(lo):
     assert_same(simulate_many(sims)[0], sims[0].run(), 3.3)
 
 
+def test_cross_sections_beyond_the_shape_cache_are_worked_out_again(monkeypatch):
+    # a board of many cross-sections: K and M are kept for a record group's batches only up to a bound, then
+    # dropped and worked out again for each batch; the answers must not change
+    rng = np.random.default_rng(4)
+    sims = [chain_sim([float(rng.uniform(40, 60)) for _ in range(3)], [2e-10, 3e-10, 1e-10],
+                      [LineLoss(f_ref=1e9, r_ac=float(rng.uniform(0.5, 3.0)), tan_delta=0.02, r_dc=0.3)] * 3,
+                      [25.0, 47.0], [LOADS[0]], rise=0.25e-9, t_end=6e-9) for _ in range(12)]
+    monkeypatch.setattr(chain_batch, "GROUP_BINS", 3000)        # a few nets per batch
+    monkeypatch.setattr(chain_batch, "SHAPE_CACHE_BINS", 1)     # dropped at every batch
+    for sim, got in zip(sims, simulate_many(sims)):
+        assert_same(got, sim.run(), sim.swing)
+
+
 @settings(max_examples=40, deadline=None)
 @given(hst.lists(hst.tuples(hst.floats(20, 120), hst.floats(5e-12, 2e-9), losses_st), min_size=1, max_size=4))
 def test_line_shapes_for_many_sections_equal_one_by_one(spec):

@@ -143,6 +143,7 @@ def _prepare(sim: Simulation, lines: list[Line]) -> dict:
 
 
 GROUP_BINS = 1 << 17     # complex bins per batch: 2 MB arrays stay in cache (7 % faster than 8 MB ones)
+SHAPE_CACHE_BINS = 1 << 21   # K and M kept per cross-section for a record group's batches: at most 64 MB
 
 
 def _batches(members, plan, k_bins):
@@ -266,6 +267,9 @@ def _loaded_chains(chains: list[list[Line]], owner: np.ndarray, y: np.ndarray, s
     index: dict = {}
     which = np.array([index.setdefault(x.key, len(index)) for x in lines])
     new = [key for key in index if key not in shapes]
+    if new and (len(shapes) + len(new)) * len(s) > SHAPE_CACHE_BINS:     # a board of many cross-sections:
+        shapes.clear()                                                   # keep only what this batch needs
+        new = list(index)
     if new:
         k_new, m_new = smooth_per_delay_lines([_unit_line(key) for key in new], s, SHAPE_NODES)
         shapes.update((key, (k_new[j], m_new[j])) for j, key in enumerate(new))
