@@ -13,7 +13,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
-from sicheck.checks import ReviewContext, run_checks
+from sicheck.checks import ReviewContext, run_checks, run_early
 from sicheck.checks.fabrication_band import tolerances as fab_tolerances
 from sicheck.errors import InputError
 from sicheck.findings import SEVERITY_ORDER, Finding
@@ -221,19 +221,38 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     nets["topology_note"] = [topology[n].note if n in topology else (CHAIN_NOTE if k > 1 else "")
                              for n, k in zip(net_names, nets["segments"].to_numpy().tolist())]
     nets["topology"] = [_topology_summary(topology[n]) if n in topology else None for n in net_names]
+    early: dict = {}
+    crosstalk_cols: dict = {}
+
+    def meanwhile():
+        """What needs no waveform: the crosstalk figures and the checks that do not read the waveform stage's
+        columns, worked out while its processes run (the second core is otherwise idle at the checks)."""
+        if xtalk is not None and couplings is not None:
+            xtr.attach_couplings(xtalk, couplings, seg, dict(zip(nets["net"], nets["rise_time"])))
+        figures = pd.DataFrame({"net": nets["net"].to_numpy(object)})
+        xtr.add_net_crosstalk(figures, all_seg, xtalk)
+        crosstalk_cols.update({c: figures[c].to_numpy() for c in figures.columns if c != "net"})
+        before = nets.copy()
+        for c, values in crosstalk_cols.items():
+            before[c] = values
+        if waveforms:
+            xtr.add_waves(xtalk, seg, rules)
+        early.update(run_early(ReviewContext(segments=seg, nets=before, rules=rules, stackup=stackup,
+                                             cross_sections=list(zip(xs, results)), topology=topology,
+                                             crosstalk=xtalk, vias=vias)))
+
     waves: dict = {}
     if waveforms:
         from sicheck.waveform_review import simulate_nets
-        nets, waves = simulate_nets(all_seg, nets, rules, xs, topology)
-    if xtalk is not None and couplings is not None:
-        xtr.attach_couplings(xtalk, couplings, seg, dict(zip(nets["net"], nets["rise_time"])))
-    xtr.add_net_crosstalk(nets, all_seg, xtalk)
-    if waveforms:
-        xtr.add_waves(xtalk, seg, rules)
+        nets, waves = simulate_nets(all_seg, nets, rules, xs, topology, meanwhile=meanwhile)
+    else:
+        meanwhile()
+    for c, values in crosstalk_cols.items():      # after the waveform columns, as they always were
+        nets[c] = values
     ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
                         cross_sections=list(zip(xs, results)), topology=topology, crosstalk=xtalk,
                         vias=vias)
-    findings = run_checks(ctx)
+    findings = run_checks(ctx, ready=early)
     findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
     return Review(segments=seg, nets=nets, findings=findings, stackup=stackup, rules=rules,

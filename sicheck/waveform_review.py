@@ -260,14 +260,18 @@ def workers() -> int:
     return int(env) if env.isdigit() and int(env) > 0 else min(os.cpu_count() or 1, 4)
 
 
-def run_jobs(jobs: Iterable, count: int) -> Iterator[tuple]:
+def run_jobs(jobs: Iterable, count: int, meanwhile=None) -> Iterator[tuple]:
     """(index, result) for each of the `count` jobs, in their order; the nets are independent, so large boards
     use a process pool. Each chunk of jobs goes to the pool as soon as it is made (jobs may come from a
     generator that prepares them), so the workers start while the later jobs are still being prepared; and
-    the results are handed on as the chunks finish, so they are sorted out while the last ones run."""
+    the results are handed on as the chunks finish, so they are sorted out while the last ones run.
+    ``meanwhile()`` is called once every job is handed out, before the first result is waited for."""
     n = workers()
     if count < POOL_MIN_NETS or n < 2:
-        yield from _choose_chunk(list(jobs))
+        results = _choose_chunk(list(jobs))
+        if meanwhile is not None:
+            meanwhile()
+        yield from results
         return
     import gc
     from concurrent.futures import ProcessPoolExecutor
@@ -281,6 +285,8 @@ def run_jobs(jobs: Iterable, count: int) -> Iterator[tuple]:
                 # workers' (forked) garbage collector no longer walks them each time the results pile up
                 gc.freeze()
                 futures.append(pool.submit(_choose_chunk, chunk))
+            if meanwhile is not None:
+                meanwhile()
             for f in futures:
                 yield from f.result()
     except BaseException:
@@ -305,8 +311,10 @@ def series_parts_of(ix, part_ohm, part_farad) -> dict:
     return out
 
 
-def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list | None = None, topology=None
-                  ) -> tuple[pd.DataFrame, dict]:
+def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list | None = None, topology=None,
+                  meanwhile=None) -> tuple[pd.DataFrame, dict]:
+    """The nets table with the waveform stage's columns, and the charted nets' waves. ``meanwhile``: work of
+    the caller's that needs no waveform, run once every job is handed out, while the processes work."""
     classes = {c.name: c for c in rules.classes}
     n = len(nets)
     cols = {f"{w}_{k}": np.full(n, np.nan) for w in ("before", "after") for k in METRIC_KEYS}
@@ -472,7 +480,7 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                        parts or None))
 
     done, metric_rows = [], []       # the nets simulated and their metrics (before then after, as in cols)
-    for i, result in run_jobs(prepared(), len(sim)):
+    for i, result in run_jobs(prepared(), len(sim), meanwhile):
         net, used, has_loss, loss_db, f0, assumed = pending[i]
         inputs[i] = used
         if isinstance(result, str):

@@ -9,7 +9,7 @@ from __future__ import annotations
 from functools import lru_cache
 
 from sicheck.checks.engine import (DOC_PARTS, REGISTRY, SETTINGS, SEVERITIES, SEVERITY_CHOICES, Check, Param,
-                                   ReviewContext, check, run_checks, setting)
+                                   ReviewContext, check, run_checks, run_early, setting)
 
 # Registration: importing a family module registers its checks.
 from sicheck.checks import impedance, fabrication, fabrication_band, loss, length, stub, pair, waveform, model_accuracy, rule_set  # noqa: E402,F401
@@ -19,8 +19,8 @@ from sicheck.checks import vias, return_path  # noqa: E402,F401
 
 CHECKS: tuple[Check, ...] = tuple(REGISTRY)
 
-__all__ = ["CHECKS", "Check", "Param", "ReviewContext", "check", "run_checks", "setting", "by_id", "all_params",
-           "section_params", "class_params", "DOC_PARTS", "SEVERITIES", "SEVERITY_CHOICES", "rule_table_markdown"]
+__all__ = ["CHECKS", "Check", "Param", "ReviewContext", "check", "run_checks", "run_early", "setting", "by_id",
+           "all_params", "section_params", "class_params", "DOC_PARTS", "SEVERITIES", "SEVERITY_CHOICES", "rule_table_markdown"]
 
 
 def by_id(rule_id: str) -> Check:

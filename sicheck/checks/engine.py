@@ -68,6 +68,7 @@ class Check:
     fn: Callable[["ReviewContext", "Check"], Iterable[Finding]]
     family: str
     doc: str
+    waveforms: bool = False             # reads the waveform stage's columns of the nets table
 
     @property
     def summary(self) -> str:
@@ -121,8 +122,12 @@ def setting(p: Param) -> Param:
     return p
 
 
-def check(id: str, severity: str, params: Iterable[Param] = ()):
-    """Register a check function. The function's docstring documents the rule (see DOC_PARTS)."""
+def check(id: str, severity: str, params: Iterable[Param] = (), waveforms: bool = False):
+    """Register a check function. The function's docstring documents the rule (see DOC_PARTS).
+
+    waveforms: the check reads the waveform stage's columns of the nets table (simulated metrics, proposed
+    part); the others can run while that stage's processes work (run_early).
+    """
     if severity not in SEVERITIES:
         raise ValueError(f"check {id}: default severity must be one of {SEVERITIES}")
 
@@ -130,7 +135,7 @@ def check(id: str, severity: str, params: Iterable[Param] = ()):
         if any(c.id == id for c in REGISTRY):
             raise ValueError(f"check id '{id}' registered twice")
         family = fn.__module__.rsplit(".", 1)[-1]
-        REGISTRY.append(Check(id, severity, tuple(params), fn, family, fn.__doc__ or ""))
+        REGISTRY.append(Check(id, severity, tuple(params), fn, family, fn.__doc__ or "", waveforms))
         return fn
     return deco
 
@@ -214,17 +219,16 @@ def plain_rows(table):
     return map(row._make, zip(*cols))
 
 
-def run_checks(ctx: ReviewContext, checks: Iterable[Check] | None = None) -> list[Finding]:
-    """Every registered check not turned off, with the rules' severities applied; keys made unique."""
-    sev = ctx.rules.severity
+def run_checks(ctx: ReviewContext, checks: Iterable[Check] | None = None,
+               ready: dict[str, list[Finding]] | None = None) -> list[Finding]:
+    """Every registered check not turned off, with the rules' severities applied; keys made unique.
+
+    ready: findings already worked out per check id (run_early), taken as they are, in the registry's order.
+    """
     out: list[Finding] = []
     for chk in (REGISTRY if checks is None else checks):
-        level = sev.get(chk.id, chk.severity)
-        if level == "off":
-            continue
-        for f in chk.fn(ctx, chk):
-            # the same as dataclasses.replace, at half its cost (a large board has ~100 000 findings)
-            out.append(f if f.severity else Finding(**{**vars(f), "severity": level}))
+        found = ready[chk.id] if ready is not None and chk.id in ready else _findings(ctx, chk)
+        out.extend(found)
     seen: dict[str, int] = {}
     for i, f in enumerate(out):
         n = seen.get(f.key, 0) + 1
@@ -232,3 +236,18 @@ def run_checks(ctx: ReviewContext, checks: Iterable[Check] | None = None) -> lis
         if n > 1:       # same place twice (e.g. two equal rows): keep keys unique, still row-free
             out[i] = replace(f, key=f"{f.key}|{n}")
     return out
+
+
+def run_early(ctx: ReviewContext) -> dict[str, list[Finding]]:
+    """The findings of every check that does not read the waveform stage's columns, by check id, severities
+    applied: worked out while the waveform stage's processes run (ctx.nets need not have those columns yet);
+    run_checks(..., ready=) then adds the rest."""
+    return {chk.id: _findings(ctx, chk) for chk in REGISTRY if not chk.waveforms}
+
+
+def _findings(ctx: ReviewContext, chk: Check) -> list[Finding]:
+    level = ctx.rules.severity.get(chk.id, chk.severity)
+    if level == "off":
+        return []
+    # the same as dataclasses.replace, at half its cost (a large board has ~100 000 findings)
+    return [f if f.severity else Finding(**{**vars(f), "severity": level}) for f in chk.fn(ctx, chk)]

@@ -38,7 +38,7 @@ def simulated(r) -> bool:
     return isinstance(part, str) and bool(part)
 
 
-@check("electrical-length", "warning", params=(LUMPED_MAX, REQUIRED_MIN))
+@check("electrical-length", "warning", params=(LUMPED_MAX, REQUIRED_MIN), waveforms=True)
 def electrical_length(ctx, chk):
     """One-way delay against rise time: a net that must be treated and terminated as a transmission line.
 

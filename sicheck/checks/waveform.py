@@ -38,7 +38,7 @@ PARAMS = (
 )
 
 
-@check("waveform", "warning", params=PARAMS)
+@check("waveform", "warning", params=PARAMS, waveforms=True)
 def waveform(ctx, chk):
     """Simulated receiver waveform of a net that needs termination, when no standard scheme meets the limits.
 
