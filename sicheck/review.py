@@ -245,7 +245,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     if waveforms:
         from sicheck.waveform_review import simulate_nets
         nets, waves = simulate_nets(all_seg, nets, rules, xs, topology, meanwhile=meanwhile)
-    else:
+    if not early:           # no waveform stage (or it had nothing to hand out meanwhile)
         meanwhile()
     for c, values in crosstalk_cols.items():      # after the waveform columns, as they always were
         nets[c] = values
