@@ -43,11 +43,6 @@ def _trace_area(xs) -> float:
     return xs.thickness * 0.5 * (xs.width + top)
 
 
-def segment_losses(z, delay, length, freq, a_c_db, a_d_db, area) -> list[LineLoss | None]:
-    """One LineLoss per segment from the review's loss columns (see module doc); None where lossless."""
-    return SegmentLosses(z, delay, length, freq, a_c_db, a_d_db, area).of(range(len(z)))
-
-
 class SegmentLosses:
     """The loss model of every segment, worked out as arrays once; LineLoss objects made for the segments
     asked for (a segment of a net that is not simulated may lack what a model needs)."""

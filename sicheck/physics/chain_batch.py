@@ -29,7 +29,7 @@ from scipy import fft as sfft
 from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, shape_key, smooth_per_delay_lines
 from sicheck.physics.line_network import (RECORD_FACTOR, SAMPLES_PER_RAMP, SHAPE_NODES, WRAP_DAMPING,
                                           Simulation, _extend_unsettled, record_ladder, record_size, settle_window)
-from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, preview_index
+from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, preview_index, ramp_voltage
 
 
 def plain_chain(sim: Simulation) -> list[Line] | None:
@@ -215,7 +215,7 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
         spec -= ref_c
         v = sfft.irfft(spec, n=n_rec, axis=-1)[:, :n_keep] * growth
         v += v_low[:, None]
-        v += h0[:, None] * (swing[:, None] * np.clip((t[None, :] - t0[:, None]) / ramp, 0.0, 1.0))[net_of]
+        v += h0[:, None] * (swing[:, None] * ramp_voltage(t[None, :] - t0[:, None], 1.0, ramp))[net_of]
         rows = metrics_batch(t, v, v_high, ramp)
         shown = v[:, idx]                  # what a chart keeps, for the whole batch at once
         for j, (k, i) in enumerate(batch):
