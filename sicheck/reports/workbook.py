@@ -227,9 +227,15 @@ class _Sheet:
             heights[i] = LINE_PT * min(k, 27)             # 409 pt at most
         overs = [None] * n
         if fills is not None and fill_cols:
+            shared: dict[tuple, dict] = {}       # rows with the same fill and quoting share one dict of formats
+            cols = [columns[j] if j < len(columns) else [None] * n for j in fill_cols]
             for i, fill in enumerate(fills):
                 if fill is not None:
-                    overs[i] = {j: self._fill(j, fill, columns[j][i] if j < len(columns) else None) for j in fill_cols}
+                    key = (fill, *(c[i] if c[i].__class__ is str and clean_text(c[i])[1] else None for c in cols))
+                    over = shared.get(key)
+                    if over is None:
+                        over = shared[key] = {j: self._fill(j, fill, v) for j, v in zip(fill_cols, key[1:])}
+                    overs[i] = over
         self._buf.extend(zip(range(first, first + n), zip(*columns), heights, overs))
 
     def _fill(self, j: int, fill: str, v):
@@ -252,8 +258,10 @@ class _Sheet:
         self._col_style = [_xf(f) for f in fmts]
         for f in self._quote:
             _xf(f)
+        done = set()                         # rows_of shares a dict between rows: map each once
         for _, _, _, over in self._buf:
-            if over:
+            if over and id(over) not in done:
+                done.add(id(over))
                 for j, f in over.items():
                     over[j] = _xf(f)
 
