@@ -97,6 +97,9 @@ class Network:
     def __init__(self) -> None:
         self.edges: list[tuple[int, int, Line | Series]] = []
         self._folded: dict = {}      # frequency grid -> folded two-ports (reused across candidate stages)
+        # what is worked out from the edges alone, by name (settle_window's, chain_batch's): a net's candidate
+        # stages are simulated one after the other on the same network and share it
+        self.memo: dict = {}
 
     @property
     def size(self) -> int:
@@ -110,6 +113,7 @@ class Network:
         child = self.size
         self.edges.append((parent, child, element))
         self._folded.clear()
+        self.memo.clear()
         return child
 
     @classmethod
@@ -319,35 +323,16 @@ def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSe
     settling band after k = ln(band/4)/ln(gamma) trips (plus 2, at least 4, at most 400). Pass or
     fail needs far less: the settling limit is about one round trip after the flight.
     """
-    lines = net.lines()
-    total = sum(x.delay for x in lines) or ramp
-    z_min = min((x.z0 for x in lines), default=50.0)
+    total, z_min, z1, before, z_end, stretch = _window_shape(net, ramp)
     # the first line seen from the driver, and any series resistance before it
-    rs_eff = np.asarray(r_source, dtype=float).copy()
-    z1 = z_min
-    node = 0
-    while True:
-        nxt = [(c, e) for p, c, e in net.edges if p == node]
-        if not nxt:
-            break
-        c, e = nxt[0]
-        if isinstance(e, Line):
-            z1 = e.z0
-            break
-        rs_eff = rs_eff + e.ohm
-        node = c
+    rs_l = np.asarray(r_source, dtype=float).tolist()
+    for ohm in before:
+        rs_l = [r + ohm for r in rs_l]
     # the far end: a resistive termination reflects (R - Z)/(R + Z); an open end or a capacitor fully.
     # Worked out per candidate on plain floats: a net has a handful of candidates, and this runs once per
     # stage of every net on a board (numpy's per-call cost on arrays this small was most of its time).
-    z_end = _last_line(net).z0 if lines else z_min
-    m = len(rs_eff)
-    rs_l = rs_eff.tolist()
+    m = len(rs_l)
     cols = [{f: _per_candidate(getattr(ls, f), m) for f in ("cap", "end_ohm", "end_cap")} for ls in loads.values()]
-    atten = sum(x.loss.r_ac / (2.0 * x.z0) + math.pi * x.loss.f_ref * x.delay * x.loss.tan_delta
-                for x in lines if isinstance(x.loss, LineLoss))
-    # loss adds a slow tail (the skin effect's step response approaches its end like 1/sqrt(t)):
-    # more time in proportion to the lines' attenuation at their reference frequencies
-    stretch = 1.0 + min(atten, 2.0)
     out = []
     for i, rs in enumerate(rs_l):
         g_end = 1.0
@@ -368,6 +353,38 @@ def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSe
                 tau_end = max(tau_end, ce * (ro + max(rs, z_min)))
         out.append(ramp + trips * 2.0 * total * stretch + max(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp)
     return np.array(out)
+
+
+def _window_shape(net: Network, ramp: float) -> tuple:
+    """What settle_window takes from the network alone: (total delay, least Z, the first line's Z, the series
+    resistances before it, the last line's Z, the stretch for loss); once per network (net.memo)."""
+    got = net.memo.get("settle_window")
+    if got is not None and got[0] == ramp:
+        return got[1]
+    lines = net.lines()
+    total = sum(x.delay for x in lines) or ramp
+    z_min = min((x.z0 for x in lines), default=50.0)
+    z1 = z_min
+    before = []
+    node = 0
+    while True:
+        nxt = [(c, e) for p, c, e in net.edges if p == node]
+        if not nxt:
+            break
+        c, e = nxt[0]
+        if isinstance(e, Line):
+            z1 = e.z0
+            break
+        before.append(e.ohm)
+        node = c
+    z_end = _last_line(net).z0 if lines else z_min
+    atten = sum(x.loss.r_ac / (2.0 * x.z0) + math.pi * x.loss.f_ref * x.delay * x.loss.tan_delta
+                for x in lines if isinstance(x.loss, LineLoss))
+    # loss adds a slow tail (the skin effect's step response approaches its end like 1/sqrt(t)):
+    # more time in proportion to the lines' attenuation at their reference frequencies
+    shape = (total, z_min, z1, tuple(before), z_end, 1.0 + min(atten, 2.0))
+    net.memo["settle_window"] = (ramp, shape)
+    return shape
 
 
 def _per_candidate(values, m: int) -> list[float]:
