@@ -231,6 +231,8 @@ def test_what_is_kept_of_a_network_follows_its_edges():
     ref = simulate_many([Simulation(fresh, [fresh_end], 3.3, 0.3e-9, rs, {fresh_end: loads})])[0][fresh_end]
     for a, b in zip(got, ref):
         assert np.array_equal(a.v_rx, b.v_rx) and a.metrics == b.metrics
+    sim = Simulation(net, [far], 3.3, 0.3e-9, rs, {far: loads})
+    assert np.array_equal(sim.estimated_window, settle_window(fresh, rs, {fresh_end: loads}, 0.3e-9 / 0.8))
     for ramp in (0.3e-9, 1.1e-9, 0.3e-9):
         assert np.array_equal(settle_window(net, rs, {far: loads}, ramp),
                               settle_window(Network.chain([Line(50.0, 0.4e-9, lo), Line(70.0, 0.3e-9)])[0], rs,

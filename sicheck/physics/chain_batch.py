@@ -28,7 +28,7 @@ from scipy import fft as sfft
 
 from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, shape_key, smooth_per_delay_lines
 from sicheck.physics.line_network import (RECORD_FACTOR, SAMPLES_PER_RAMP, SHAPE_NODES, WRAP_DAMPING,
-                                          Simulation, _extend_unsettled, record_ladder, record_size, settle_window)
+                                          Simulation, _extend_unsettled, record_ladder, record_size)
 from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, preview_index, ramp_voltage
 
 
@@ -121,7 +121,7 @@ def samples_needed(sim: Simulation) -> int:
         if sim.t_end is not None and np.ndim(sim.t_end) == 0:      # one window for all: one record size
             return len(rs) * int(record_ladder(record_size(float(sim.t_end), dt)) / RECORD_FACTOR)
         ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), rs.shape) if sim.t_end is not None
-                else settle_window(sim.net, rs, sim.loads, ramp))
+                else sim.estimated_window)
         return sum(int(record_ladder(record_size(te, dt)) / RECORD_FACTOR) for te in ends)
     except (ValueError, ZeroDivisionError):
         return 0
@@ -149,7 +149,7 @@ def _prepare(sim: Simulation, chain: _Chain) -> dict:
         records = [record_ladder(record_size(float(sim.t_end), dt))] * m
     else:
         ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), (m,)) if sim.t_end is not None
-                else settle_window(sim.net, rs, sim.loads, ramp))
+                else sim.estimated_window)
         records = [record_ladder(record_size(te, dt)) for te in ends]
     # DC: the driver, the lines' DC resistance in series, the load's conductance to its voltage (on plain
     # floats: a handful of candidates, and numpy's per-call cost on arrays this small is most of the time)
@@ -240,7 +240,9 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
         spec -= ref_c
         v = sfft.irfft(spec, n=n_rec, axis=-1)[:, :n_keep] * growth
         v += v_low[:, None]
-        v += h0[:, None] * (swing[:, None] * ramp_voltage(t[None, :] - t0[:, None], 1.0, ramp))[net_of]
+        step = (swing[:, None] * ramp_voltage(t[None, :] - t0[:, None], 1.0, ramp))[net_of]
+        step *= h0[:, None]
+        v += step
         rows = metrics_batch(t, v, v_high, ramp)
         shown = v[:, idx]                  # what a chart keeps, for the whole batch at once
         for j, (k, i) in enumerate(batch):
@@ -277,8 +279,8 @@ def _loaded_chains(chains: list[list[_Run]], owner: np.ndarray, y: np.ndarray, s
     vector is (a + b, (a - b)/Zc), three products per section instead of eight.
 
     Sections of one cross-section end to end are one uniform line (_uniform_runs, by the caller): a trace list
-    often splits a trace at its corners. Nets are taken longest first and their sections position by position from the far
-    end, so that every step works on a leading slice. Returns (p, q, at, g, rank): p and q in that order (load
+    often splits a trace at its corners. Nets are taken longest first and their sections position by position from
+    the far end, so that every step works on a leading slice. Returns (p, q, at, g, rank): p and q in that order (load
     u is row at[u]), g's row for net j is rank[j]. shapes: K and M per shape key on s, filled in as needed.
     """
     order = sorted(range(len(chains)), key=lambda j: -len(chains[j]))
@@ -322,7 +324,7 @@ def _loaded_chains(chains: list[list[_Run]], owner: np.ndarray, y: np.ndarray, s
     at[by] = np.arange(len(owner))
     ranks = net_rank[by]
     one_each = len(owner) == len(chains)           # one load per net: its sections are the block's rows as they are
-    p = np.ones((len(owner), len(s)), dtype=complex)
+    p = np.empty((len(owner), len(s)), dtype=complex)
     q = y[by]
     off = 0
     for pos in range(n_max):
@@ -330,10 +332,12 @@ def _loaded_chains(chains: list[list[_Run]], owner: np.ndarray, y: np.ndarray, s
         rows = slice(off, off + n_u) if one_each else off + ranks[:n_u]
         off += count[pos]
         pp, qq = p[:n_u], q[:n_u]
+        # at the far end (every load is still on the way) P = 1: the scalar, the same operations as on ones
+        one = 1.0 if pos == 0 else pp
         a = zc[rows] * qq
-        b = pp - a
+        b = one - a
         b *= e2[rows]
-        a += pp
+        a += one
         np.add(a, b, out=pp)
         np.subtract(a, b, out=qq)
         qq *= yc[rows]

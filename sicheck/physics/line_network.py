@@ -332,23 +332,24 @@ def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSe
     # Worked out per candidate on plain floats: a net has a handful of candidates, and this runs once per
     # stage of every net on a board (numpy's per-call cost on arrays this small was most of its time).
     m = len(rs_l)
-    cols = [{f: _per_candidate(getattr(ls, f), m) for f in ("cap", "end_ohm", "end_cap")} for ls in loads.values()]
+    cols = [(_per_candidate(ls.cap, m), _per_candidate(ls.end_ohm, m), _per_candidate(ls.end_cap, m))
+            for ls in loads.values()]
     out = []
     for i, rs in enumerate(rs_l):
         g_end = 1.0
-        for c in cols:
-            r = c["end_ohm"][i]
+        for _, end_ohm, _ in cols:
+            r = end_ohm[i]
             if r == r:
                 g_end = abs((r - z_end) / (r + z_end))
         gamma = max(abs((rs - z1) / (rs + z1)) * g_end, 0.3)
         # (gamma >= 1 cannot decay: the least number of trips, as the logarithm's sign gives)
         trips = 4.0 if gamma >= 1.0 else min(max(math.log(SETTLE_BAND / 4.0) / math.log(gamma) + 2.0, 4.0), 400.0)
         tau = tau_end = 0.0
-        for c in cols:
-            tau = max(tau, c["cap"][i] * min(z_min, rs))
+        for cap, end_ohm, end_cap in cols:
+            tau = max(tau, cap[i] * min(z_min, rs))
             # an RC termination's capacitor charges, once the line has settled into a wire, through its
             # resistor and the driver: e^-6 of the step is a twentieth of the settling band
-            ce, ro = c["end_cap"][i], c["end_ohm"][i]
+            ce, ro = end_cap[i], end_ohm[i]
             if ce == ce and ro == ro:
                 tau_end = max(tau_end, ce * (ro + max(rs, z_min)))
         out.append(ramp + trips * 2.0 * total * stretch + max(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp)
@@ -388,7 +389,10 @@ def _window_shape(net: Network, ramp: float) -> tuple:
 
 
 def _per_candidate(values, m: int) -> list[float]:
-    v = np.asarray(values, dtype=float).reshape(-1).tolist()
+    if isinstance(values, np.ndarray) and values.ndim == 1 and values.dtype == np.float64:
+        v = values.tolist()          # (the usual case, without numpy's conversions)
+    else:
+        v = np.asarray(values, dtype=float).reshape(-1).tolist()
     return v * m if len(v) == 1 else v
 
 
@@ -558,6 +562,12 @@ class Simulation:
     r_source: np.ndarray
     loads: dict
     t_end: float | None = None
+
+    @functools.cached_property
+    def estimated_window(self) -> np.ndarray:
+        """settle_window for the candidates (a batching engine asks for it more than once: worked out once)."""
+        return settle_window(self.net, np.atleast_1d(np.asarray(self.r_source, dtype=float)), self.loads,
+                             self.rise * RAMP_PER_RISE)
 
     def run(self) -> dict[int, list[Waveform]]:
         return simulate_network(self.net, self.receivers, self.swing, self.rise, self.r_source, self.loads,

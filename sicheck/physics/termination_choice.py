@@ -286,7 +286,8 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
             out.append(c)
         return out
 
-    base = ("none", "unterminated", driver_ohm, Load(cap=load_cap), 0.0, {})
+    pin = Load(cap=load_cap)          # the receiver as it is (frozen: one object for every candidate with it)
+    base = ("none", "unterminated", driver_ohm, pin, 0.0, {})
     if on_die is not None:
         r_od, v_od, od_text = on_die
         others = {far[i]: LoadSet.of([Load(cap=c, end_ohm=r_od, end_volts=v_od)]) for i, c, _ in receivers[1:]}
@@ -311,7 +312,7 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
 
     z_drv, z_end = float(z[driver_end]), float(z[main_line])
     ideal = z_drv - driver_ohm
-    series = [("series", f"{r:g} ohm in series at the driver", driver_ohm + r, Load(cap=load_cap), 0.0,
+    series = [("series", f"{r:g} ohm in series at the driver", driver_ohm + r, pin, 0.0,
                {"series_ohm": r}) for r in (_neighbours(ideal) if ideal >= 1.0 else [])]
     vt = swing / 2.0
     r2 = eseries.nearest(2.0 * z_end)
