@@ -146,3 +146,47 @@ def test_each_distinct_number_formatted_once_reads_the_same(values, repeated):
     from sicheck.reports.sheet_rows import _reprs
     a = np.array(values + repeated, dtype=float)
     assert _reprs(a) == [repr(v) for v in a.tolist()]
+
+
+def _three_tables(path, n):
+    book = Book(path)
+    for k, size in enumerate((n, n // 2, n // 3)):
+        sh = _Sheet(book, f"T{k}", COLS)
+        sh.header()
+        for i in range(size):
+            sh.row([f"net{k}_{i}", i / 7, "=x" if i % 5 == 0 else None, bool(i % 2)])
+        sh.finish()
+    book.close()
+
+
+def test_bodies_written_in_a_second_process_give_the_same_workbook(tmp_path, monkeypatch):
+    import zipfile
+
+    from python_calamine import CalamineWorkbook
+
+    from sicheck.reports import sheet_rows
+    _three_tables(tmp_path / "here.xlsx", 300)
+    monkeypatch.setattr(sheet_rows, "FORK_MIN_CELLS", 0)          # hand the largest body to a forked process
+    real, calls = sheet_rows.forked, []
+    monkeypatch.setattr(sheet_rows, "forked", lambda work: calls.append(work) or real(work))
+    assert sheet_rows._shared({"a": ("", iter(()), 1200), "b": ("", iter(()), 600), "c": ("", iter(()), 400)}) == {"a"}
+    _three_tables(tmp_path / "split.xlsx", 300)
+    with zipfile.ZipFile(tmp_path / "here.xlsx") as a, zipfile.ZipFile(tmp_path / "split.xlsx") as b:
+        assert a.namelist() == b.namelist()
+        assert all(a.read(n) == b.read(n) for n in a.namelist())          # every part the same bytes
+    assert len(calls) == 1
+    for name in ("T0", "T1", "T2"):
+        assert (CalamineWorkbook.from_path(str(tmp_path / "split.xlsx")).get_sheet_by_name(name).to_python()
+                == CalamineWorkbook.from_path(str(tmp_path / "here.xlsx")).get_sheet_by_name(name).to_python())
+    assert load_workbook(tmp_path / "split.xlsx")["T0"]["A301"].value == "net0_299"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["here.xlsx", "split.xlsx"]     # no parts left behind
+
+
+def test_shared_bodies_balance_the_cells():
+    from sicheck.reports.sheet_rows import FORK_MIN_CELLS, _shared
+    big = FORK_MIN_CELLS
+    assert _shared({"a": ("", None, big // 4)}) == set()                  # too small to be worth a process
+    assert _shared({"a": ("", None, 8 * big), "b": ("", None, big)}) == {"a"}     # one body dominates: it goes
+    assert _shared({"a": ("", None, 3 * big), "b": ("", None, 2 * big), "c": ("", None, 2 * big)}) in ({"a"},)
+    assert _shared({"a": ("", None, 2 * big), "b": ("", None, 2 * big), "c": ("", None, big),
+                    "d": ("", None, big)}) == {"a", "c"}

@@ -15,17 +15,24 @@ from contextlib import contextmanager
 from typing import Callable
 
 
+class Handoff:
+    """What ``work()`` returned, once the ``with forked(...)`` block has ended (it must pickle)."""
+    value = None
+
+
 @contextmanager
-def forked(work: Callable[[], None]):
-    """Run ``work()`` in a forked child during the ``with`` block.
+def forked(work: Callable[[], object]):
+    """Run ``work()`` in a forked child during the ``with`` block; the block gets a Handoff whose ``value`` is
+    what ``work()`` returned, once the block has ended.
 
     Leaving the block waits for the child and raises here what ``work`` raised there (an InputError
     keeps its message; a child that died without a word raises ChildProcessError, an OSError).
     Leaving the block by an exception stops the child first.
     """
+    handoff = Handoff()
     if not hasattr(os, "fork"):
-        yield
-        work()
+        yield handoff
+        handoff.value = work()
         return
     read_end, write_end = os.pipe()
     pid = os.fork()
@@ -33,17 +40,17 @@ def forked(work: Callable[[], None]):
         code = 0
         try:
             os.close(read_end)
-            work()
+            _send(write_end, True, work())
         except BaseException as e:   # noqa: BLE001 - everything goes back to the parent
             code = 1
-            _send(write_end, e)
+            _send(write_end, False, e)
         finally:
             os._exit(code)           # no atexit handlers, no flushing of the parent's buffers
     os.close(write_end)
     reader = os.fdopen(read_end, "rb")
     try:
-        yield
-        report = reader.read()       # empty unless work() raised; ends when the child exits
+        yield handoff
+        report = reader.read()       # the child's answer; complete when the child exits
     except BaseException:            # an error here, or Ctrl-C while waiting: the child's work is moot
         os.kill(pid, signal.SIGKILL)
         os.waitpid(pid, 0)
@@ -51,26 +58,32 @@ def forked(work: Callable[[], None]):
     finally:
         reader.close()
     _, status = os.waitpid(pid, 0)
-    if report:
-        raise _received(report)
-    if status != 0:
+    ok, payload = pickle.loads(report) if report else (False, None)
+    if not ok and payload is not None:
+        raise _received(payload)
+    if status != 0 or not ok:
         why = (f"signal {os.WTERMSIG(status)}" if os.WIFSIGNALED(status) else f"exit code {os.WEXITSTATUS(status)}")
         raise ChildProcessError(f"the report writer process stopped ({why})")
+    handoff.value = payload
 
 
-def _send(fd: int, e: BaseException) -> None:
-    try:
-        exc = pickle.dumps(e)
-        pickle.loads(exc)            # some exception classes pickle but cannot be rebuilt
-    except Exception:                # noqa: BLE001
-        exc = None
-    data = pickle.dumps((exc, type(e).__name__, str(e)))
+def _send(fd: int, ok: bool, payload) -> None:
+    """(True, the value) or (False, what describes the exception) down the pipe, as one pickle."""
+    if ok:
+        data = pickle.dumps((True, payload))
+    else:
+        try:
+            exc = pickle.dumps(payload)
+            pickle.loads(exc)        # some exception classes pickle but cannot be rebuilt
+        except Exception:            # noqa: BLE001
+            exc = None
+        data = pickle.dumps((False, (exc, type(payload).__name__, str(payload))))
     with os.fdopen(fd, "wb") as f:
         f.write(data)
 
 
-def _received(report: bytes) -> BaseException:
-    exc, name, text = pickle.loads(report)
+def _received(report: tuple) -> BaseException:
+    exc, name, text = report
     if exc is not None:
         return pickle.loads(exc)
     return RuntimeError(f"{name}: {text}")

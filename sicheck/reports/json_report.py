@@ -7,6 +7,7 @@ import math
 from typing import Iterator
 
 import numpy as np
+import orjson
 
 from sicheck import __version__
 from sicheck.reports.signoff_columns import finding_json, signoff_json
@@ -282,38 +283,51 @@ def match_groups_json(rv: Review) -> list[dict]:
 
 
 def review_json(rv: Review) -> str:
-    return "".join(json_pieces(review_dict(rv)))
+    return b"".join(json_pieces(review_dict(rv))).decode("utf-8")
 
 
 PIECE_ITEMS = 2000        # list items encoded at a time
+# numpy scalars and arrays as numbers; a value that is not finite becomes null (the document's values are
+# already None there: _num, round_sig)
+_OPTIONS = orjson.OPT_SERIALIZE_NUMPY
 
 
-def _encode(x) -> str:
-    return json.dumps(x, ensure_ascii=False, allow_nan=False, separators=(",", ":"))
+def _encode(x) -> bytes:
+    try:
+        return orjson.dumps(x, option=_OPTIONS)
+    except TypeError:       # a text that is not valid Unicode (a lone surrogate): escaped as \udXXX instead
+        return json.dumps(x, allow_nan=False, separators=(",", ":"), default=_item).encode("ascii")
 
 
-def json_pieces(doc: dict) -> Iterator[str]:
-    """The text of ``doc`` as compact JSON, in pieces that join to exactly json.dumps's text.
+def _item(x):
+    if isinstance(x, np.generic):
+        return x.item()
+    raise TypeError(f"{type(x).__name__} is not JSON serializable")
 
-    Why: a large board's document is hundreds of MB; encoded at once it is one string that is copied
-    whole (and, with one non-ASCII character anywhere, stored at two bytes a character) before a byte
-    is written. Its long lists are encoded a few thousand items at a time instead.
+
+def json_pieces(doc: dict) -> Iterator[bytes]:
+    """The UTF-8 text of ``doc`` as compact JSON, in pieces that join to exactly what encoding it at once gives.
+
+    Why pieces: a large board's document is hundreds of MB; its long lists are encoded a few thousand
+    items at a time, so that no single copy of the whole text is held before a byte is written.
+    Why orjson: on the 100 000-segment board it encodes the document in a quarter of the standard
+    library's time (DEVELOPERS.md); keys, values and their order are the same.
     """
-    yield "{"
+    yield b"{"
     for k, (key, value) in enumerate(doc.items()):
-        yield ("," if k else "") + _encode(key) + ":"
+        yield (b"," if k else b"") + _encode(key) + b":"
         if isinstance(value, list) and len(value) > PIECE_ITEMS:
-            yield "["
+            yield b"["
             for start in range(0, len(value), PIECE_ITEMS):
-                yield ("," if start else "") + _encode(value[start:start + PIECE_ITEMS])[1:-1]
-            yield "]"
+                yield (b"," if start else b"") + _encode(value[start:start + PIECE_ITEMS])[1:-1]
+            yield b"]"
         else:
             yield _encode(value)
-    yield "}"
+    yield b"}"
 
 
 def write_review_json(path, rv: Review) -> None:
     """The review's JSON into ``path`` (the caller makes the write atomic)."""
-    with open(path, "w", encoding="utf-8") as f:
+    with open(path, "wb") as f:
         for piece in json_pieces(review_dict(rv)):
             f.write(piece)

@@ -100,7 +100,8 @@ class Book:
         for sh in self._tables:              # style indices are fixed now, before XlsxWriter writes styles
             sh.register_styles()
         self.wb.close()
-        bodies = {f"xl/worksheets/sheet{sh.ws.index + 1}.xml": sh.body() for sh in self._tables if sh.buffered}
+        bodies = {f"xl/worksheets/sheet{sh.ws.index + 1}.xml": (*sh.body(), sh.rows * sh.n)
+                  for sh in self._tables if sh.buffered}
         if bodies:
             splice_rows(self.path, bodies)
         # the book and its table sheets refer to each other: let the buffered rows (a large board's

@@ -262,6 +262,23 @@ def writer_comparison(csv_path: Path, stackup: Path, d: Path) -> None:
         print(f"  {name:<28} {c}  ({c.cpu / cells * 1e6:.2f} us CPU per cell)")
 
 
+def json_encoder_comparison(rv) -> None:
+    """The standard library's json against orjson on the same document (the review's, built once)."""
+    import json
+
+    import orjson
+
+    from sicheck.reports.json_report import review_dict
+    doc = review_dict(rv)
+    print("JSON encoders on the review's document:")
+    for name, fn in (("json (standard library, C encoder)",
+                      lambda: json.dumps(doc, ensure_ascii=False, allow_nan=False, separators=(",", ":"))),
+                     ("orjson", lambda: orjson.dumps(doc, option=orjson.OPT_SERIALIZE_NUMPY))):
+        with Clock() as c:
+            text = fn()
+        print(f"  {name:<36} {c}  ({len(text) / 1e6:.0f} MB of text)")
+
+
 def version_time() -> float:
     exe = Path(sys.executable).parent / "sicheck"
     cmd = [str(exe), "--version"] if exe.exists() else [sys.executable, "-m", "sicheck", "--version"]
@@ -300,6 +317,7 @@ def main() -> None:
         print("  output stage (workbook + JSON), CPU including the forked writer:")
         for k, c in output_stage(rv, d).items():
             print(f"    {k:<44} {c} -> {c.wall / base.wall:.2f}x floor wall, {c.cpu / base.cpu:.2f}x floor CPU")
+        json_encoder_comparison(rv)
         del rv
         if a.waveforms:
             full = full_review(csv_path, stackup, d / "review.xlsx", d / "review.json")
