@@ -16,7 +16,7 @@ from hypothesis import strategies as hst
 from sicheck.physics import chain_batch, termination_choice
 from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, per_delay, per_delay_lines
 from sicheck.physics.chain_batch import plain_chain, samples_needed, simulate_many
-from sicheck.physics.line_network import Network, Series, Simulation
+from sicheck.physics.line_network import Network, Series, Simulation, settle_window
 from sicheck.physics.termination_choice import Limits, choose, choose_many
 from sicheck.physics.transient import Load, LoadSet
 from ngspice_ref import needs_ngspice
@@ -214,3 +214,26 @@ def test_sections_of_one_cross_section_share_their_shape():
                               t_end=3 * sum(td) + 4e-9))
     for sim, got in zip(sims, simulate_many(sims)):
         assert_same(got, sim.run(), sim.swing)
+
+
+def test_what_is_kept_of_a_network_follows_its_edges():
+    # The engines keep what they take from a network's edges alone (Network.memo: the chain's runs, DC resistance
+    # and front, settle_window's part) for the net's later stages. A network grown after a simulation, and a
+    # window asked for another edge, must give what a network built anew gives.
+    lo = LineLoss(f_ref=1e9, r_ac=2.0, tan_delta=0.02, r_dc=0.4)
+    net, end = Network.chain([Line(50.0, 0.4e-9, lo)])
+    loads = LoadSet.of([Load(cap=2e-12)])
+    simulate_many([Simulation(net, [end], 3.3, 0.3e-9, np.array([20.0]), {end: loads})])
+    far = net.add(end, Line(70.0, 0.3e-9))
+    fresh, fresh_end = Network.chain([Line(50.0, 0.4e-9, lo), Line(70.0, 0.3e-9)])
+    rs = np.array([20.0, 45.0])
+    got = simulate_many([Simulation(net, [far], 3.3, 0.3e-9, rs, {far: loads})])[0][far]
+    ref = simulate_many([Simulation(fresh, [fresh_end], 3.3, 0.3e-9, rs, {fresh_end: loads})])[0][fresh_end]
+    for a, b in zip(got, ref):
+        assert np.array_equal(a.v_rx, b.v_rx) and a.metrics == b.metrics
+    sim = Simulation(net, [far], 3.3, 0.3e-9, rs, {far: loads})
+    assert np.array_equal(sim.estimated_window, settle_window(fresh, rs, {fresh_end: loads}, 0.3e-9 / 0.8))
+    for ramp in (0.3e-9, 1.1e-9, 0.3e-9):
+        assert np.array_equal(settle_window(net, rs, {far: loads}, ramp),
+                              settle_window(Network.chain([Line(50.0, 0.4e-9, lo), Line(70.0, 0.3e-9)])[0], rs,
+                                            {far: loads}, ramp))

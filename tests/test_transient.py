@@ -426,3 +426,50 @@ def test_trapped_ringing_gets_a_longer_window():
     # a window the caller gives is kept as given (up to the record ladder's rounding, at most 25 %)
     short = simulate_chain(lines, 3.3, 5e-11, 5.0, Load(cap=0.0), t_end=20e-9)
     assert 20e-9 <= short.t[-1] < 1.25 * 20e-9 and not short.metrics["settled_in_window"]
+
+
+def _metrics_one_by_one(t, v, vf, ramp):
+    """The metrics' definitions (README) written out sample by sample on plain floats: the reference for
+    metrics_batch, which works on whole records at once."""
+    n = len(v)
+    nan = float("nan")
+    band = 0.05 * abs(vf)
+    above = [k for k in range(n) if v[k] >= vf]
+    outside = [k for k in range(n) if abs(v[k] - vf) > band]
+    settle = 0.0
+    if outside:
+        last = outside[-1]
+        nxt = min(last + 1, n - 1)
+        e0, e1 = v[last] - vf, v[nxt] - vf
+        edge = band if e0 > 0 else -band
+        frac = min(max((e0 - edge) / (e0 - e1) if e1 != e0 else 0.0, 0.0), 1.0)
+        settle = t[last] + (frac * (t[nxt] - t[last]) if nxt > last else 0.0)
+    half = 0.5 * vf
+    cross = [k for k in range(n) if v[k] >= half]
+    flight = nan
+    if cross and cross[0] > 0:
+        k = cross[0]
+        flight = t[k - 1] + (half - v[k - 1]) / (v[k] - v[k - 1]) * (t[k] - t[k - 1]) - ramp / 2.0
+    ringback = max(0.0, vf - min(v[above[0]:])) if above else 0.0
+    return {"v_final": vf, "v_max": max(v), "overshoot_pct": (max(v) - vf) / vf * 100.0 if vf != 0 else nan,
+            "ringback": ringback, "ringback_pct": ringback / abs(vf) * 100.0 if vf else nan,
+            "settle_ns": settle * 1e9, "flight_ns": flight * 1e9,
+            "settled_in_window": not outside or outside[-1] < n - 2, "window_ns": t[-1] * 1e9}
+
+
+@settings(max_examples=60, deadline=None)
+@given(hst.integers(1, 40).flatmap(lambda n: hst.lists(
+    hst.tuples(hst.lists(hst.sampled_from([0.0, 0.5, 0.95, 1.0, 1.04, 1.06, 1.3, -0.2]) | hst.floats(-1.0, 2.0),
+                         min_size=n, max_size=n),
+               hst.sampled_from([1.0, 0.0, -1.0, 3.3])), min_size=1, max_size=5)))
+def test_metrics_of_many_records_equal_their_definitions(recs):
+    # ties with the final level, records never above it, always outside the band, one sample long, v_final 0
+    from sicheck.physics.transient import metrics_batch
+    v = np.array([r for r, _ in recs], dtype=float)
+    vf = np.array([f for _, f in recs])
+    t = np.arange(v.shape[1]) * 1e-11
+    for got, (rec, f) in zip(metrics_batch(t, v, vf, 2e-11), recs):
+        want = _metrics_one_by_one(t.tolist(), rec, f, 2e-11)
+        assert got.keys() == want.keys()
+        for k in want:
+            assert got[k] == want[k] or (want[k] != want[k] and got[k] != got[k]), k

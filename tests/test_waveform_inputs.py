@@ -147,3 +147,22 @@ def test_pool_error_reaches_the_caller(monkeypatch):
     with pytest.raises(TypeError):
         list(wr.run_jobs(iter(jobs), len(jobs)))
     assert not multiprocessing.active_children()
+
+
+def test_a_chunk_leaves_the_garbage_collector_as_it_found_it():
+    # the collector is off while a chunk is simulated (no cycles are made): on again after it, after a bug's
+    # exception too, and left off when the caller had it off
+    import gc
+
+    from sicheck import waveform_review as wr
+    bad = (0, (None,) + _job(0)[1][1:])
+    try:
+        for was_on in (True, False):
+            (gc.enable if was_on else gc.disable)()
+            assert isinstance(wr._choose_chunk([_job(0)])[0][1], wr.Outcome)
+            assert gc.isenabled() == was_on
+            with pytest.raises(TypeError):
+                wr._choose_chunk([bad])
+            assert gc.isenabled() == was_on
+    finally:
+        gc.enable()

@@ -21,28 +21,52 @@ from __future__ import annotations
 import math
 from collections import defaultdict
 from dataclasses import dataclass
-from typing import Sequence
+from typing import NamedTuple, Sequence
 
 import numpy as np
 from scipy import fft as sfft
 
 from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, shape_key, smooth_per_delay_lines
 from sicheck.physics.line_network import (RECORD_FACTOR, SAMPLES_PER_RAMP, SHAPE_NODES, WRAP_DAMPING,
-                                          Simulation, _extend_unsettled, record_ladder, record_size, settle_window)
+                                          Simulation, _extend_unsettled, record_ladder, record_size)
 from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, preview_index, ramp_voltage
 
 
 def plain_chain(sim: Simulation) -> list[Line] | None:
     """The sections of a simulation that is a plain chain (driver, lines, one loaded receiver), else None."""
-    lines = []
-    for k, (p, c, e) in enumerate(sim.net.edges):
-        if p != k or c != k + 1 or not isinstance(e, Line) or isinstance(e.loss, ConstantRG):
-            return None
-        lines.append(e)
-    end = len(lines)
-    if not lines or list(sim.receivers) != [end] or set(sim.loads) != {end}:
+    chain = _chain(sim.net)
+    if chain is None:
         return None
-    return lines
+    end = len(chain.lines)
+    if list(sim.receivers) != [end] or len(sim.loads) != 1 or end not in sim.loads:
+        return None
+    return chain.lines
+
+
+class _Chain(NamedTuple):
+    """What the engine takes from a network that is a chain of lines (shared by a net's stages: net.memo)."""
+
+    lines: list[Line]
+    runs: list                 # the lines as uniform runs (_uniform_runs)
+    r_dc: float                # the lines' DC resistance in series
+    front: float               # when the edge's front can first reach the far end
+
+
+def _chain(net) -> _Chain | None:
+    """The network as a chain of lines driver end first (no RG line), else None; once per network."""
+    if "chain_batch" in net.memo:
+        return net.memo["chain_batch"]
+    lines = []
+    for k, (p, c, e) in enumerate(net.edges):
+        if p != k or c != k + 1 or not isinstance(e, Line) or isinstance(e.loss, ConstantRG):
+            lines = None
+            break
+        lines.append(e)
+    chain = None if not lines else _Chain(lines, _uniform_runs(lines),
+                                          sum(x.loss.r_dc for x in lines if isinstance(x.loss, LineLoss)),
+                                          sum(front_delay(x) for x in lines))
+    net.memo["chain_batch"] = chain
+    return chain
 
 
 def simulate_many(sims: Sequence[Simulation]) -> list:
@@ -51,9 +75,9 @@ def simulate_many(sims: Sequence[Simulation]) -> list:
     groups: dict[tuple, list] = defaultdict(list)       # (ramp, record) -> [(sim, candidate)]
     plan = {}
     for k, sim in enumerate(sims):
-        lines = plain_chain(sim)
+        chain = _chain(sim.net) if plain_chain(sim) is not None else None
         try:
-            p = _prepare(sim, lines) if lines is not None else None
+            p = _prepare(sim, chain) if chain is not None else None
             if p is None or max(p["records"]) > BATCH_MAX_SAMPLES:
                 out[k] = sim.run()
                 continue
@@ -97,21 +121,22 @@ def samples_needed(sim: Simulation) -> int:
         if sim.t_end is not None and np.ndim(sim.t_end) == 0:      # one window for all: one record size
             return len(rs) * int(record_ladder(record_size(float(sim.t_end), dt)) / RECORD_FACTOR)
         ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), rs.shape) if sim.t_end is not None
-                else settle_window(sim.net, rs, sim.loads, ramp))
+                else sim.estimated_window)
         return sum(int(record_ladder(record_size(te, dt)) / RECORD_FACTOR) for te in ends)
     except (ValueError, ZeroDivisionError):
         return 0
 
 
-def _prepare(sim: Simulation, lines: list[Line]) -> dict:
+def _prepare(sim: Simulation, chain: _Chain) -> dict:
     """Checks, time step, record sizes and the DC levels of one simulation (as simulate_network does)."""
     if sim.rise <= 0 or sim.swing == 0:
         raise ValueError("the rise time must be positive and the swing non-zero")
     rs = np.atleast_1d(np.asarray(sim.r_source, dtype=float))
-    if np.any(~(rs > 0)):
+    rs_l = rs.tolist()
+    if not all(r > 0 for r in rs_l):
         raise ValueError("the driver resistance must be above zero (an ideal source cannot be simulated)")
     m = len(rs)
-    end = len(lines)
+    end = len(chain.lines)
     ls = sim.loads[end]
     if len(ls) not in (1, m):
         raise ValueError("every LoadSet needs one row or one row per candidate")
@@ -124,22 +149,23 @@ def _prepare(sim: Simulation, lines: list[Line]) -> dict:
         records = [record_ladder(record_size(float(sim.t_end), dt))] * m
     else:
         ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), (m,)) if sim.t_end is not None
-                else settle_window(sim.net, rs, sim.loads, ramp))
+                else sim.estimated_window)
         records = [record_ladder(record_size(te, dt)) for te in ends]
     # DC: the driver, the lines' DC resistance in series, the load's conductance to its voltage (on plain
     # floats: a handful of candidates, and numpy's per-call cost on arrays this small is most of the time)
-    r_line = sum(x.loss.r_dc for x in lines if isinstance(x.loss, LineLoss))
-    v_low, v_high = [], []
-    for r, r_end, v_end, c_end in zip(rs.tolist(), ls.end_ohm.tolist(), ls.end_volts.tolist(), ls.end_cap.tolist()):
-        g_src = 1.0 / (r + r_line)
+    v_low, v_high, keys = [], [], []
+    for r, cap, r_end, v_end, c_end in zip(rs_l, ls.cap.tolist(), ls.end_ohm.tolist(), ls.end_volts.tolist(),
+                                           ls.end_cap.tolist()):
+        g_src = 1.0 / (r + chain.r_dc)
         if not r_end > 0 and r_end == r_end:
             raise ValueError("a termination resistance must be above zero")
         g_load = 1.0 / r_end if r_end == r_end and c_end != c_end else 0.0      # a plain resistor (not an RC)
         v_t = v_end if g_load > 0 else 0.0
         v_low.append(g_load * v_t / (g_src + g_load))
         v_high.append((g_src * sim.swing + g_load * v_t) / (g_src + g_load))
-    return {"lines": lines, "end": end, "ramp": ramp, "dt": dt, "ends": ends, "records": records, "r_source": rs,
-            "loads": ls, "v_low": v_low, "v_high": v_high, "front": sum(front_delay(x) for x in lines)}
+        keys.append((cap, _no_nan(r_end), _no_nan(c_end)))
+    return {"chain": chain, "end": end, "ramp": ramp, "dt": dt, "ends": ends, "records": records, "r_source": rs,
+            "rs": rs_l, "load_keys": keys, "v_low": v_low, "v_high": v_high}
 
 
 GROUP_BINS = 1 << 17     # complex bins per batch: 2 MB arrays stay in cache (7 % faster than 8 MB ones)
@@ -150,11 +176,11 @@ def _batches(members, plan, k_bins):
     """Members in batches that hold at most GROUP_BINS complex bins (candidates and the lines they need)."""
     batch, size, seen = [], 0, set()
     for k, i in members:
-        cost = k_bins * (1 + (0 if k in seen else len(plan[k]["lines"])))
+        cost = k_bins * (1 + (0 if k in seen else len(plan[k]["chain"].lines)))
         if batch and size + cost > GROUP_BINS:
             yield batch
             batch, size, seen = [], 0, set()
-            cost = k_bins * (1 + len(plan[k]["lines"]))
+            cost = k_bins * (1 + len(plan[k]["chain"].lines))
         batch.append((k, i))
         seen.add(k)
         size += cost
@@ -182,16 +208,15 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
         distinct: dict = {}
         of_load = np.empty(len(batch), dtype=int)
         for j, (k, i) in enumerate(batch):
-            ls = plan[k]["loads"]
-            key = (k, float(ls.cap[i]), _no_nan(ls.end_ohm[i]), _no_nan(ls.end_cap[i]))
-            of_load[j] = distinct.setdefault(key, len(distinct))
+            of_load[j] = distinct.setdefault((k, *plan[k]["load_keys"][i]), len(distinct))
         owner = np.array([where[key[0]] for key in distinct])
         loads = LoadSet(np.array([key[1] for key in distinct]), np.array([_nan(key[2]) for key in distinct]),
                         np.zeros(len(distinct)), np.array([_nan(key[3]) for key in distinct]))
-        p, q, at, g, rank = _loaded_chains([plan[k]["lines"] for k in nets], owner, _admittance(loads, s), s, shapes)
+        p, q, at, g, rank = _loaded_chains([plan[k]["chain"].runs for k in nets], owner, _admittance(loads, s), s,
+                                           shapes)
         net_of = rank[[where[k] for k, _ in batch]]           # each candidate's row in g
         u = at[of_load]                                        # and in p, q
-        rs = np.array([plan[k]["r_source"][i] for k, i in batch])
+        rs = np.array([plan[k]["rs"][i] for k, i in batch])
         v_low = np.array([plan[k]["v_low"][i] for k, i in batch])
         v_high = np.array([plan[k]["v_high"][i] for k, i in batch])
         # per net (rows in g's order): the swing, and where the reference taken out starts: when the edge's
@@ -199,7 +224,7 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
         by_rank = np.empty(len(nets), dtype=int)
         by_rank[rank] = np.arange(len(nets))
         swing = np.array([sims[nets[j]].swing for j in by_rank])
-        t0 = np.minimum(np.array([plan[nets[j]]["front"] for j in by_rank]), n_rec * dt / RECORD_FACTOR)
+        t0 = np.minimum(np.array([plan[nets[j]]["chain"].front for j in by_rank]), n_rec * dt / RECORD_FACTOR)
         h0 = (v_high - v_low) / swing[net_of]
         # V_rx / V_source = g / (p + R_s q); the spectra scaled by the ramp and the swing once per net
         g *= ramp_s * swing[:, None]
@@ -215,7 +240,9 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
         spec -= ref_c
         v = sfft.irfft(spec, n=n_rec, axis=-1)[:, :n_keep] * growth
         v += v_low[:, None]
-        v += h0[:, None] * (swing[:, None] * ramp_voltage(t[None, :] - t0[:, None], 1.0, ramp))[net_of]
+        step = (swing[:, None] * ramp_voltage(t[None, :] - t0[:, None], 1.0, ramp))[net_of]
+        step *= h0[:, None]
+        v += step
         rows = metrics_batch(t, v, v_high, ramp)
         shown = v[:, idx]                  # what a chart keeps, for the whole batch at once
         for j, (k, i) in enumerate(batch):
@@ -240,22 +267,22 @@ def _nan(x: float) -> float:
     return math.nan if x < 0 else x
 
 
-def _loaded_chains(chains: list[list[Line]], owner: np.ndarray, y: np.ndarray, s: np.ndarray, shapes: dict):
+def _loaded_chains(chains: list[list[_Run]], owner: np.ndarray, y: np.ndarray, s: np.ndarray, shapes: dict):
     """Each loaded chain as the two entries that matter of its scaled chain matrix applied to its load.
 
-    chains: each net's sections, driver end first; owner[u]: the net of load u; y[u]: its admittance on s.
+    chains: each net's sections as uniform runs (_uniform_runs), driver end first; owner[u]: the net of load u;
+    y[u]: its admittance on s.
     With [[A, B], [C, D]] / g a chain's scaled matrix (line_network.py), returns p = A + B y, q = C + D y per
     load and g per net, so that V_rx / V_source = g / (p + R_s q). Rather than multiplying 2 x 2 matrices,
     the vector [1, y] is carried from the load to the driver through each section, [[1 + E^2, Zc (1 - E^2)],
     [(1 - E^2)/Zc, 1 + E^2]] (scaled by 2E, E = e^(-gl)): with a = P + Zc Q, b = E^2 (P - Zc Q) the next
     vector is (a + b, (a - b)/Zc), three products per section instead of eight.
 
-    Sections of one cross-section end to end are one uniform line (_uniform_runs): a trace list often splits
-    a trace at its corners. Nets are taken longest first and their sections position by position from the far
-    end, so that every step works on a leading slice. Returns (p, q, at, g, rank): p and q in that order (load
+    Sections of one cross-section end to end are one uniform line (_uniform_runs, by the caller): a trace list
+    often splits a trace at its corners. Nets are taken longest first and their sections position by position from
+    the far end, so that every step works on a leading slice. Returns (p, q, at, g, rank): p and q in that order (load
     u is row at[u]), g's row for net j is rank[j]. shapes: K and M per shape key on s, filled in as needed.
     """
-    chains = [_uniform_runs(c) for c in chains]
     order = sorted(range(len(chains)), key=lambda j: -len(chains[j]))
     rank = np.empty(len(chains), dtype=int)
     rank[order] = np.arange(len(chains))
@@ -297,7 +324,7 @@ def _loaded_chains(chains: list[list[Line]], owner: np.ndarray, y: np.ndarray, s
     at[by] = np.arange(len(owner))
     ranks = net_rank[by]
     one_each = len(owner) == len(chains)           # one load per net: its sections are the block's rows as they are
-    p = np.ones((len(owner), len(s)), dtype=complex)
+    p = np.empty((len(owner), len(s)), dtype=complex)
     q = y[by]
     off = 0
     for pos in range(n_max):
@@ -305,10 +332,12 @@ def _loaded_chains(chains: list[list[Line]], owner: np.ndarray, y: np.ndarray, s
         rows = slice(off, off + n_u) if one_each else off + ranks[:n_u]
         off += count[pos]
         pp, qq = p[:n_u], q[:n_u]
+        # at the far end (every load is still on the way) P = 1: the scalar, the same operations as on ones
+        one = 1.0 if pos == 0 else pp
         a = zc[rows] * qq
-        b = pp - a
+        b = one - a
         b *= e2[rows]
-        a += pp
+        a += one
         np.add(a, b, out=pp)
         np.subtract(a, b, out=qq)
         qq *= yc[rows]

@@ -97,6 +97,9 @@ class Network:
     def __init__(self) -> None:
         self.edges: list[tuple[int, int, Line | Series]] = []
         self._folded: dict = {}      # frequency grid -> folded two-ports (reused across candidate stages)
+        # what is worked out from the edges alone, by name (settle_window's, chain_batch's): a net's candidate
+        # stages are simulated one after the other on the same network and share it
+        self.memo: dict = {}
 
     @property
     def size(self) -> int:
@@ -110,6 +113,7 @@ class Network:
         child = self.size
         self.edges.append((parent, child, element))
         self._folded.clear()
+        self.memo.clear()
         return child
 
     @classmethod
@@ -319,12 +323,50 @@ def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSe
     settling band after k = ln(band/4)/ln(gamma) trips (plus 2, at least 4, at most 400). Pass or
     fail needs far less: the settling limit is about one round trip after the flight.
     """
+    total, z_min, z1, before, z_end, stretch = _window_shape(net, ramp)
+    # the first line seen from the driver, and any series resistance before it
+    rs_l = np.asarray(r_source, dtype=float).tolist()
+    for ohm in before:
+        rs_l = [r + ohm for r in rs_l]
+    # the far end: a resistive termination reflects (R - Z)/(R + Z); an open end or a capacitor fully.
+    # Worked out per candidate on plain floats: a net has a handful of candidates, and this runs once per
+    # stage of every net on a board (numpy's per-call cost on arrays this small was most of its time).
+    m = len(rs_l)
+    cols = [(_per_candidate(ls.cap, m), _per_candidate(ls.end_ohm, m), _per_candidate(ls.end_cap, m))
+            for ls in loads.values()]
+    out = []
+    for i, rs in enumerate(rs_l):
+        g_end = 1.0
+        for _, end_ohm, _ in cols:
+            r = end_ohm[i]
+            if r == r:
+                g_end = abs((r - z_end) / (r + z_end))
+        gamma = max(abs((rs - z1) / (rs + z1)) * g_end, 0.3)
+        # (gamma >= 1 cannot decay: the least number of trips, as the logarithm's sign gives)
+        trips = 4.0 if gamma >= 1.0 else min(max(math.log(SETTLE_BAND / 4.0) / math.log(gamma) + 2.0, 4.0), 400.0)
+        tau = tau_end = 0.0
+        for cap, end_ohm, end_cap in cols:
+            tau = max(tau, cap[i] * min(z_min, rs))
+            # an RC termination's capacitor charges, once the line has settled into a wire, through its
+            # resistor and the driver: e^-6 of the step is a twentieth of the settling band
+            ce, ro = end_cap[i], end_ohm[i]
+            if ce == ce and ro == ro:
+                tau_end = max(tau_end, ce * (ro + max(rs, z_min)))
+        out.append(ramp + trips * 2.0 * total * stretch + max(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp)
+    return np.array(out)
+
+
+def _window_shape(net: Network, ramp: float) -> tuple:
+    """What settle_window takes from the network alone: (total delay, least Z, the first line's Z, the series
+    resistances before it, the last line's Z, the stretch for loss); once per network (net.memo)."""
+    got = net.memo.get("settle_window")
+    if got is not None and got[0] == ramp:
+        return got[1]
     lines = net.lines()
     total = sum(x.delay for x in lines) or ramp
     z_min = min((x.z0 for x in lines), default=50.0)
-    # the first line seen from the driver, and any series resistance before it
-    rs_eff = np.asarray(r_source, dtype=float).copy()
     z1 = z_min
+    before = []
     node = 0
     while True:
         nxt = [(c, e) for p, c, e in net.edges if p == node]
@@ -334,44 +376,23 @@ def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSe
         if isinstance(e, Line):
             z1 = e.z0
             break
-        rs_eff = rs_eff + e.ohm
+        before.append(e.ohm)
         node = c
-    # the far end: a resistive termination reflects (R - Z)/(R + Z); an open end or a capacitor fully.
-    # Worked out per candidate on plain floats: a net has a handful of candidates, and this runs once per
-    # stage of every net on a board (numpy's per-call cost on arrays this small was most of its time).
     z_end = _last_line(net).z0 if lines else z_min
-    m = len(rs_eff)
-    rs_l = rs_eff.tolist()
-    cols = [{f: _per_candidate(getattr(ls, f), m) for f in ("cap", "end_ohm", "end_cap")} for ls in loads.values()]
     atten = sum(x.loss.r_ac / (2.0 * x.z0) + math.pi * x.loss.f_ref * x.delay * x.loss.tan_delta
                 for x in lines if isinstance(x.loss, LineLoss))
     # loss adds a slow tail (the skin effect's step response approaches its end like 1/sqrt(t)):
     # more time in proportion to the lines' attenuation at their reference frequencies
-    stretch = 1.0 + min(atten, 2.0)
-    out = []
-    for i, rs in enumerate(rs_l):
-        g_end = 1.0
-        for c in cols:
-            r = c["end_ohm"][i]
-            if r == r:
-                g_end = abs((r - z_end) / (r + z_end))
-        gamma = max(abs((rs - z1) / (rs + z1)) * g_end, 0.3)
-        # (gamma >= 1 cannot decay: the least number of trips, as the logarithm's sign gives)
-        trips = 4.0 if gamma >= 1.0 else min(max(math.log(SETTLE_BAND / 4.0) / math.log(gamma) + 2.0, 4.0), 400.0)
-        tau = tau_end = 0.0
-        for c in cols:
-            tau = max(tau, c["cap"][i] * min(z_min, rs))
-            # an RC termination's capacitor charges, once the line has settled into a wire, through its
-            # resistor and the driver: e^-6 of the step is a twentieth of the settling band
-            ce, ro = c["end_cap"][i], c["end_ohm"][i]
-            if ce == ce and ro == ro:
-                tau_end = max(tau_end, ce * (ro + max(rs, z_min)))
-        out.append(ramp + trips * 2.0 * total * stretch + max(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp)
-    return np.array(out)
+    shape = (total, z_min, z1, tuple(before), z_end, 1.0 + min(atten, 2.0))
+    net.memo["settle_window"] = (ramp, shape)
+    return shape
 
 
 def _per_candidate(values, m: int) -> list[float]:
-    v = np.asarray(values, dtype=float).reshape(-1).tolist()
+    if isinstance(values, np.ndarray) and values.ndim == 1 and values.dtype == np.float64:
+        v = values.tolist()          # (the usual case, without numpy's conversions)
+    else:
+        v = np.asarray(values, dtype=float).reshape(-1).tolist()
     return v * m if len(v) == 1 else v
 
 
@@ -541,6 +562,12 @@ class Simulation:
     r_source: np.ndarray
     loads: dict
     t_end: float | None = None
+
+    @functools.cached_property
+    def estimated_window(self) -> np.ndarray:
+        """settle_window for the candidates (a batching engine asks for it more than once: worked out once)."""
+        return settle_window(self.net, np.atleast_1d(np.asarray(self.r_source, dtype=float)), self.loads,
+                             self.rise * RAMP_PER_RISE)
 
     def run(self) -> dict[int, list[Waveform]]:
         return simulate_network(self.net, self.receivers, self.swing, self.rise, self.r_source, self.loads,

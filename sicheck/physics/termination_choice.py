@@ -96,9 +96,8 @@ def _settle_limit_ns(td_total: float, rise: float, limits: Limits) -> float:
     return (td_total + rise / 0.8 + limits.settle_rise_times * rise) * 1e9
 
 
-def _evaluate(c: Candidate, td_total: float, rise: float, limits: Limits) -> None:
+def _evaluate(c: Candidate, settle_limit: float, limits: Limits) -> None:
     m = c.metrics
-    settle_limit = _settle_limit_ns(td_total, rise, limits)
     v = []
     if m["overshoot_pct"] > limits.max_overshoot_pct:
         v.append(f"overshoot {m['overshoot_pct']:.0f} % > {limits.max_overshoot_pct:g} %")
@@ -245,44 +244,50 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
     at = "the receiver" if len(receivers) == 1 else f"'{names[0]}', the far end of the main path"
     rx_at = "the receiver" if len(receivers) == 1 else f"the receiver '{names[0]}' (far end of the main path)"
     td_total = float(sum(td[i] for i in path))
+    settle_limit = _settle_limit_ns(td_total, rise, limits)
     cands: list[Candidate] = []
 
     ramp = rise * RAMP_PER_RISE
 
-    def loads_of(specs):
-        return {**others, end: LoadSet.of([sp[3] for sp in specs])}
+    def inputs(specs):
+        """The candidates' driver resistances and loads, as a Simulation takes them."""
+        return np.array([sp[2] for sp in specs], dtype=float), {**others, end: LoadSet.of([sp[3] for sp in specs])}
 
-    def window(specs):
-        rs = np.array([sp[2] for sp in specs], dtype=float)
-        return float(settle_window(net, rs, loads_of(specs), ramp).max())
+    def window(rs, loads):
+        return float(settle_window(net, rs, loads, ramp).max())
 
-    def stage(specs, t_end=None):
-        """specs: (scheme, text, r_source, Load, power, extra fields); simulated together."""
+    def stage(specs, t_end=None, given=None):
+        """specs: (scheme, text, r_source, Load, power, extra fields); simulated together. given: inputs(specs)."""
         if not specs:
             return []
-        rs = np.array([sp[2] for sp in specs], dtype=float)
-        res = yield Simulation(net, rx_nodes, swing, rise, rs, loads_of(specs), t_end)
+        rs, loads = inputs(specs) if given is None else given
+        res = yield Simulation(net, rx_nodes, swing, rise, rs, loads, t_end)
         out = []
         for k, sp in enumerate(specs):
             per = []
             for node in rx_nodes:
                 c = Candidate(sp[0], sp[1], res[node][k].metrics, sp[4], **sp[5])
-                _evaluate(c, td_total, rise, limits)
+                _evaluate(c, settle_limit, limits)
                 per.append(c)
-            w = max(range(len(per)), key=lambda j: _badness(per[j]))
-            c = per[w]
-            c.worst = w
-            c.meets = all(p.meets for p in per)
-            if len(per) > 1:
+            if len(per) == 1:
+                c = per[0]
+                c.receivers = [{"receiver": names[0], "metrics": c.metrics, "meets": c.meets,
+                                "violations": list(c.violations)}]
+            else:
+                w = max(range(len(per)), key=lambda j: _badness(per[j]))
+                c = per[w]
+                c.worst = w
+                c.meets = all(p.meets for p in per)
                 c.violations = [f"at {names[j]}: {v}" for j, p in enumerate(per) for v in p.violations]
-            c.receivers = [{"receiver": names[j], "metrics": p.metrics, "meets": p.meets,
-                            "violations": list(p.violations)} for j, p in enumerate(per)]
+                c.receivers = [{"receiver": names[j], "metrics": p.metrics, "meets": p.meets,
+                                "violations": list(p.violations)} for j, p in enumerate(per)]
             if keep_waves:
-                c.wave = _decimate(res[rx_nodes[w]][k])
+                c.wave = _decimate(res[rx_nodes[c.worst]][k])
             out.append(c)
         return out
 
-    base = ("none", "unterminated", driver_ohm, Load(cap=load_cap), 0.0, {})
+    pin = Load(cap=load_cap)          # the receiver as it is (frozen: one object for every candidate with it)
+    base = ("none", "unterminated", driver_ohm, pin, 0.0, {})
     if on_die is not None:
         r_od, v_od, od_text = on_die
         others = {far[i]: LoadSet.of([Load(cap=c, end_ohm=r_od, end_volts=v_od)]) for i, c, _ in receivers[1:]}
@@ -307,7 +312,7 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
 
     z_drv, z_end = float(z[driver_end]), float(z[main_line])
     ideal = z_drv - driver_ohm
-    series = [("series", f"{r:g} ohm in series at the driver", driver_ohm + r, Load(cap=load_cap), 0.0,
+    series = [("series", f"{r:g} ohm in series at the driver", driver_ohm + r, pin, 0.0,
                {"series_ohm": r}) for r in (_neighbours(ideal) if ideal >= 1.0 else [])]
     vt = swing / 2.0
     r2 = eseries.nearest(2.0 * z_end)
@@ -318,9 +323,16 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
             + [("thevenin", f"{r2:g} ohm to the supply and {r2:g} ohm to ground at {at}", driver_ohm,
                 Load(cap=load_cap, end_ohm=req, end_volts=veq), _power_thevenin(swing, driver_ohm, r2, r2),
                 {"end_ohm": r2})])
-    # the first and last stages share one window, so the last reuses the first's line two-ports
-    shared = window([base] + series + ends)
-    first = yield from stage([base] + series, shared)
+    # the first and last stages share one window, so the last reuses the first's line two-ports; their inputs
+    # are made once, each stage simulating its rows
+    rs_all, loads_all = inputs([base] + series + ends)
+    shared = window(rs_all, loads_all)
+
+    def rows(sl):
+        return rs_all[sl], {node: ls.take(sl) if node == end else ls for node, ls in loads_all.items()}
+
+    n_first = 1 + len(series)
+    first = yield from stage([base] + series, shared, rows(slice(0, n_first)))
     none = first[0]
     if none.meets:
         return none, none, [none]
@@ -335,11 +347,12 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
     # An RC's capacitor charges for several of its time constants; pass or fail is decided by the
     # settling limit, so the window stops at four times it (a later settling is reported as not
     # settled within the window) and both values share it.
-    rc = yield from stage(rc_specs, min(window(rc_specs), 4e-9 * _settle_limit_ns(td_total, rise, limits)))
+    rc_in = inputs(rc_specs)
+    rc = yield from stage(rc_specs, min(window(*rc_in), 4e-9 * settle_limit), rc_in)
     cands += rc
     if any(c.meets for c in rc):
         return none, _pick(cands, none), cands
-    cands += yield from stage(ends, shared)
+    cands += yield from stage(ends, shared, rows(slice(n_first, None)))
     return none, _pick(cands, none), cands
 
 

@@ -113,23 +113,24 @@ def metrics_batch(t: np.ndarray, v: np.ndarray, v_final, ramp: float) -> list[di
     v = np.atleast_2d(np.asarray(v, dtype=float))
     vf = np.broadcast_to(np.asarray(v_final, dtype=float).reshape(-1), (v.shape[0],)).copy()
     m, n = v.shape
-    idx = np.arange(n)
     rows = np.arange(m)
     v_max = v.max(axis=1)
     with np.errstate(invalid="ignore", divide="ignore"):
         over = np.where(vf != 0, (v_max - vf) / vf * 100.0, np.nan)
+    # (argmax gives the first sample where a test holds, and 0 where none does: that sample then says
+    # whether any does, without another pass over the record)
     above = v >= vf[:, None]
-    has_above = above.any(axis=1)
     first = above.argmax(axis=1)
-    after_min = np.where(idx[None, :] >= first[:, None], v, np.inf).min(axis=1)
+    has_above = above[rows, first]
+    after_min = _row_tail_min(v, first)
     ringback = np.where(has_above, np.maximum(0.0, vf - after_min), 0.0)
     band = SETTLE_BAND * np.abs(vf)
-    err = v - vf[:, None]
-    outside = np.abs(err) > band[:, None]
-    any_out = outside.any(axis=1)
+    dist = v - vf[:, None]
+    outside = np.abs(dist, out=dist) > band[:, None]
     last = n - 1 - outside[:, ::-1].argmax(axis=1)
+    any_out = outside[rows, last]
     nxt = np.minimum(last + 1, n - 1)
-    e0, e1 = err[rows, last], err[rows, nxt]
+    e0, e1 = v[rows, last] - vf, v[rows, nxt] - vf
     edge = np.where(e0 > 0, band, -band)
     with np.errstate(invalid="ignore", divide="ignore"):
         frac = np.clip(np.where(e1 != e0, (e0 - edge) / (e0 - e1), 0.0), 0.0, 1.0)
@@ -137,27 +138,33 @@ def metrics_batch(t: np.ndarray, v: np.ndarray, v_final, ramp: float) -> list[di
     half = 0.5 * vf
     cross = v >= half[:, None]
     ci = cross.argmax(axis=1)
-    ok = cross.any(axis=1) & (ci > 0)
+    ok = cross[rows, ci] & (ci > 0)
     cp = np.maximum(ci - 1, 0)
     va, vb = v[rows, cp], v[rows, ci]
     with np.errstate(invalid="ignore", divide="ignore"):
         t_half = t[cp] + (half - va) / (vb - va) * (t[ci] - t[cp])
     flight = np.where(ok, t_half - ramp / 2.0, np.nan)
     settled = ~any_out | (last < n - 2)
-    out = []
-    for k in range(m):
-        out.append({
-            "v_final": float(vf[k]),
-            "v_max": float(v_max[k]),
-            "overshoot_pct": float(over[k]),
-            "ringback": float(ringback[k]),
-            "ringback_pct": float(ringback[k] / abs(vf[k]) * 100.0) if vf[k] else float("nan"),
-            "settle_ns": float(settle[k]) * 1e9,
-            "flight_ns": float(flight[k]) * 1e9,
-            "settled_in_window": bool(settled[k]),
-            "window_ns": float(t[-1]) * 1e9,
-        })
-    return out
+    # the rows' dicts from plain floats (the same values: IEEE arithmetic either way), not numpy scalars
+    window_ns = float(t[-1]) * 1e9
+    nan = float("nan")
+    return [{"v_final": f, "v_max": top, "overshoot_pct": o, "ringback": r,
+             "ringback_pct": r / abs(f) * 100.0 if f else nan, "settle_ns": st * 1e9, "flight_ns": fl * 1e9,
+             "settled_in_window": done, "window_ns": window_ns}
+            for f, top, o, r, st, fl, done in zip(vf.tolist(), v_max.tolist(), over.tolist(), ringback.tolist(),
+                                                  settle.tolist(), flight.tolist(), settled.tolist())]
+
+
+def _row_tail_min(v: np.ndarray, start: np.ndarray) -> np.ndarray:
+    """Each row's least value from its column start[row] on (one pass over the samples)."""
+    m, n = v.shape
+    if m == 0:
+        return np.zeros(0)
+    # one flat reduction over [row start, row end) for every row; the pieces between rows are dropped
+    bounds = np.empty(2 * m - 1, dtype=np.intp)
+    bounds[0::2] = np.arange(m) * n + start
+    bounds[1::2] = np.arange(1, m) * n
+    return np.minimum.reduceat(v.reshape(-1), bounds)[0::2]
 
 
 def receiver_metrics(t: np.ndarray, v: np.ndarray, v_final: float, ramp: float) -> dict:
