@@ -147,8 +147,8 @@ def _text_column(letter: str, j: int, texts: list[str], rs: list[str], overs: tu
 
 
 _DIMENSION = re.compile(rb'<dimension ref="[^"]*"/>')
-BODY_LEVEL = 1       # sheet bodies: large and repetitive; level 1 is about 3x faster than 6 for a file ~12 % larger
-PARTS_LEVEL = 6      # the package's other parts (styles, workbook, small sheets)
+BODY_LEVEL = 1       # sheet bodies (zip_archive.deflate's levels, 0-3): large and repetitive, speed first
+PARTS_LEVEL = 3      # the package's other parts (styles, workbook, small sheets): small, the smallest file
 FORK_MIN_CELLS = 400_000     # below this, the bodies are quicker to write here than to hand to a process
 
 
