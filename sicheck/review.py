@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from functools import cached_property
+from operator import attrgetter
 from typing import Callable
 
 import numpy as np
@@ -208,7 +209,7 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
         mirror["mirrored"] = True
     all_seg = pd.concat([seg, mirror], ignore_index=True) if len(mirror) else seg
     vias = _add_vias(all_seg, seg, stackup, topology)
-    nets = _net_table(all_seg, rules)
+    nets = _net_table(all_seg, rules, advise=False)     # the advice columns: worked out meanwhile (below)
     from sicheck.on_die import mark_nets
     nets = mark_nets(nets, rules)     # receivers terminated on the die: no external part proposed
     nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
@@ -222,41 +223,56 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
                              for n, k in zip(net_names, nets["segments"].to_numpy().tolist())]
     nets["topology"] = [_topology_summary(topology[n]) if n in topology else None for n in net_names]
     early: dict = {}
+    prepared: dict = {}
     crosstalk_cols: dict = {}
+    advice_cols: dict = {}
 
     def meanwhile():
-        """What needs no waveform: the crosstalk figures and the checks that do not read the waveform stage's
-        columns, worked out while its processes run (the second core is otherwise idle at the checks)."""
+        """What needs no waveform: the first-order advice, the crosstalk figures and the checks that do not read
+        the waveform stage's columns, worked out while its processes run (the second core is otherwise idle)."""
+        advice_cols.update(_advice_columns(nets, rules))
         if xtalk is not None and couplings is not None:
             xtr.attach_couplings(xtalk, couplings, seg, dict(zip(nets["net"], nets["rise_time"])))
         figures = pd.DataFrame({"net": nets["net"].to_numpy(object)})
         xtr.add_net_crosstalk(figures, all_seg, xtalk)
         crosstalk_cols.update({c: figures[c].to_numpy() for c in figures.columns if c != "net"})
         before = nets.copy()
-        for c, values in crosstalk_cols.items():
+        for c, values in [*advice_cols.items(), *crosstalk_cols.items()]:
             before[c] = values
         if waveforms:
             xtr.add_waves(xtalk, seg, rules)
-        early.update(run_early(ReviewContext(segments=seg, nets=before, rules=rules, stackup=stackup,
-                                             cross_sections=list(zip(xs, results)), topology=topology,
-                                             crosstalk=xtalk, vias=vias)))
+        ctx = ReviewContext(segments=seg, nets=before, rules=rules, stackup=stackup,
+                            cross_sections=list(zip(xs, results)), topology=topology, crosstalk=xtalk, vias=vias)
+        early.update(run_early(ctx))
+        prepared.update(ctx.prepared)       # the waveform checks' share that needs no waveform
 
     waves: dict = {}
     if waveforms:
         from sicheck.waveform_review import simulate_nets
         nets, waves = simulate_nets(all_seg, nets, rules, xs, topology, meanwhile=meanwhile)
-    if not early:           # no waveform stage (or it had nothing to hand out meanwhile)
+    if not advice_cols:     # no waveform stage (or it had nothing to hand out meanwhile)
         meanwhile()
+    for c, values in advice_cols.items():         # in their placeholders' places
+        nets[c] = values
     for c, values in crosstalk_cols.items():      # after the waveform columns, as they always were
         nets[c] = values
     ctx = ReviewContext(segments=seg, nets=nets, rules=rules, stackup=stackup,
                         cross_sections=list(zip(xs, results)), topology=topology, crosstalk=xtalk,
-                        vias=vias)
-    findings = run_checks(ctx, ready=early)
-    findings.sort(key=lambda f: (SEVERITY_ORDER[f.severity], f.rule, f.net, f.layer))
+                        vias=vias, prepared=prepared)
+    findings = _by_severity_rule_net(run_checks(ctx, ready=early))
     cs = [(uniques[i][0], xs[i], results[i]) for i in range(len(xs))]
     return Review(segments=seg, nets=nets, findings=findings, stackup=stackup, rules=rules,
                   traces_source=src, solver=solver_name, cross_sections=cs, waves=waves, crosstalk=xtalk)
+
+
+def _by_severity_rule_net(findings: list[Finding]) -> list[Finding]:
+    """Sorted by (severity in SEVERITY_ORDER, rule, net, layer), equal ones in their order: each severity's
+    findings apart, each sorted by a key made in C (a large board has ~100 000 findings)."""
+    apart: dict[str, list[Finding]] = {s: [] for s in SEVERITY_ORDER}
+    for f in findings:
+        apart[f.severity].append(f)
+    by = attrgetter("rule", "net", "layer")
+    return [f for s in sorted(apart, key=SEVERITY_ORDER.get) for f in sorted(apart[s], key=by)]
 
 
 def _add_vias(all_seg: pd.DataFrame, seg: pd.DataFrame, stackup: Stackup, topology: dict) -> pd.DataFrame:
@@ -413,7 +429,7 @@ def _layer_paths(seg: pd.DataFrame, nets: pd.Index) -> np.ndarray:
     return np.array([paths[n] for n in nets.to_numpy(object).tolist()], dtype=object)
 
 
-def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
+def _net_table(seg: pd.DataFrame, rules: Rules, advise: bool = True) -> pd.DataFrame:
     g = seg.groupby("net", sort=False)
     first = g[["net_class", "pair", "freq", "driver_ohm", "load_pf", "mirrored", "zdiff", "z0", "zodd"]].first()
     # length, delay and loss along the main path (driver to the farthest receiver); all rows when not marked
@@ -455,6 +471,16 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     nets["wavelength_at_knee"] = velocity / nets["knee_hz"]
     nets["lumped_limit_length"] = rules.lumped_max_td_over_tr * nets["rise_time"] * velocity
     nets["critical_length"] = rules.required_min_td_over_tr * nets["rise_time"] * velocity
+    # the first-order advice; when not `advise`, placeholders that the caller fills in (_advice_columns)
+    series, advice, short = _advice(nets) if advise else ([None] * len(nets), [""] * len(nets), [""] * len(nets))
+    nets["series_ohm"] = series
+    nets["advice"] = advice
+    nets["proposal"] = short
+    return nets
+
+
+def _advice(nets: pd.DataFrame) -> tuple[list, list, list]:
+    """Series value, advice and proposal per net (columns series_ohm, advice, proposal)."""
     # a net that needs no termination gets no series value, advice or proposal: only the others are visited
     n = len(nets)
     series, advice, short = [None] * n, [""] * n, [""] * n
@@ -476,7 +502,14 @@ def _net_table(seg: pd.DataFrame, rules: Rules) -> pd.DataFrame:
                      "; alternatives: " + "; ".join(o.text for o in opts[1:]))
         short[i] = (f"{rs:g} ohm series" if rs is not None else
                     ("series Z0-Rdrv, or " if drv is None else "") + f"{opts[1].end_ohm:g} ohm at far end")
-    nets["series_ohm"] = series
-    nets["advice"] = advice
-    nets["proposal"] = short
-    return nets
+    return series, advice, short
+
+
+def _advice_columns(nets: pd.DataFrame, rules: Rules) -> dict[str, pd.Series]:
+    """The columns series_ohm, advice and proposal as _net_table(..., advise=True) and then on_die.mark_nets
+    leave them: the same lists through the same steps."""
+    from sicheck.on_die import mark_nets
+    t = nets[["net_class", "pair", "termination"]].copy()
+    t["series_ohm"], t["advice"], t["proposal"] = _advice(nets)
+    t = mark_nets(t, rules)
+    return {c: t[c] for c in ("series_ohm", "advice", "proposal")}

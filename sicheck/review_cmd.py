@@ -106,6 +106,8 @@ def _write_both(rv, out: Path | None, json_out: Path | None, console, quiet: boo
     from sicheck.reports.forked import forked
     from sicheck.reports.json_report import write_review_json
     from sicheck.reports.workbook import write_workbook
+    if json_out is not None and out is not None:
+        rv.net_counts                   # both reports read it: worked out once, before the JSON's process forks
     with ExitStack() as json_job:
         if json_out is not None:
             tmp = json_job.enter_context(atomic_path(json_out))     # renamed into place once the child is done

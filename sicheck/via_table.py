@@ -205,9 +205,11 @@ def via_table(seg: pd.DataFrame, stackup, topology: dict | None = None) -> pd.Da
     count, delayed = np.concatenate(count)[ranked], np.concatenate(delayed)[ranked]
     i = order[pos]
     # an export count on the component side's own layer joins nothing sicheck knows: no stub, no barrel
-    bare = (how == "export") & (np.char.lower(b.astype(str)) == comp.lower())
+    bare = how == "export"
+    if bare.any():
+        bare[bare] = np.char.lower(b[bare].astype(str)) == comp.lower()
     b = np.where(bare, comp, b)
-    keys, pairs = pd.factorize(pd.MultiIndex.from_arrays([np.where(bare, "", a), np.where(bare, "", b)]))
+    keys, pairs = _pairs(np.where(bare, "", a), np.where(bare, "", b))
     known = [None if x == "" else transition(stackup, x, y) for x, y in pairs]
 
     def prop(name, bare_value, dtype=float):
@@ -223,6 +225,15 @@ def via_table(seg: pd.DataFrame, stackup, topology: dict | None = None) -> pd.Da
         "freq": seg["freq"].to_numpy(float)[i],
         "mirrored": (seg["mirrored"].to_numpy(bool) if "mirrored" in seg.columns else np.zeros(n, bool))[i],
     }, columns=VIA_COLUMNS)
+
+
+def _pairs(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, list[tuple]]:
+    """pd.factorize of the (a, b) pairs (codes, and the pairs in order of first appearance), from each side's
+    few names factorized apart: a pair is one integer, not a tuple of two texts to hash."""
+    ca, ua = pd.factorize(a)
+    cb, ub = pd.factorize(b)
+    codes, uniq = pd.factorize(ca.astype(np.int64) * len(ub) + cb)
+    return codes, [(ua[k // len(ub)], ub[k % len(ub)]) for k in uniq.tolist()]
 
 
 def via_delay_per_row(seg: pd.DataFrame, vias: pd.DataFrame) -> np.ndarray:
@@ -246,7 +257,13 @@ def net_via_summary(nets: pd.DataFrame, vias: pd.DataFrame) -> tuple[np.ndarray,
     """(number of vias, lowest stub resonance in Hz or NaN) per net of ``nets``."""
     if vias.empty:
         return np.zeros(len(nets), int), np.full(len(nets), np.nan)
-    count = vias.groupby("net", sort=False)["count"].sum()         # order: looked up by name below
-    fres = vias[np.isfinite(vias["stub_resonance"])].groupby("net", sort=False)["stub_resonance"].min()
-    n = nets["net"]
-    return n.map(count).fillna(0).to_numpy(int), n.map(fres).to_numpy(float)
+    # each via's net as its position in `nets` (names are unique there): sums and least values by position
+    at = pd.Index(nets["net"].to_numpy(object)).get_indexer(vias["net"].to_numpy(object))
+    known = at >= 0
+    count = np.zeros(len(nets), dtype=np.int64)
+    np.add.at(count, at[known], vias["count"].to_numpy(np.int64)[known])
+    fres = vias["stub_resonance"].to_numpy(float)
+    finite = known & np.isfinite(fres)
+    least = np.full(len(nets), np.inf)
+    np.minimum.at(least, at[finite], fres[finite])
+    return count.astype(int), np.where(np.isinf(least), np.nan, least)

@@ -380,7 +380,9 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
     db_c, db_d = np.nan_to_num(db_c), np.nan_to_num(db_d)
     rise_net = np.array([float(r[6]) for r in sim], dtype=float)
     per_net = zip(
-        ch.split(z_cat), ch.split(td_cat), ch.split(losses_cat), ch.counts.tolist(),
+        # a net's impedances and delays as lists of floats: a job is pickled to a worker, and a small numpy
+        # array costs ten times a list to pickle and to unpickle
+        ch.split(z_cat.tolist()), ch.split(td_cat.tolist()), ch.split(losses_cat), ch.counts.tolist(),
         (ch.sums(td_cat) * 1e12).tolist(), ch.sums(db_all[cat]).tolist(), ch.sums(db_c[cat]).tolist(),
         ch.sums(db_d[cat]).tolist(), (~ch.all(seg_losses.lossless[cat])).tolist(),
         given["driver_ohm"][ch.first].tolist(), given["load_pf"][ch.first].tolist(),
@@ -433,7 +435,7 @@ def simulate_nets(seg: pd.DataFrame, nets: pd.DataFrame, rules: Rules, xs: list 
                     [f"load {rules.load_pf:g} pF"] if any(u["source"].startswith(RULES_SRC) for u in rx_used) else [])
                 tree = (list(topo.parent), rx, de_local)
                 cap, cap_src = rx_used[0]["load_pf"], rx_used[0]["source"]
-                delay_ps = float(td[list(topo.path)].sum() * 1e12)
+                delay_ps = float(np.array(td)[list(topo.path)].sum() * 1e12)
             rise = float(rise_in)
             ramp = ramps.get(rise)
             if ramp is None:

@@ -190,3 +190,20 @@ def test_shared_bodies_balance_the_cells():
     assert _shared({"a": ("", None, 3 * big), "b": ("", None, 2 * big), "c": ("", None, 2 * big)}) in ({"a"},)
     assert _shared({"a": ("", None, 2 * big), "b": ("", None, 2 * big), "c": ("", None, big),
                     "d": ("", None, big)}) == {"a", "c"}
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.lists(st.tuples(st.one_of(st.none(), st.text(max_size=40), st.sampled_from(["=x", "word " * 30])),
+                          st.one_of(st.none(), st.floats(allow_nan=False)),
+                          st.one_of(st.none(), st.text(max_size=90), st.just("a\nb\nc " * 20)),
+                          st.one_of(st.none(), st.booleans()),
+                          st.sampled_from([None, "#FCE8B2", "#DDEBF7"])), max_size=30))
+def test_rows_at_once_are_the_rows_one_by_one(tmp_path_factory, rows):
+    book = Book(tmp_path_factory.mktemp("rows") / "t.xlsx")          # one book: the same format objects
+    a, b = _Sheet(book, "One by one", COLS), _Sheet(book, "At once", COLS)
+    for r in rows:
+        a.row(list(r[:4]), fill=r[4], fill_cols=(0, 1))
+    columns = [list(c) for c in zip(*(r[:4] for r in rows))] or [[], [], [], []]
+    b.rows_of(columns, [r[4] for r in rows], fill_cols=(0, 1))
+    assert a.rows == b.rows
+    assert [(i, list(v), h, o) for i, v, h, o in a._buf] == [(i, list(v), h, o) for i, v, h, o in b._buf]

@@ -26,7 +26,7 @@ def _write(members, tmp_path=None):
                 packed = deflate([data[:7], data[7:]], 1, f)
             zw.add(name, packed._replace(data=str(path)), (2026, 12, 2, 17, 30, 8))
         else:
-            zw.add(name, deflate([data], 6), (2026, 12, 2, 17, 30, 8))
+            zw.add(name, deflate([data], 3), (2026, 12, 2, 17, 30, 8))
     zw.close()
     return buf.getvalue()
 

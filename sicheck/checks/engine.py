@@ -69,6 +69,9 @@ class Check:
     family: str
     doc: str
     waveforms: bool = False             # reads the waveform stage's columns of the nets table
+    # a waveform check's share that needs none of those columns, worked out before them (run_early, prepared)
+    prepare: Callable[["ReviewContext", "Check"], Any] | None = None
+    level: str = field(default="", repr=False, compare=False)   # the rules' severity while the engine runs it
 
     @property
     def summary(self) -> str:
@@ -104,9 +107,9 @@ class Check:
         """A finding of this check. ``key`` defaults to rule|net|layer (no row: keys survive re-exports).
 
         ``severity`` is only for a finding that is milder by nature (e.g. an info note); the engine
-        otherwise fills in the severity the rules choose.
+        otherwise fills in the severity the rules choose (``level``: set on the copy of the check it runs).
         """
-        return Finding(rule=self.id, severity=severity or "", net=net, layer=layer, message=message, row=row,
+        return Finding(rule=self.id, severity=severity or self.level, net=net, layer=layer, message=message, row=row,
                        key=key or make_key(self.id, net, layer), value=value, limit=limit, unit=unit)
 
 
@@ -122,11 +125,14 @@ def setting(p: Param) -> Param:
     return p
 
 
-def check(id: str, severity: str, params: Iterable[Param] = (), waveforms: bool = False):
+def check(id: str, severity: str, params: Iterable[Param] = (), waveforms: bool = False, prepare=None):
     """Register a check function. The function's docstring documents the rule (see DOC_PARTS).
 
     waveforms: the check reads the waveform stage's columns of the nets table (simulated metrics, proposed
     part); the others can run while that stage's processes work (run_early).
+    prepare: for such a check, ``prepare(ctx, chk)`` works out what it needs that the waveform stage does not
+    change (it must read none of that stage's columns); run_early runs it meanwhile and the check takes it
+    with ``prepared(ctx, chk)``.
     """
     if severity not in SEVERITIES:
         raise ValueError(f"check {id}: default severity must be one of {SEVERITIES}")
@@ -135,7 +141,7 @@ def check(id: str, severity: str, params: Iterable[Param] = (), waveforms: bool 
         if any(c.id == id for c in REGISTRY):
             raise ValueError(f"check id '{id}' registered twice")
         family = fn.__module__.rsplit(".", 1)[-1]
-        REGISTRY.append(Check(id, severity, tuple(params), fn, family, fn.__doc__ or "", waveforms))
+        REGISTRY.append(Check(id, severity, tuple(params), fn, family, fn.__doc__ or "", waveforms, prepare))
         return fn
     return deco
 
@@ -184,6 +190,8 @@ class ReviewContext:
     crosstalk: Any = None
     topology: dict = field(default_factory=dict)   # net -> topology.Topology, for nets whose rows name nodes
     vias: Any = None            # via_table.via_table(...) of all nets (None: the via checks derive it)
+    # check id -> (the nets' names, what Check.prepare worked out on them), filled by run_early
+    prepared: dict = field(default_factory=dict)
 
     def __post_init__(self):
         self.classes = {c.name: c for c in getattr(self.rules, "classes", ())}
@@ -214,9 +222,18 @@ def plain_rows(table):
     row = namedtuple("Pandas", list(table.columns), rename=True)
     if len(table.columns) == 0:
         return iter([row()] * len(table))
-    cols = [s.to_numpy(None if s.dtype.kind in "biuf" else object).tolist()
-            for s in (table.iloc[:, k] for k in range(table.shape[1]))]
+    cols = [_plain(table.iloc[:, k]).tolist() for k in range(table.shape[1])]
     return map(row._make, zip(*cols))
+
+
+def plain_columns(table, names, positions=None) -> dict[str, list]:
+    """Columns by name as lists of the values plain_rows gives; only the rows at `positions` (as for .iloc)
+    when given."""
+    return {n: (_plain(table[n]) if positions is None else _plain(table[n])[positions]).tolist() for n in names}
+
+
+def _plain(column):
+    return column.to_numpy(None if column.dtype.kind in "biuf" else object)
 
 
 def run_checks(ctx: ReviewContext, checks: Iterable[Check] | None = None,
@@ -241,13 +258,35 @@ def run_checks(ctx: ReviewContext, checks: Iterable[Check] | None = None,
 def run_early(ctx: ReviewContext) -> dict[str, list[Finding]]:
     """The findings of every check that does not read the waveform stage's columns, by check id, severities
     applied: worked out while the waveform stage's processes run (ctx.nets need not have those columns yet);
-    run_checks(..., ready=) then adds the rest."""
-    return {chk.id: _findings(ctx, chk) for chk in REGISTRY if not chk.waveforms}
+    run_checks(..., ready=) then adds the rest. The other checks' ``prepare`` share goes to ctx.prepared: the
+    caller hands it on to the context it gives run_checks."""
+    out = {}
+    for chk in REGISTRY:
+        if not chk.waveforms:
+            out[chk.id] = _findings(ctx, chk)
+        elif chk.prepare is not None and ctx.rules.severity.get(chk.id, chk.severity) != "off":
+            ctx.prepared[chk.id] = (_names(ctx.nets), chk.prepare(ctx, chk))
+    return out
+
+
+def prepared(ctx: ReviewContext, chk: Check):
+    """What ``chk.prepare`` worked out before the waveform stage (run_early), when it was worked out on the same
+    nets in the same order as ctx.nets; else worked out now."""
+    names, done = ctx.prepared.get(chk.id, (None, None))
+    if names is not None and len(names) == len(ctx.nets) and (names == _names(ctx.nets)).all():
+        return done
+    return chk.prepare(ctx, chk)
+
+
+def _names(nets):
+    import numpy as np
+    return np.asarray(nets["net"].to_numpy(object))
 
 
 def _findings(ctx: ReviewContext, chk: Check) -> list[Finding]:
     level = ctx.rules.severity.get(chk.id, chk.severity)
     if level == "off":
         return []
-    # the same as dataclasses.replace, at half its cost (a large board has ~100 000 findings)
-    return [f if f.severity else Finding(**{**vars(f), "severity": level}) for f in chk.fn(ctx, chk)]
+    # findings made with the rules' severity (chk.finding reads `level`): not made a second time to set it
+    bound = replace(chk, level=level)
+    return [f if f.severity else replace(f, severity=level) for f in chk.fn(ctx, bound)]

@@ -2,7 +2,11 @@
 
 from __future__ import annotations
 
-from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label, plain_rows
+from typing import NamedTuple
+
+import numpy as np
+
+from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label, plain_columns, plain_rows, prepared
 from sicheck.checks.loss import first_rows
 
 LUMPED_MAX = Param("lumped_max_td_over_tr", "number", 1.0 / 6.0, "x Tr", "lumped (no termination) when the "
@@ -17,28 +21,76 @@ def _fmt_ps(seconds: float) -> str:
     return f"{seconds * 1e12:.0f} ps"
 
 
-def lines_longest_first(nets):
-    """Nets that need termination, longest delay first, a pair once (by its longer leg)."""
+def line_positions(nets) -> np.ndarray:
+    """Positions (as for .iloc) of the nets that need termination, longest delay first, a pair once (by its
+    longer leg): the order nets.sort_values("delay", ascending=False) gives, without sorting every column."""
     from sicheck.physics.electrical import NOT_NEEDED
-    done: set = set()
-    # positions in the order nets.sort_values("delay", ascending=False) gives, without sorting every column
     order = nets["delay"].reset_index(drop=True).sort_values(ascending=False).index.to_numpy()
     order = order[(nets["termination"].to_numpy(object) != NOT_NEEDED)[order]]
-    for r in plain_rows(nets.iloc[order]):
-        if r.pair:
-            ident = pair_id(r.net, r.pair)
-            if ident in done:
-                continue
+    net, pair = nets["net"].to_numpy(object)[order], nets["pair"].to_numpy(object)[order]
+    keep = np.ones(len(order), dtype=bool)
+    done: set = set()
+    for k in np.flatnonzero(pair != "").tolist():        # only a pair can repeat, by its other leg
+        ident = pair_id(net[k], pair[k])
+        if ident in done:
+            keep[k] = False
+        else:
             done.add(ident)
-        yield r
+    return order[keep]
 
 
-def simulated(r) -> bool:
-    part = getattr(r, "termination_part", "")
-    return isinstance(part, str) and bool(part)
+def lines_longest_first(nets):
+    """Nets that need termination, longest delay first, a pair once (by its longer leg)."""
+    return plain_rows(nets.iloc[line_positions(nets)])
 
 
-@check("electrical-length", "warning", params=(LUMPED_MAX, REQUIRED_MIN), waveforms=True)
+class _Lines(NamedTuple):
+    """What the electrical-length findings say before the waveform stage's part (one entry per line)."""
+    positions: np.ndarray
+    labels: list
+    layers: list
+    keys: list
+    rows: list
+    values: list
+    limits: list
+    severities: list
+    unsimulated: list       # the message of a net the waveform stage did not simulate
+    simulated: list         # the start of the message of one it did
+
+
+def _lines_before_waveforms(ctx, chk) -> _Lines:
+    from sicheck.physics.electrical import REQUIRED
+    nets = ctx.nets
+    pos = line_positions(nets)
+    rows = first_rows(ctx.segments)
+    limits = {t: float(ctx.param("required_min_td_over_tr" if t == REQUIRED else "lumped_max_td_over_tr"))
+              for t in set(nets["termination"].to_numpy(object).tolist())}
+    c = plain_columns(nets, ("net", "pair", "layers", "delay", "td_over_tr", "rise_time", "critical_length", "length",
+                             "termination", "advice"), pos)
+    note = (plain_columns(nets, ("topology_note",), pos)["topology_note"] if "topology_note" in nets.columns
+            else [""] * len(pos))
+    out = _Lines(pos, [], c["layers"], [], [], [], [], [], [], [])
+    for net, pair, delay, ratio, rise, crit, length, term, advice, nt in zip(
+            c["net"], c["pair"], c["delay"], c["td_over_tr"], c["rise_time"], c["critical_length"], c["length"],
+            c["termination"], c["advice"], note):
+        out.labels.append(pair_label(net, pair) if pair else net)
+        out.keys.append(make_key(chk.id, pair_id(net, pair) if pair else net))
+        out.rows.append(rows.get(net, rows.get(pair)))
+        out.values.append(float(ratio))
+        out.limits.append(limits[term])
+        out.severities.append(None if term == REQUIRED else "info")
+        msg = (f"one-way delay {_fmt_ps(delay)} is {ratio:.2f} x the {_fmt_ps(rise)} rise time "
+               f"(critical length {crit * 1e3:.1f} mm on its layers, net is {length * 1e3:.1f} mm): "
+               f"transmission line, termination {term}")
+        if isinstance(nt, str) and nt:      # how the path was found (from/to nodes, or rows in series)
+            msg += f"; route: {nt}"
+        out.simulated.append(msg)
+        out.unsimulated.append(f"{msg}. Proposal: {advice}" if advice else msg)
+    return out
+
+
+@check("electrical-length", "warning", params=(LUMPED_MAX, REQUIRED_MIN), waveforms=True,
+       prepare=_lines_before_waveforms)
 def electrical_length(ctx, chk):
     """One-way delay against rise time: a net that must be treated and terminated as a transmission line.
 
@@ -50,28 +102,26 @@ def electrical_length(ctx, chk):
     end arrive while the edge is still rising and show up as overshoot, ringing and false edges.
     How to fix: fit the proposed termination, or shorten the route below the critical length.
     """
-    from sicheck.physics.electrical import REQUIRED
-    rows = first_rows(ctx.segments)
-    limits = {t: float(ctx.param("required_min_td_over_tr" if t == REQUIRED else "lumped_max_td_over_tr"))
-              for t in set(ctx.nets["termination"].to_numpy(object).tolist())}
-    for r in lines_longest_first(ctx.nets):
-        label = pair_label(r.net, r.pair) if r.pair else r.net
-        msg = (f"one-way delay {_fmt_ps(r.delay)} is {r.td_over_tr:.2f} x the {_fmt_ps(r.rise_time)} rise time "
-               f"(critical length {r.critical_length * 1e3:.1f} mm on its layers, net is {r.length * 1e3:.1f} mm): "
-               f"transmission line, termination {r.termination}")
-        note = getattr(r, "topology_note", "")
-        if isinstance(note, str) and note:      # how the path was found (from/to nodes, or rows in series)
-            msg += f"; route: {note}"
-        if simulated(r):
-            msg += (f". Simulated: {r.termination_part} (overshoot {r.before_overshoot_pct:.0f} % -> "
-                    f"{r.after_overshoot_pct:.0f} %, ringback {r.before_ringback_pct:.0f} % -> "
-                    f"{r.after_ringback_pct:.0f} %, settled {r.before_settle_ns:.2f} -> {r.after_settle_ns:.2f} ns)")
-            if r.waveform_assumptions:
-                msg += f"; {r.waveform_assumptions}"
-        elif r.advice:
-            msg += f". Proposal: {r.advice}"
-        ident = pair_id(r.net, r.pair) if r.pair else r.net
-        yield chk.finding(label, r.layers, msg, row=rows.get(r.net, rows.get(r.pair)),
-                          key=make_key(chk.id, ident), value=float(r.td_over_tr),
-                          limit=limits[r.termination],
-                          unit="x Tr", severity=None if r.termination == REQUIRED else "info")
+    ln = prepared(ctx, chk)       # all but the waveform stage's part, worked out while that stage ran
+    nets, pos = ctx.nets, ln.positions
+    parts = (plain_columns(nets, ("termination_part",), pos)["termination_part"] if "termination_part" in nets.columns
+             else [""] * len(pos))
+    texts = ln.unsimulated
+    done = np.flatnonzero(np.array([isinstance(p, str) and bool(p) for p in parts], dtype=bool))   # a part: simulated
+    if len(done):
+        figures = plain_columns(nets, ("before_overshoot_pct", "after_overshoot_pct", "before_ringback_pct",
+                                       "after_ringback_pct", "before_settle_ns", "after_settle_ns",
+                                       "waveform_assumptions"), pos[done])
+        texts = list(texts)
+        for k, *fig in zip(done.tolist(), *figures.values()):
+            texts[k] = ln.simulated[k] + _simulated_text(parts[k], *fig)
+    for label, layers, msg, row, key, value, limit, severity in zip(
+            ln.labels, ln.layers, texts, ln.rows, ln.keys, ln.values, ln.limits, ln.severities):
+        yield chk.finding(label, layers, msg, row=row, key=key, value=value, limit=limit, unit="x Tr",
+                          severity=severity)
+
+
+def _simulated_text(part, o_before, o_after, r_before, r_after, s_before, s_after, assumptions) -> str:
+    text = (f". Simulated: {part} (overshoot {o_before:.0f} % -> {o_after:.0f} %, ringback {r_before:.0f} % -> "
+            f"{r_after:.0f} %, settled {s_before:.2f} -> {s_after:.2f} ns)")
+    return f"{text}; {assumptions}" if assumptions else text

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import pandas as pd
 
-from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label
-from sicheck.checks.length import lines_longest_first, simulated
+from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label, plain_columns, plain_rows, prepared
+from sicheck.checks.length import line_positions
 from sicheck.checks.loss import first_rows
 
 # Common practice values (see rules/default.toml); the waveform stage (waveform_review.py) reads them.
@@ -38,7 +38,12 @@ PARAMS = (
 )
 
 
-@check("waveform", "warning", params=PARAMS, waveforms=True)
+def _lines_before_waveforms(ctx, chk):
+    """The nets the check goes through (electrical-length's order) and each net's first trace-list row."""
+    return line_positions(ctx.nets), first_rows(ctx.segments)
+
+
+@check("waveform", "warning", params=PARAMS, waveforms=True, prepare=_lines_before_waveforms)
 def waveform(ctx, chk):
     """Simulated receiver waveform of a net that needs termination, when no standard scheme meets the limits.
 
@@ -53,14 +58,17 @@ def waveform(ctx, chk):
     nets = ctx.nets
     if "termination_part" not in nets.columns:
         return
-    rows = first_rows(ctx.segments)
-    for r in lines_longest_first(nets):
-        if simulated(r) and r.waveform_meets_limits is False:
-            ident = pair_id(r.net, r.pair) if r.pair else r.net
-            yield chk.finding(pair_label(r.net, r.pair) if r.pair else r.net, r.layers,
-                              f"no standard termination meets the limits; best found: {r.termination_part} "
-                              f"({r.waveform_violations})", row=rows.get(r.net, rows.get(r.pair)),
-                              key=make_key(chk.id, ident))
+    pos, rows = prepared(ctx, chk)
+    c = plain_columns(nets, ("termination_part", "waveform_meets_limits"), pos)
+    # simulated (a part) and failed: the text of those few only, not of every net
+    failed = [i for i, part, meets in zip(pos.tolist(), c["termination_part"], c["waveform_meets_limits"])
+              if isinstance(part, str) and part and meets is False]
+    for r in plain_rows(nets.iloc[failed][["net", "pair", "layers", "termination_part", "waveform_violations"]]):
+        ident = pair_id(r.net, r.pair) if r.pair else r.net
+        yield chk.finding(pair_label(r.net, r.pair) if r.pair else r.net, r.layers,
+                          f"no standard termination meets the limits; best found: {r.termination_part} "
+                          f"({r.waveform_violations})", row=rows.get(r.net, rows.get(r.pair)),
+                          key=make_key(chk.id, ident))
     flagged = nets[nets["termination"] != "not-needed"]
     unsimulated = int((flagged["termination_part"] == "").sum())
     if unsimulated:

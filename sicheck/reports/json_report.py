@@ -254,12 +254,33 @@ def review_dict(rv: Review) -> dict:
         "fabrication_tolerances": _tolerances(rv.rules),      # what the segments' band was computed with
     }
     out = {"summary": summary, "nets": nets_json(nets), "segments": segments_json(rv.segments),
-           "findings": [f.as_dict() | finding_json(rv.signoff, f) for f in rv.findings],
+           "findings": findings_json(rv.findings, rv.signoff),
            "match_groups": match_groups_json(rv), **signoff_json(rv.signoff)}
     if getattr(rv, "crosstalk", None) is not None:
         from sicheck.reports.crosstalk_report import crosstalk_json
         out["crosstalk"] = crosstalk_json(rv.crosstalk)
     return out
+
+
+def _plain_column(xs: list) -> list:
+    """Finding._plain over a list (6 significant digits, None where not a finite number), a column at a time."""
+    a = np.array([np.nan if x is None else float(x) for x in xs], dtype=float)
+    out = round_sig(a, 6)
+    for i in np.flatnonzero((a == 0) & np.signbit(a)).tolist():     # _plain keeps the sign of a zero
+        out[i] = -0.0
+    return out
+
+
+def findings_json(fs: list, so) -> list[dict]:
+    """Each finding as Finding.as_dict() with signoff_columns.finding_json(), built a column at a time."""
+    if so is not None:
+        return [f.as_dict() | finding_json(so, f) for f in fs]
+    keys = [f.key or f"{f.rule}|{f.net}" for f in fs]
+    value, limit = _plain_column([f.value for f in fs]), _plain_column([f.limit for f in fs])
+    blank = finding_json(None, None) if fs else {}
+    return [{"rule": f.rule, "severity": f.severity, "net": f.net, "layer": f.layer, "message": f.message,
+             "row": f.row, "key": k, "value": v, "limit": lim, "unit": f.unit or None, **blank}
+            for f, k, v, lim in zip(fs, keys, value, limit)]
 
 
 def match_groups_json(rv: Review) -> list[dict]:

@@ -59,8 +59,10 @@ def rows_xml(rows: list[tuple[int, list, float | None, dict | None]], n_cols: in
     when no row of the chunk overrides this column); every
     text goes through it, so user text never bypasses it.
 
-    The XML is built a column at a time (str.join, repr and zip over whole columns run in C): a
-    per-cell Python loop cost most of the time of a large review's workbook.
+    The XML is built a column at a time: each column gives the pieces of its cells as whole columns
+    (a constant, or a list with one text per row), and each row is joined once from all of them
+    (str.join, repr and zip over whole columns run in C). A per-cell Python loop cost most of the time
+    of a large review's workbook, and a join per cell, then one per row, cost three times one per row.
     """
     letters = column_letters(n_cols)
     for start in range(0, len(rows), CHUNK_ROWS):
@@ -70,9 +72,10 @@ def rows_xml(rows: list[tuple[int, list, float | None, dict | None]], n_cols: in
                  for r, h in zip(rs, heights)]
         padded = [v if len(v) == n_cols else list(v) + [None] * (n_cols - len(v)) for v in values]
         over_cols = set(chain.from_iterable(o for o in overs if o))
-        cells = [_column(letters[j], j, col, rs, col_style[j], overs if j in over_cols else None, text_cells)
-                 for j, col in enumerate(zip(*padded))]
-        yield "".join(map("".join, zip(opens, *cells, repeat("</row>"))))
+        pieces = chain.from_iterable(
+            _column(letters[j], j, col, rs, col_style[j], overs if j in over_cols else None, text_cells)
+            for j, col in enumerate(zip(*padded)))
+        yield "".join(map("".join, zip(opens, *pieces, repeat("</row>"))))
 
 
 _NUMBER_TYPES = {float, int, type(None), np.float64, np.int64}
@@ -80,18 +83,29 @@ _TEXT_TYPES = {str, type(None)}
 _FIRST, _LAST = itemgetter(slice(None, 1)), itemgetter(slice(-1, None))
 
 
+def _pieces(parts: list, n: int, empty: list[int]) -> list:
+    """A column's cells as pieces, each an iterable of one text per row: parts are constants (str) or lists;
+    the rows at ``empty`` get no cell ("" in every piece)."""
+    if not empty:
+        return [repeat(p) if isinstance(p, str) else p for p in parts]
+    out = []
+    for p in parts:
+        lst = [p] * n if isinstance(p, str) else list(p)      # a copy: rs is shared by the columns
+        for i in empty:
+            lst[i] = ""
+        out.append(lst)
+    return out
+
+
 def _column(letter: str, j: int, col: tuple, rs: list[str], style: int, overs: tuple | None,
-            text_cells) -> list[str]:
-    """The cells of one column of a chunk ("" for an empty cell)."""
+            text_cells) -> list:
+    """The pieces of one column of a chunk (_pieces)."""
     types = set(map(type, col))
     if types <= _NUMBER_TYPES and overs is None:
         a = np.array(col, dtype=float)          # None -> NaN: no cell, as for any value not finite
         attr = f' s="{style}"' if style else ""
-        out = list(map("".join, zip(repeat(f'<c r="{letter}'), rs, repeat(f'"{attr}><v>'), _reprs(a),
-                                    repeat("</v></c>"))))
-        for i in np.flatnonzero(~np.isfinite(a)).tolist():
-            out[i] = ""
-        return out
+        return _pieces([f'<c r="{letter}', rs, f'"{attr}><v>', _reprs(a), "</v></c>"], len(rs),
+                       np.flatnonzero(~np.isfinite(a)).tolist())
     if types <= _TEXT_TYPES:
         texts = ["" if v is None else v for v in col] if type(None) in types else list(col)
         return _text_column(letter, j, texts, rs, overs, text_cells)
@@ -99,7 +113,8 @@ def _column(letter: str, j: int, col: tuple, rs: list[str], style: int, overs: t
     out = []
     for i, v in enumerate(col):
         if isinstance(v, str):
-            out.append(_text_column(letter, j, [v], rs[i:i + 1], (overs[i],) if overs else None, text_cells)[0])
+            cell = _text_column(letter, j, [v], rs[i:i + 1], (overs[i],) if overs else None, text_cells)
+            out.append("".join(next(zip(*cell))))           # its pieces, one row
             continue
         if v is None:
             out.append("")
@@ -111,7 +126,7 @@ def _column(letter: str, j: int, col: tuple, rs: list[str], style: int, overs: t
             continue
         f = float(v)
         out.append(f'<c r="{letter}{rs[i]}"{attr}><v>{f!r}</v></c>' if math.isfinite(f) else "")
-    return out
+    return [out]
 
 
 def _reprs(a: np.ndarray) -> list[str]:
@@ -124,7 +139,7 @@ def _reprs(a: np.ndarray) -> list[str]:
     return list(map(list(map(repr, distinct.tolist())).__getitem__, where.tolist()))
 
 
-def _text_column(letter: str, j: int, texts: list[str], rs: list[str], overs: tuple | None, text_cells) -> list[str]:
+def _text_column(letter: str, j: int, texts: list[str], rs: list[str], overs: tuple | None, text_cells) -> list:
     texts, styles = text_cells(j, texts, overs)
     joined = "\x00".join(texts)
     if _XML_SPECIAL.search(joined):
@@ -132,23 +147,20 @@ def _text_column(letter: str, j: int, texts: list[str], rs: list[str], overs: tu
             texts = joined.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;").split("\x00")
         else:
             texts = [_escape(t) for t in texts]
-    attrs = {s: f'" s="{s}" t="inlineStr"><is><t' if s else '" t="inlineStr"><is><t' for s in set(styles)}
+    kinds = set(styles)
+    attrs = {s: f'" s="{s}" t="inlineStr"><is><t' if s else '" t="inlineStr"><is><t' for s in kinds}
+    attr = attrs[styles[0]] if len(kinds) == 1 else list(map(attrs.__getitem__, styles))
     # xml:space="preserve" where a text starts or ends with white space
     first, last = list(map(str.isspace, map(_FIRST, texts))), list(map(str.isspace, map(_LAST, texts)))
     spaces = ([' xml:space="preserve"' if a or b else "" for a, b in zip(first, last)] if any(first) or any(last)
-              else repeat(""))
-    out = list(map("".join, zip(repeat(f'<c r="{letter}'), rs, map(attrs.__getitem__, styles), spaces, repeat(">"),
-                                texts, repeat("</t></is></c>"))))
-    if "" in texts:
-        for i, t in enumerate(texts):
-            if not t:
-                out[i] = ""
-    return out
+              else "")
+    empty = [i for i, t in enumerate(texts) if not t] if "" in texts else []
+    return _pieces([f'<c r="{letter}', rs, attr, spaces, ">", texts, "</t></is></c>"], len(texts), empty)
 
 
 _DIMENSION = re.compile(rb'<dimension ref="[^"]*"/>')
-BODY_LEVEL = 1       # sheet bodies: large and repetitive; level 1 is about 3x faster than 6 for a file ~12 % larger
-PARTS_LEVEL = 6      # the package's other parts (styles, workbook, small sheets)
+BODY_LEVEL = 1       # sheet bodies (zip_archive.deflate's levels, 0-3): large and repetitive, speed first
+PARTS_LEVEL = 3      # the package's other parts (styles, workbook, small sheets): small, the smallest file
 FORK_MIN_CELLS = 400_000     # below this, the bodies are quicker to write here than to hand to a process
 
 

@@ -202,17 +202,50 @@ class _Sheet:
                 lines = max(lines, text_lines(v, self.widths[j]))
         over = None
         if fill is not None and fill_cols:
-            over = {}
-            for j in fill_cols:
-                v = values[j] if j < len(values) else None
-                quote = isinstance(v, str) and clean_text(v)[1]
-                key = (j, fill, quote)
-                f = self._fills.get(key)
-                if f is None:
-                    f = self._fills[key] = self.book.fmt(**self._col_props[j], bg_color=fill,
-                                                         **({"quote_prefix": True} if quote else {}))
-                over[j] = f
+            over = {j: self._fill(j, fill, values[j] if j < len(values) else None) for j in fill_cols}
         self._buf.append((self.rows, values, LINE_PT * min(lines, 27) if lines > 1 else None, over))  # 409 pt max
+
+    def rows_of(self, columns: list, fills: list | None = None, fill_cols: tuple[int, ...] = ()):
+        """row() for many rows at once, given column by column (one list per column, a value per row; fills:
+        each row's fill or None). The same rows as calling row() on each, with the heights and fills
+        worked out a column at a time (a large board's sheets have 100 000 rows)."""
+        n = len(columns[0]) if columns else 0
+        first = self.rows + 1
+        self.rows += n
+        lines: dict[int, int] = {}                       # rows taller than one line
+        for j in self.wrap_cols:
+            if j >= len(columns):
+                continue
+            limit, width = self.widths[j] - 3, self.widths[j]
+            for i, v in enumerate(columns[j]):
+                if v.__class__ is str and len(v) > limit:
+                    k = text_lines(v, width)
+                    if k > lines.get(i, 1):
+                        lines[i] = k
+        heights = [None] * n
+        for i, k in lines.items():
+            heights[i] = LINE_PT * min(k, 27)             # 409 pt at most
+        overs = [None] * n
+        if fills is not None and fill_cols:
+            shared: dict[tuple, dict] = {}       # rows with the same fill and quoting share one dict of formats
+            cols = [columns[j] if j < len(columns) else [None] * n for j in fill_cols]
+            for i, fill in enumerate(fills):
+                if fill is not None:
+                    key = (fill, *(c[i] if c[i].__class__ is str and clean_text(c[i])[1] else None for c in cols))
+                    over = shared.get(key)
+                    if over is None:
+                        over = shared[key] = {j: self._fill(j, fill, v) for j, v in zip(fill_cols, key[1:])}
+                    overs[i] = over
+        self._buf.extend(zip(range(first, first + n), zip(*columns), heights, overs))
+
+    def _fill(self, j: int, fill: str, v):
+        quote = isinstance(v, str) and clean_text(v)[1]
+        key = (j, fill, quote)
+        f = self._fills.get(key)
+        if f is None:
+            f = self._fills[key] = self.book.fmt(**self._col_props[j], bg_color=fill,
+                                                 **({"quote_prefix": True} if quote else {}))
+        return f
 
     @property
     def buffered(self) -> bool:
@@ -225,8 +258,10 @@ class _Sheet:
         self._col_style = [_xf(f) for f in fmts]
         for f in self._quote:
             _xf(f)
+        done = set()                         # rows_of shares a dict between rows: map each once
         for _, _, _, over in self._buf:
-            if over:
+            if over and id(over) not in done:
+                done.add(id(over))
                 for j, f in over.items():
                     over[j] = _xf(f)
 
@@ -345,9 +380,11 @@ def _findings(book: Book, rv: Review):
     sh.ws.data_validation(1, 7, n, 7, {"validate": "list", "source": list(DISPOSITIONS), "ignore_blank": True,
                                        "error_title": "Disposition", "error_message": "Choose accept, fix or waive"})
     sh.header()
-    for i, f in enumerate(fs):
-        sh.row([f"F{i + 1:04d}", f.severity, f.rule, f.net, f.layer, f.message, f.row] + finding_cells(rv.signoff, f),
-               fill=SEVERITY_FILL[f.severity], fill_cols=(1,))
+    severity = [f.severity for f in fs]
+    columns = [[f"F{i:04d}" for i in range(1, len(fs) + 1)], severity, [f.rule for f in fs], [f.net for f in fs],
+               [f.layer for f in fs], [f.message for f in fs], [f.row for f in fs]]
+    columns += [list(c) for c in zip(*(finding_cells(rv.signoff, f) for f in fs))] or [[] for _ in cols[7:]]
+    sh.rows_of(columns, [SEVERITY_FILL[s] for s in severity], fill_cols=(1,))
     sh.finish()
 
 
@@ -398,9 +435,7 @@ def _nets(book: Book, rv: Review):
     columns = base + wave + [nets["advice"].tolist()] + ([num("next_pct"), num("fext_pct")] if has_xt else [])
     if has_vias:
         columns += [num("vias"), num("via_stub_resonance", 1e-9)]
-    term = nets["termination"].tolist()
-    for i, values in enumerate(zip(*columns)):
-        sh.row(list(values), fill=fills.get(term[i]), fill_cols=(10,))
+    sh.rows_of(columns, [fills.get(t) for t in nets["termination"].tolist()], fill_cols=(10,))
     sh.finish()
 
 
@@ -441,8 +476,7 @@ def _segments(book: Book, rv: Review):
                        if a in seg.columns else [None] * len(seg))
     if has_xt:
         columns += [num("spacing", 1e3), num("parallel", 1e3), num("next_pct"), num("fext_pct")]
-    for values in zip(*columns):
-        sh.row(values)
+    sh.rows_of(columns)
     sh.finish()
 
 
@@ -451,9 +485,10 @@ def _timing(book: Book, rv: Review):
     legs both have rows (their skew); written when the board has either."""
     from sicheck.skew import group_timing, pair_skew
     nets = rv.nets
-    length = dict(zip(nets["net"], nets["length"].to_numpy(float)))
-    layers = dict(zip(nets["net"], nets["layers"]))
-    delays = dict(zip(nets["net"], nets["delay"].to_numpy(float)))
+    names = nets["net"].tolist()              # columns as lists: a pandas column iterates slowly
+    length = dict(zip(names, nets["length"].to_numpy(float).tolist()))
+    layers = dict(zip(names, nets["layers"].tolist()))
+    delays = dict(zip(names, nets["delay"].to_numpy(float).tolist()))
     rows = []
     for gt in group_timing(rv.segments, nets, rv.rules.match_groups):
         over = "yes" if gt.over else "no"
@@ -463,15 +498,17 @@ def _timing(book: Book, rv: Review):
                           gt.group.max_skew * 1e12, gt.skew_length * 1e3, gt.main_layer, over], gt.over))
     skew = pair_skew(nets)
     done = set()
-    for r, s in zip(nets[["net", "pair", "net_class"]].itertuples(index=False), skew):
-        if not np.isfinite(s) or frozenset((r.net, r.pair)) in done:
+    pairs, classes = nets["pair"].tolist(), nets["net_class"].tolist()
+    for i in np.flatnonzero(np.isfinite(skew)).tolist():            # the legs of pairs with both legs listed
+        net, pair, s = names[i], pairs[i], float(skew[i])
+        if frozenset((net, pair)) in done:
             continue
-        done.add(frozenset((r.net, r.pair)))
-        limit = rv.rules.value("max_pair_skew", rv.rules.class_named(r.net_class) if r.net_class else None)
+        done.add(frozenset((net, pair)))
+        limit = rv.rules.value("max_pair_skew", rv.rules.class_named(classes[i]) if classes[i] else None)
         over = limit is not None and s > limit
-        slow = r.net if delays[r.net] >= delays[r.pair] else r.pair        # the slower leg's delay and length
+        slow = net if delays[net] >= delays[pair] else pair        # the slower leg's delay and length
         d, ln = delays[slow], length[slow]
-        rows.append((["(pair)", pair_label(r.net, r.pair), "", d * 1e12, None, ln * 1e3, layers[slow], s * 1e12,
+        rows.append((["(pair)", pair_label(net, pair), "", d * 1e12, None, ln * 1e3, layers[slow], s * 1e12,
                       None if limit is None else limit * 1e12, s * ln / d * 1e3 if d > 0 else None,
                       "", "yes" if over else "no"], over))
     if not rows:

@@ -279,6 +279,23 @@ def json_encoder_comparison(rv) -> None:
         print(f"  {name:<36} {c}  ({len(text) / 1e6:.0f} MB of text)")
 
 
+def deflate_comparison(xlsx: Path) -> None:
+    """zlib (levels 1 and 6) against ISA-L (isal, level 1) on the largest sheet XML of the review workbook."""
+    import zipfile
+    import zlib
+
+    from isal import isal_zlib
+    with zipfile.ZipFile(xlsx) as z:
+        name = max(z.infolist(), key=lambda i: i.file_size).filename
+        data = z.read(name)
+    print(f"deflate of {name} ({len(data) / 1e6:.0f} MB of XML):")
+    for label, mod, level in (("zlib level 1", zlib, 1), ("zlib level 6", zlib, 6), ("isal level 1", isal_zlib, 1)):
+        with Clock() as c:
+            z = mod.compressobj(level, mod.DEFLATED, -15)
+            packed = sum(len(z.compress(data[i:i + (1 << 22)])) for i in range(0, len(data), 1 << 22)) + len(z.flush())
+        print(f"  {label:<14} {c}  -> {packed / 1e6:.1f} MB")
+
+
 def version_time() -> float:
     exe = Path(sys.executable).parent / "sicheck"
     cmd = [str(exe), "--version"] if exe.exists() else [sys.executable, "-m", "sicheck", "--version"]
@@ -318,6 +335,7 @@ def main() -> None:
         for k, c in output_stage(rv, d).items():
             print(f"    {k:<44} {c} -> {c.wall / base.wall:.2f}x floor wall, {c.cpu / base.cpu:.2f}x floor CPU")
         json_encoder_comparison(rv)
+        deflate_comparison(d / "now.xlsx")
         del rv
         if a.waveforms:
             full = full_review(csv_path, stackup, d / "review.xlsx", d / "review.json")
