@@ -8,6 +8,8 @@ call with their different edges and windows.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -237,3 +239,45 @@ def test_what_is_kept_of_a_network_follows_its_edges():
         assert np.array_equal(settle_window(net, rs, {far: loads}, ramp),
                               settle_window(Network.chain([Line(50.0, 0.4e-9, lo), Line(70.0, 0.3e-9)])[0], rs,
                                             {far: loads}, ramp))
+
+
+def _window_as_written(lines, before_ohm, rs, cols, ramp):
+    """settle_window's estimate (its docstring) written out with the builtins, per candidate."""
+    total = sum(x.delay for x in lines)
+    z_min = min(x.z0 for x in lines)
+    atten = sum(x.loss.r_ac / (2.0 * x.z0) + np.pi * x.loss.f_ref * x.delay * x.loss.tan_delta
+                for x in lines if x.loss is not None)
+    out = []
+    for i, r in enumerate(rs):
+        r = r + before_ohm
+        g_end = 1.0
+        for c in cols:
+            if c[1][i] == c[1][i]:
+                g_end = abs((c[1][i] - lines[-1].z0) / (c[1][i] + lines[-1].z0))
+        gamma = max(abs((r - lines[0].z0) / (r + lines[0].z0)) * g_end, 0.3)
+        trips = 4.0 if gamma >= 1.0 else min(max(math.log(0.05 / 4.0) / math.log(gamma) + 2.0, 4.0), 400.0)
+        tau = max([0.0] + [c[0][i] * min(z_min, r) for c in cols])
+        tau_end = max([0.0] + [c[2][i] * (c[1][i] + max(r, z_min)) for c in cols if c[2][i] == c[2][i]
+                               and c[1][i] == c[1][i]])
+        out.append(ramp + trips * 2.0 * total * (1.0 + min(atten, 2.0)) + max(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp)
+    return out
+
+
+@settings(max_examples=60, deadline=None)
+@given(hst.lists(hst.tuples(hst.floats(20, 120), hst.floats(5e-12, 2e-9), losses_st), min_size=1, max_size=4),
+       hst.sampled_from([0.0, 22.0]),
+       hst.lists(hst.sampled_from([5.0, 25.0, 49.0, 50.0, 1e6, float("nan")]) | hst.floats(1.0, 200.0),
+                 min_size=1, max_size=5),
+       hst.lists(hst.sampled_from(range(len(LOADS))), min_size=1, max_size=2), hst.booleans())
+def test_window_estimate_as_written(spec, before_ohm, rs, loads, per_candidate):
+    # ties with the least Z, a driver far above it (no decay), NaN, a series part before the first line, one
+    # load row for all or one per candidate, a second load node
+    lines = [Line(z, td, lo) for z, td, lo in spec]
+    parts = [Series(ohm=before_ohm)] if before_ohm else []
+    net, end = Network.chain(parts + lines)
+    m = len(rs)
+    sets = {end - k: LoadSet.of([LOADS[i]] * (m if per_candidate else 1)) for k, i in enumerate(loads)}
+    cols = [[(getattr(ls, f).tolist() * m)[:m] for f in ("cap", "end_ohm", "end_cap")] for ls in sets.values()]
+    got = settle_window(net, np.array(rs), sets, 0.3e-9).tolist()
+    want = _window_as_written(lines, before_ohm, rs, cols, 0.3e-9)
+    assert [x if x == x else "nan" for x in got] == [x if x == x else "nan" for x in want]

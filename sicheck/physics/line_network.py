@@ -323,17 +323,25 @@ def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSe
     settling band after k = ln(band/4)/ln(gamma) trips (plus 2, at least 4, at most 400). Pass or
     fail needs far less: the settling limit is about one round trip after the flight.
     """
+    return np.array(settle_times(net, r_source, loads, ramp))
+
+
+def settle_times(net: Network, r_source, loads: Mapping[int, LoadSet], ramp: float) -> list[float]:
+    """settle_window as plain floats. Worked out per candidate on plain floats: a net has a handful of
+    candidates, and this runs once per stage of every net on a board (numpy's per-call cost on arrays this
+    small was most of its time)."""
     total, z_min, z1, before, z_end, stretch = _window_shape(net, ramp)
     # the first line seen from the driver, and any series resistance before it
     rs_l = np.asarray(r_source, dtype=float).tolist()
     for ohm in before:
         rs_l = [r + ohm for r in rs_l]
-    # the far end: a resistive termination reflects (R - Z)/(R + Z); an open end or a capacitor fully.
-    # Worked out per candidate on plain floats: a net has a handful of candidates, and this runs once per
-    # stage of every net on a board (numpy's per-call cost on arrays this small was most of its time).
+    # the far end: a resistive termination reflects (R - Z)/(R + Z); an open end or a capacitor fully
     m = len(rs_l)
     cols = [(_per_candidate(ls.cap, m), _per_candidate(ls.end_ohm, m), _per_candidate(ls.end_cap, m))
             for ls in loads.values()]
+    log_band = math.log(SETTLE_BAND / 4.0)
+    # (max(a, b) and min(a, b) of two floats written as the builtins decide them: b only when b > a, resp.
+    # b < a, so that NaN and ties come out the same; the calls cost more than the arithmetic here)
     out = []
     for i, rs in enumerate(rs_l):
         g_end = 1.0
@@ -341,19 +349,31 @@ def settle_window(net: Network, r_source: np.ndarray, loads: Mapping[int, LoadSe
             r = end_ohm[i]
             if r == r:
                 g_end = abs((r - z_end) / (r + z_end))
-        gamma = max(abs((rs - z1) / (rs + z1)) * g_end, 0.3)
+        gamma = abs((rs - z1) / (rs + z1)) * g_end
+        if 0.3 > gamma:
+            gamma = 0.3
         # (gamma >= 1 cannot decay: the least number of trips, as the logarithm's sign gives)
-        trips = 4.0 if gamma >= 1.0 else min(max(math.log(SETTLE_BAND / 4.0) / math.log(gamma) + 2.0, 4.0), 400.0)
+        if gamma >= 1.0:
+            trips = 4.0
+        else:
+            trips = log_band / math.log(gamma) + 2.0
+            trips = 4.0 if 4.0 > trips else trips
+            trips = 400.0 if 400.0 < trips else trips
         tau = tau_end = 0.0
+        r_wire = rs if rs < z_min else z_min
+        r_drive = z_min if z_min > rs else rs
         for cap, end_ohm, end_cap in cols:
-            tau = max(tau, cap[i] * min(z_min, rs))
+            x = cap[i] * r_wire
+            tau = x if x > tau else tau
             # an RC termination's capacitor charges, once the line has settled into a wire, through its
             # resistor and the driver: e^-6 of the step is a twentieth of the settling band
             ce, ro = end_cap[i], end_ohm[i]
             if ce == ce and ro == ro:
-                tau_end = max(tau_end, ce * (ro + max(rs, z_min)))
-        out.append(ramp + trips * 2.0 * total * stretch + max(12.0 * tau, 6.0 * tau_end) + 4.0 * ramp)
-    return np.array(out)
+                x = ce * (ro + r_drive)
+                tau_end = x if x > tau_end else tau_end
+        a, b = 12.0 * tau, 6.0 * tau_end
+        out.append(ramp + trips * 2.0 * total * stretch + (b if b > a else a) + 4.0 * ramp)
+    return out
 
 
 def _window_shape(net: Network, ramp: float) -> tuple:
@@ -369,15 +389,14 @@ def _window_shape(net: Network, ramp: float) -> tuple:
     before = []
     node = 0
     while True:
-        nxt = [(c, e) for p, c, e in net.edges if p == node]
-        if not nxt:
+        first = next(((c, e) for p, c, e in net.edges if p == node), None)     # the node's first edge
+        if first is None:
             break
-        c, e = nxt[0]
+        node, e = first
         if isinstance(e, Line):
             z1 = e.z0
             break
         before.append(e.ohm)
-        node = c
     z_end = _last_line(net).z0 if lines else z_min
     atten = sum(x.loss.r_ac / (2.0 * x.z0) + math.pi * x.loss.f_ref * x.delay * x.loss.tan_delta
                 for x in lines if isinstance(x.loss, LineLoss))

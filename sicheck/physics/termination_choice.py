@@ -26,6 +26,7 @@ and every receiver's are kept (`Candidate.receivers`).
 from __future__ import annotations
 
 import functools
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -35,7 +36,7 @@ from typing import Mapping, Sequence
 from sicheck.physics import eseries
 from sicheck.physics.chain_batch import RESULT_SAMPLES, samples_needed, simulate_many
 from sicheck.physics.causal_line import Line, LineLoss
-from sicheck.physics.line_network import Network, Series, Simulation, settle_window
+from sicheck.physics.line_network import Network, Series, Simulation, settle_times
 from sicheck.physics.transient import RAMP_PER_RISE, Load, LoadSet, preview_index, thevenin
 
 
@@ -254,7 +255,8 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
         return np.array([sp[2] for sp in specs], dtype=float), {**others, end: LoadSet.of([sp[3] for sp in specs])}
 
     def window(rs, loads):
-        return float(settle_window(net, rs, loads, ramp).max())
+        times = settle_times(net, rs, loads, ramp)
+        return math.nan if any(x != x for x in times) else max(times)      # (a NaN wins, as in numpy's max)
 
     def stage(specs, t_end=None, given=None):
         """specs: (scheme, text, r_source, Load, power, extra fields); simulated together. given: inputs(specs)."""

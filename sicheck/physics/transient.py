@@ -48,7 +48,7 @@ class LoadSet:
         nan = math.nan
         rows = np.array([(x.cap, nan if x.end_ohm is None else x.end_ohm, x.end_volts,
                           nan if x.end_cap is None else x.end_cap) for x in loads], dtype=float).reshape(-1, 4)
-        return cls(*(rows[:, j].copy() for j in range(4)))
+        return cls(*rows.T.copy())       # each column contiguous (one copy for the four)
 
     def __len__(self) -> int:
         return len(self.cap)
