@@ -20,7 +20,6 @@ from __future__ import annotations
 
 import math
 from collections import defaultdict
-from dataclasses import dataclass
 from typing import NamedTuple, Sequence
 
 import numpy as np
@@ -344,18 +343,22 @@ def _loaded_chains(chains: list[list[_Run]], owner: np.ndarray, y: np.ndarray, s
     return p, q, at, g, rank
 
 
-@dataclass(frozen=True)
-class _Run:
+class _Run(NamedTuple):
     """Sections of one cross-section end to end: one uniform line of their summed delay (the same line exactly)."""
     key: tuple | None
     z0: float
     delay: float
 
 
+# shape_key keeps its answers for the sections asked about again and again; here each section is asked about
+# once (chain_batch keeps a network's runs), so its cache would only hash each section and store the answer
+_shape_key_once = getattr(shape_key, "__wrapped__", shape_key)
+
+
 def _uniform_runs(lines: list[Line]) -> list[_Run]:
     runs: list[_Run] = []
     for x in lines:
-        key = shape_key(x)
+        key = _shape_key_once(x)
         if runs and runs[-1].key == key and runs[-1].z0 == x.z0:
             runs[-1] = _Run(key, x.z0, runs[-1].delay + x.delay)
         else:
