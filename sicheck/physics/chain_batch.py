@@ -226,9 +226,10 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
         t0 = np.minimum(np.array([plan[nets[j]]["chain"].front for j in by_rank]), n_rec * dt / RECORD_FACTOR)
         h0 = (v_high - v_low) / swing[net_of]
         # V_rx / V_source = g / (p + R_s q); the spectra scaled by the ramp and the swing once per net
-        g *= ramp_s * swing[:, None]
+        scale = ramp_s * swing[:, None]
+        g *= scale
         ref = _delays(sigma, 2.0 * math.pi / t_rec, t0, k_bins)
-        ref *= ramp_s * swing[:, None]
+        ref *= scale
         den = q[u]
         den *= rs[:, None]
         den += p[u]
