@@ -60,7 +60,7 @@ class Review:
         order = n.sort_values("delay", ascending=False, kind="stable")
         seen: set = set()
         once = []
-        for idx, net, pair in zip(order.index, order["net"], order["pair"]):
+        for idx, net, pair in zip(order.index.tolist(), order["net"].tolist(), order["pair"].tolist()):
             ident = frozenset((net, pair)) if pair else net
             if ident not in seen:
                 once.append(idx)
