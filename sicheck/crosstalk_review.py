@@ -152,7 +152,7 @@ def add_segment_crosstalk(seg: pd.DataFrame, df: pd.DataFrame, rules, stackup, s
     sp = df["spacing"].to_numpy(float).copy() if "spacing" in df else np.full(len(seg), np.nan)
     par = df["parallel"].to_numpy(float).copy() if "parallel" in df else np.full(len(seg), np.nan)
     from_class = np.isnan(sp)
-    sp[from_class] = seg["net_class"].map(lambda n: class_spacing.get(n, np.nan)).to_numpy(float)[from_class]
+    sp[from_class] = seg["net_class"].map(class_spacing).to_numpy(float)[from_class]      # NaN: no class spacing
     par = np.where(np.isnan(par), seg["length"].to_numpy(float), par)
     has = ~np.isnan(sp)
     if not has.any() and couplings is None:

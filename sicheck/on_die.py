@@ -63,9 +63,28 @@ def driver_on_die(rules: Rules, cls: NetClass | None) -> float | None:
 def mark_nets(nets: pd.DataFrame, rules: Rules) -> pd.DataFrame:
     """Nets table with column `on_die` (what terminates the receiver on the die, else "") and the
     first-order advice of such nets replaced: no external part (the waveform stage checks the limits)."""
-    classes = {c.name: c for c in rules.classes}
-    on_die, advice, short = [], nets["advice"].to_numpy(object).tolist(), nets["proposal"].to_numpy(object).tolist()
+    on_die, marked = _on_die(nets, rules)
+    advice, short = nets["advice"].to_numpy(object).tolist(), nets["proposal"].to_numpy(object).tolist()
     series = list(nets["series_ohm"])
+    for k, od in marked:
+        advice[k] = f"{od.text}: no external part (a series part at the driver if the waveform needs more)"
+        short[k] = od.short
+        series[k] = None
+    out = nets.copy()
+    out["on_die"] = on_die
+    out["advice"], out["proposal"], out["series_ohm"] = advice, short, series
+    return out
+
+
+def on_die_column(nets: pd.DataFrame, rules: Rules) -> list[str]:
+    """mark_nets' column `on_die` alone (for a table whose advice is worked out later)."""
+    return _on_die(nets, rules)[0]
+
+
+def _on_die(nets: pd.DataFrame, rules: Rules) -> tuple[list[str], list[tuple[int, OnDie]]]:
+    """Each net's `on_die` text, and (position, OnDie) of the nets that need termination and get it on the die."""
+    classes = {c.name: c for c in rules.classes}
+    on_die, marked = [], []
     known: dict[tuple[str, bool], OnDie | None] = {}        # one lookup per class and kind of net
     for k, (cls_name, pair, term) in enumerate(zip(*(nets[c].to_numpy(object).tolist()
                                                      for c in ("net_class", "pair", "termination")))):
@@ -75,10 +94,5 @@ def mark_nets(nets: pd.DataFrame, rules: Rules) -> pd.DataFrame:
         od = known[at]
         on_die.append(od.short if od else "")
         if od is not None and term != "not-needed":
-            advice[k] = f"{od.text}: no external part (a series part at the driver if the waveform needs more)"
-            short[k] = od.short
-            series[k] = None
-    out = nets.copy()
-    out["on_die"] = on_die
-    out["advice"], out["proposal"], out["series_ohm"] = advice, short, series
-    return out
+            marked.append((k, od))
+    return on_die, marked

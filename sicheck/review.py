@@ -60,7 +60,7 @@ class Review:
         order = n.sort_values("delay", ascending=False, kind="stable")
         seen: set = set()
         once = []
-        for idx, net, pair in zip(order.index, order["net"], order["pair"]):
+        for idx, net, pair in zip(order.index.tolist(), order["net"].tolist(), order["pair"].tolist()):
             ident = frozenset((net, pair)) if pair else net
             if ident not in seen:
                 once.append(idx)
@@ -110,10 +110,12 @@ def _class_value(df: pd.DataFrame, rules: Rules, column: str, attr: str) -> np.n
 
 
 def _check_pairs(df: pd.DataFrame, src: str) -> None:
-    nets = set(df["net"].to_numpy(object).tolist())
-    for net, partner, row in zip(*(df[c].to_numpy(object).tolist() for c in ("net", "pair", "row"))):
-        if partner and partner == net:
-            raise InputError(f"net '{net}' is paired with itself", file=src, row=int(row), column="pair")
+    net, partner = df["net"].to_numpy(object), df["pair"].to_numpy(object)
+    for i in np.flatnonzero(partner == net).tolist():      # the first row whose partner is itself
+        if partner[i]:
+            raise InputError(f"net '{net[i]}' is paired with itself", file=src, row=int(df["row"].iloc[i]),
+                             column="pair")
+    nets = set(net.tolist())
     # A partner that lists its own rows must name this net back.
     back = df[df["pair"] != ""].groupby("net")["pair"].first().to_dict()
     for net, partner in back.items():
@@ -163,23 +165,29 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
                          file=src, row=int(df["row"].iloc[i]), column="gap")
     _check_pairs(df, src)
     # rise time: fastest edge given on any of the net's rows (conservative)
-    net_tr = df.groupby("net", sort=False)["rise_time"].min()
-    missing_tr = net_tr[net_tr.isna()]
-    if len(missing_tr):
-        net = missing_tr.index[0]
-        row = int(df.loc[df["net"] == net, "row"].iloc[0])
-        raise InputError(f"net '{net}' has no rise time: give a 'rise_time' column (e.g. 350ps) or a net class "
-                         "with rise_time in the rules", file=src, row=row, column="rise_time")
+    net_tr = df.groupby("net", sort=False)["rise_time"].transform("min").to_numpy(float)     # on each row
+    missing_tr = np.isnan(net_tr)
+    if missing_tr.any():        # the first net without one: its first row
+        i = int(np.argmax(missing_tr))
+        raise InputError(f"net '{df['net'].iloc[i]}' has no rise time: give a 'rise_time' column (e.g. 350ps) or a "
+                         "net class with rise_time in the rules", file=src, row=int(df["row"].iloc[i]),
+                         column="rise_time")
 
     # ---- the frequency each net works at: its class's freq, else the knee 0.5/Tr of its edge
     class_freq = {c.name: c.freq for c in rules.classes if c.freq}
-    knee = 0.5 / df["net"].map(net_tr).to_numpy(float)
-    df["freq"] = np.array([class_freq.get(c, k) for c, k in zip(df["net_class"].to_numpy(object).tolist(), knee)],
-                          dtype=float)
+    knee = 0.5 / net_tr
+    codes, names = pd.factorize(df["net_class"].to_numpy(object), use_na_sentinel=False)     # a lookup per class
+    of_class = np.array([class_freq.get(n, np.nan) for n in names], dtype=float)[codes]
+    df["freq"] = np.where(np.array([n in class_freq for n in names], dtype=bool)[codes], of_class, knee)
 
     # ---- unique cross-sections, solved once each (per frequency only when a dielectric is dispersive)
     gap_key = df["gap"].fillna(-1.0)
-    f_key = (df["freq"].map(lambda f: float(f"{f:.2g}")) if stackup.dispersive else pd.Series(0.0, index=df.index))
+    if stackup.dispersive:      # each distinct frequency rounded once: a board has a few edges and class freqs
+        f_uniq, f_at = np.unique(df["freq"].to_numpy(float), return_inverse=True)
+        f_key = pd.Series(np.array([float(f"{f:.2g}") for f in f_uniq.tolist()], dtype=float)[f_at.ravel()],
+                          index=df.index, name="freq")
+    else:
+        f_key = pd.Series(0.0, index=df.index)
     keys = pd.MultiIndex.from_arrays([df["layer"], df["width"], gap_key, f_key])
     codes, uniques = pd.factorize(keys)
     xs = [stackup.cross_section(layer, float(w), None if g < 0 else float(g), freq=fk or None)
@@ -210,8 +218,8 @@ def build_review(traces: TraceList, stackup: Stackup, rules: Rules, solver: Solv
     all_seg = pd.concat([seg, mirror], ignore_index=True) if len(mirror) else seg
     vias = _add_vias(all_seg, seg, stackup, topology)
     nets = _net_table(all_seg, rules, advise=False)     # the advice columns: worked out meanwhile (below)
-    from sicheck.on_die import mark_nets
-    nets = mark_nets(nets, rules)     # receivers terminated on the die: no external part proposed
+    from sicheck.on_die import on_die_column
+    nets["on_die"] = on_die_column(nets, rules)     # and their advice says so (on_die.mark_nets, meanwhile)
     nets["vias"], nets["via_stub_resonance"] = net_via_summary(nets, vias)
     # a partner listed only through its pair has its leg's shape
     for partner, leg in zip(mirror["net"].to_numpy(object).tolist(), mirror["pair"].to_numpy(object).tolist()):

@@ -72,9 +72,11 @@ class SegmentLosses:
         f, tand, r_dc, ac, ln = (a[j] for a in self._columns)
         zj = self._z[j] if z is None else np.asarray(z, dtype=float)
         r_ac = 2.0 * zj * ac * ln           # R at f0 = 2 Z alpha_c length
-        return [None if none else LineLoss(f_ref=fj, r_ac=rj, tan_delta=tj, r_dc=dj)
-                for none, fj, rj, tj, dj in zip(self.lossless[j].tolist(), f.tolist(), r_ac.tolist(),
-                                                tand.tolist(), r_dc.tolist())]
+        lossy = np.flatnonzero(~self.lossless[j])
+        out: list[LineLoss | None] = [None] * len(j)
+        for k, lo in zip(lossy.tolist(), LineLoss.many(f[lossy], r_ac[lossy], tand[lossy], r_dc[lossy])):
+            out[k] = lo
+        return out
 
 
 def _source(given: bool, cls, attr: str, key: str) -> str:

@@ -78,3 +78,43 @@ def test_advice_worked_out_apart_is_the_net_tables_then_marked():
         pd.testing.assert_frame_equal(placeholders, whole, check_exact=True)
         assert whole["advice"].str.contains("terminated on the die").sum() == 2
         assert whole["proposal"].str.contains("ohm series").any() == drivers
+
+
+def _review(board, text: str, rules: str | None = None):
+    from sicheck.review import build_review
+    from sicheck.rules import load_rule_sets
+    from sicheck.stackup import load_stackup
+    from sicheck.traces import read_traces
+    paths = board(text, rules=rules)
+    rs = load_rule_sets(paths[2:] or None)
+    return build_review(read_traces(paths[0], aliases=dict(rs.columns)), load_stackup(paths[1]), rs, waveforms=False)
+
+
+def test_a_net_paired_with_itself_is_named_with_its_first_such_row(board):
+    import pytest
+
+    from sicheck.errors import InputError
+    text = ("net,layer,length,width,rise_time,pair,gap\nA,L1,10mm,0.15mm,300ps,,\nB,L1,10mm,0.15mm,300ps,C,0.15mm\n"
+            "D,L1,10mm,0.15mm,300ps,D,0.15mm\nE,L1,10mm,0.15mm,300ps,E,0.15mm\n")
+    with pytest.raises(InputError) as e:
+        _review(board, text)
+    assert "net 'D' is paired with itself" in str(e.value) and e.value.row == 4
+
+
+def test_the_first_net_without_a_rise_time_is_named_at_its_first_row(board):
+    import pytest
+
+    from sicheck.errors import InputError
+    text = ("net,layer,length,width,rise_time\nA,L1,10mm,0.15mm,300ps\nB,L1,10mm,0.15mm,\nC,L1,10mm,0.15mm,\n"
+            "A,L1,10mm,0.15mm,\nB,L1,10mm,0.15mm,\n")
+    with pytest.raises(InputError) as e:
+        _review(board, text)
+    assert "net 'B' has no rise time" in str(e.value) and e.value.row == 3
+
+
+def test_each_row_works_at_its_class_freq_else_its_nets_knee(board):
+    rules = '[[net_class]]\nname = "FAST"\nmatch = ["F*"]\nfreq = "5GHz"\n[[net_class]]\nname = "SLOW"\nmatch = ["S*"]\n'
+    text = ("net,layer,length,width,rise_time\nF1,L1,10mm,0.15mm,100ps\nS1,L1,10mm,0.15mm,400ps\n"
+            "S1,L3,10mm,0.15mm,250ps\nN1,L1,10mm,0.15mm,1ns\n")
+    seg = _review(board, text, rules).segments
+    assert seg["freq"].tolist() == [5e9, 0.5 / 250e-12, 0.5 / 250e-12, 0.5 / 1e-9]

@@ -14,7 +14,7 @@ import math
 import re
 import textwrap
 from datetime import date
-from itertools import repeat
+from itertools import islice, repeat
 from pathlib import Path
 
 import numpy as np
@@ -127,13 +127,9 @@ def text_lines(text: str, width: float) -> int:
 
 def _longest(values) -> int:
     """Longest text among values (a sample of at most 20 000 is enough for a width)."""
-    n = 0
-    for k, v in enumerate(values):
-        if k >= 20000:
-            break
-        if isinstance(v, str) and len(v) > n:
-            n = len(v)
-    return n
+    # a pandas column as a list first: iterating it yields one element at a time, slowly
+    head = values.iloc[:20000].tolist() if hasattr(values, "iloc") else list(islice(values, 20000))
+    return max((len(v) for v in head if isinstance(v, str)), default=0)
 
 
 class _Sheet:
