@@ -130,11 +130,13 @@ def z_step(ctx, chk):
     g = t.groupby(["net", "paired"], sort=False)["z"]
     stats = pd.DataFrame({"lo": g.min(), "hi": g.max(), "lo_at": g.idxmin(), "hi_at": g.idxmax()})
     stats = stats[(stats["hi"] - stats["lo"]) / stats["lo"] * 100.0 > limit]      # vectorised; loop over steps only
-    # plain arrays in the loop: a large board has tens of thousands of steps (iterrows costs ~50 us each)
-    pair_col, layer_col, row_col = seg["pair"].to_numpy(), seg["layer"].to_numpy(), seg["row"].to_numpy()
+    # plain Python values in the loop: a large board has tens of thousands of steps (iterrows costs ~50 us
+    # each, and numpy scalars format and add slower than floats)
+    pair_col, layer_col = seg["pair"].to_numpy(object).tolist(), seg["layer"].to_numpy(object).tolist()
+    row_col, z = seg["row"].to_numpy().tolist(), z.tolist()
     done: set = set()
-    for (net, is_pair), lo, hi, lo_at, hi_at in zip(stats.index, stats["lo"].to_numpy(), stats["hi"].to_numpy(),
-                                                    stats["lo_at"].to_numpy(), stats["hi_at"].to_numpy()):
+    for (net, is_pair), lo, hi, lo_at, hi_at in zip(stats.index.tolist(), *(stats[c].to_numpy().tolist()
+                                                                           for c in ("lo", "hi", "lo_at", "hi_at"))):
         partner = pair_col[int(lo_at)] if is_pair else ""
         ident = pair_id(net, partner) if is_pair else net
         if ident in done:

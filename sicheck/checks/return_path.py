@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import re
 
-from sicheck.checks.engine import check, make_key
-from sicheck.checks.vias import grouped, transition_label, vias_of
+from sicheck.checks.engine import check, make_key, plain_columns
+from sicheck.checks.vias import grouped_positions, transition_label, vias_of
 
 # A plane net counts as ground when its name says so (common naming practice); every other plane net is a
 # power net.
@@ -63,16 +63,20 @@ def return_path(ctx, chk):
             moved[(a_name, b_name)] = not (a is None or b is None or set(a) & set(b))
         keep = [how != "export" and moved[(x, y)]
                 for how, x, y in zip(vias["how"].to_numpy(object).tolist(), from_layer.tolist(), to_layer.tolist())]
+        kept = vias[keep]
+        # plain column lists, read at each group's first via (a large board has tens of thousands of groups)
+        col = plain_columns(kept, ("from_layer", "to_layer", "how", "row", "count"))
         sides: dict[tuple[str, str], tuple] = {}        # per pair of layers: the planes' text, once
-        for ident, label, first, rows in grouped(vias[keep]):
-            at = (first.from_layer, first.to_layer)
-            if at not in sides:
-                a, b = refs[at[0]], refs[at[1]]
-                sides[at] = (a, b, sorted({nets[p] for p in a} & {nets[p] for p in b}), _planes(a, nets),
-                             _planes(b, nets))
-            a, b, shared, before, after = sides[at]
-            where = transition_label(first.from_layer, first.to_layer, first.how)
-            n = sum(r.count for r in rows)
+        for ident, label, at in grouped_positions(kept):
+            first = at[0]
+            at_layers = (col["from_layer"][first], col["to_layer"][first])
+            if at_layers not in sides:
+                a, b = refs[at_layers[0]], refs[at_layers[1]]
+                sides[at_layers] = (a, b, sorted({nets[p] for p in a} & {nets[p] for p in b}), _planes(a, nets),
+                                    _planes(b, nets))
+            a, b, shared, before, after = sides[at_layers]
+            where = transition_label(at_layers[0], at_layers[1], col["how"][first])
+            n = sum(col["count"][i] for i in at)
             vias_txt = f"{n} via{'s' if n > 1 else ''}"
             if shared:
                 net = shared[0]
@@ -85,7 +89,7 @@ def return_path(ctx, chk):
                        f"{'/'.join(sorted({nets[p] for p in b}))} at the transition, or route on layers that "
                        "reference the same net")
                 sev = None
-            yield chk.finding(label, where, msg, row=int(first.row), key=make_key(chk.id, ident, where),
+            yield chk.finding(label, where, msg, row=int(col["row"][first]), key=make_key(chk.id, ident, where),
                               severity=sev)
     seg = ctx.segments
     for layer in dict.fromkeys(seg["layer"].to_numpy(object).tolist()):

@@ -35,6 +35,16 @@ def grouped(vias):
     """Vias grouped per net (a pair once) and per pair of layers (either direction), in trace-list order.
 
     Yields (ident, label, first via row, all via rows of the group)."""
+    rows = list(plain_rows(vias)) if not vias.empty else []
+    for ident, label, at in grouped_positions(vias):
+        group = [rows[i] for i in at]
+        yield ident, label, group[0], group
+
+
+def grouped_positions(vias):
+    """grouped() with each group's vias as their positions in ``vias`` (the first via first), not as rows.
+
+    Yields (ident, label, positions)."""
     if vias.empty:
         return
     # one key per via, grouped by pandas: a large board has a via per layer change
@@ -54,15 +64,15 @@ def grouped(vias):
     size = np.diff(np.r_[starts, len(order)])
     other_leg = net[order] != np.repeat(net[order][starts], size)
     both = np.bincount(np.repeat(np.arange(len(starts)), size), weights=other_leg, minlength=len(starts)) > 0
-    rows = list(plain_rows(vias))
+    names = net.tolist()
     order_list, ends = order.tolist(), np.r_[starts[1:], len(order)].tolist()
     for k, (s, e) in enumerate(zip(starts.tolist(), ends)):
-        group = [rows[i] for i in order_list[s:e]]
+        at = order_list[s:e]
         if both[k]:      # a pair listed on both legs has each via twice: count one leg's
-            leg = min(r.net for r in group)
-            group = [r for r in group if r.net == leg]
+            leg = min(names[i] for i in at)
+            at = [i for i in at if names[i] == leg]
         i = order_list[s]
-        yield ident[i], label[i], group[0], group
+        yield ident[i], label[i], at
 
 
 def _advice(kind: str, far: str) -> str:
