@@ -27,7 +27,7 @@ from scipy import fft as sfft
 
 from sicheck.physics.causal_line import ConstantRG, Line, LineLoss, front_delay, shape_key, smooth_per_delay_lines
 from sicheck.physics.line_network import (RECORD_FACTOR, SAMPLES_PER_RAMP, SHAPE_NODES, WRAP_DAMPING,
-                                          Simulation, _extend_unsettled, record_ladder, record_size)
+                                          Simulation, _extend_unsettled)
 from sicheck.physics.transient import RAMP_PER_RISE, LoadSet, Waveform, metrics_batch, preview_index, ramp_voltage
 
 
@@ -112,16 +112,10 @@ RESULT_SAMPLES = 1 << 24       # waveform samples one simulate_many call may han
 
 def samples_needed(sim: Simulation) -> int:
     """The time samples a simulation's answer holds (all candidates), for callers that slice their work;
-    0 when the simulation cannot run (simulate_many then reports why)."""
+    0 when the simulation cannot run (simulate_many then reports why). The record sizes are the
+    simulation's own (Simulation.records), which _prepare takes up again."""
     try:
-        ramp = sim.rise * RAMP_PER_RISE
-        dt = ramp / SAMPLES_PER_RAMP
-        rs = np.atleast_1d(np.asarray(sim.r_source, dtype=float))
-        if sim.t_end is not None and np.ndim(sim.t_end) == 0:      # one window for all: one record size
-            return len(rs) * int(record_ladder(record_size(float(sim.t_end), dt)) / RECORD_FACTOR)
-        ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), rs.shape) if sim.t_end is not None
-                else sim.estimated_window)
-        return sum(int(record_ladder(record_size(te, dt)) / RECORD_FACTOR) for te in ends)
+        return sum(int(n / RECORD_FACTOR) for n in sim.records)
     except (ValueError, ZeroDivisionError):
         return 0
 
@@ -145,11 +139,9 @@ def _prepare(sim: Simulation, chain: _Chain) -> dict:
     dt = ramp / SAMPLES_PER_RAMP
     if sim.t_end is not None and np.ndim(sim.t_end) == 0:     # one window for all: one record size
         ends = np.full(m, float(sim.t_end))
-        records = [record_ladder(record_size(float(sim.t_end), dt))] * m
     else:
-        ends = (np.broadcast_to(np.asarray(sim.t_end, dtype=float), (m,)) if sim.t_end is not None
-                else sim.estimated_window)
-        records = [record_ladder(record_size(te, dt)) for te in ends]
+        ends = sim.ends
+    records = sim.records
     # DC: the driver, the lines' DC resistance in series, the load's conductance to its voltage (on plain
     # floats: a handful of candidates, and numpy's per-call cost on arrays this small is most of the time)
     v_low, v_high, keys = [], [], []

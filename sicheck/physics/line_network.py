@@ -120,10 +120,12 @@ class Network:
     def chain(cls, elements: Sequence[Line | Series]) -> tuple["Network", int]:
         """Elements in series, driver end first; returns (network, far-end node)."""
         net = cls()
-        node = 0
         for e in elements:
-            node = net.add(node, e)
-        return net, node
+            if not isinstance(e, (Line, Series)):
+                raise TypeError(f"an edge is a Line or a Series part, not {type(e).__name__}")
+        # each element's far end is the next node: the edges add() would make, without its checks per edge
+        net.edges = [(k, k + 1, e) for k, e in enumerate(elements)]
+        return net, len(net.edges)
 
     def lines(self) -> list[Line]:
         return [e for _, _, e in self.edges if isinstance(e, Line)]
@@ -587,6 +589,25 @@ class Simulation:
         """settle_window for the candidates (a batching engine asks for it more than once: worked out once)."""
         return settle_window(self.net, np.atleast_1d(np.asarray(self.r_source, dtype=float)), self.loads,
                              self.rise * RAMP_PER_RISE)
+
+    @functools.cached_property
+    def records(self) -> list[int]:
+        """Each candidate's record size (record_ladder's) at the engine's time step, as simulate_network and
+        chain_batch size them; worked out once (a batching engine asks for it to plan and to run). ValueError
+        (or ZeroDivisionError at a zero rise time) when a candidate cannot be sized."""
+        dt = self.rise * RAMP_PER_RISE / SAMPLES_PER_RAMP
+        m = len(np.atleast_1d(np.asarray(self.r_source, dtype=float)))
+        if self.t_end is not None and np.ndim(self.t_end) == 0:     # one window for all: one record size
+            return [record_ladder(record_size(float(self.t_end), dt))] * m
+        return [record_ladder(record_size(te, dt)) for te in self.ends]
+
+    @property
+    def ends(self) -> np.ndarray:
+        """Each candidate's window: the one given, else the estimated one."""
+        if self.t_end is None:
+            return self.estimated_window
+        m = len(np.atleast_1d(np.asarray(self.r_source, dtype=float)))
+        return np.broadcast_to(np.asarray(self.t_end, dtype=float), (m,))
 
     def run(self) -> dict[int, list[Waveform]]:
         return simulate_network(self.net, self.receivers, self.swing, self.rise, self.r_source, self.loads,

@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import functools
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -48,20 +48,85 @@ class Limits:
     settle_rise_times: float = 2.0
 
 
-@dataclass
 class Candidate:
-    scheme: str
-    text: str
-    metrics: dict
-    power_w: float
-    series_ohm: float | None = None
-    end_ohm: float | None = None
-    end_cap: float | None = None
-    meets: bool = False
-    violations: list[str] = field(default_factory=list)
-    wave: tuple | None = None      # (t, v) decimated, for charts (the worst receiver's)
-    receivers: list[dict] = field(default_factory=list)   # per receiver: name, metrics, meets, violations
-    worst: int = 0                 # index of the worst receiver
+    """One termination simulated: its scheme, the part as text, the receiver's metrics, static power (W).
+
+    A board's nets make a handful of candidates each, and their caller reads the texts of one or two of
+    them: ``text``, ``violations`` and ``receivers`` are put into words when first read (the counts that
+    rank candidates, ``n_violations``, are kept as numbers).
+    """
+
+    __slots__ = ("scheme", "_text", "metrics", "power_w", "series_ohm", "end_ohm", "end_cap", "meets",
+                 "n_violations", "_violations", "_judged", "_per", "_names", "wave", "_receivers", "worst")
+
+    def __init__(self, scheme: str, text, metrics: dict, power_w: float, series_ohm: float | None = None,
+                 end_ohm: float | None = None, end_cap: float | None = None, meets: bool = False,
+                 violations: list[str] | None = None, wave: tuple | None = None,
+                 receivers: list[dict] | None = None, worst: int = 0):
+        self.scheme = scheme
+        self._text = text              # the text, or (template, values) for str.format when first read
+        self.metrics = metrics
+        self.power_w = power_w
+        self.series_ohm = series_ohm
+        self.end_ohm = end_ohm
+        self.end_cap = end_cap
+        self.meets = meets
+        self._violations = None if violations is None else list(violations)
+        self.n_violations = len(violations) if violations is not None else 0
+        self._judged = None            # (settle limit ns, Limits) the metrics were judged against
+        self._per = None               # a multi-drop net's: each receiver's own candidate (this one at `worst`)
+        self._names = None             # the receivers' names
+        self.wave = wave               # (t, v) decimated, for charts (the worst receiver's)
+        self._receivers = receivers
+        self.worst = worst             # index of the worst receiver
+
+    @property
+    def text(self) -> str:
+        if not isinstance(self._text, str):
+            template, values = self._text
+            self._text = template.format(*values)
+        return self._text
+
+    @property
+    def violations(self) -> list[str]:
+        """Why the candidate does not meet the limits (at which receiver, on a multi-drop net)."""
+        if self._violations is None:
+            if self._per is not None:
+                self._violations = [f"at {name}: {v}" for name, p in zip(self._names, self._per)
+                                    for v in p._own_violations()]
+            else:
+                self._violations = self._own_violations()
+        return self._violations
+
+    @violations.setter
+    def violations(self, value: list[str]) -> None:
+        self._violations = list(value)
+        self.n_violations = len(self._violations)
+
+    def _own_violations(self) -> list[str]:
+        return [] if self._judged is None else _violation_texts(self.metrics, *self._judged)
+
+    @property
+    def receivers(self) -> list[dict]:
+        """Per receiver: name, metrics, meets, violations."""
+        if self._receivers is None:
+            if self._per is not None:
+                self._receivers = [{"receiver": name, "metrics": p.metrics, "meets": p.meets,
+                                    "violations": list(p.violations)} for name, p in zip(self._names, self._per)]
+            elif self._names is not None:
+                self._receivers = [{"receiver": self._names[0], "metrics": self.metrics, "meets": self.meets,
+                                    "violations": list(self.violations)}]
+            else:
+                self._receivers = []
+        return self._receivers
+
+    @receivers.setter
+    def receivers(self, value: list[dict]) -> None:
+        self._receivers = value
+
+    def __repr__(self) -> str:
+        return (f"Candidate(scheme={self.scheme!r}, text={self.text!r}, meets={self.meets!r}, "
+                f"power_w={self.power_w!r}, violations={self.violations!r})")
 
 
 def _neighbours(value: float, series: str = "E24", spread: int = 1) -> tuple[float, ...]:
@@ -98,7 +163,23 @@ def _settle_limit_ns(td_total: float, rise: float, limits: Limits) -> float:
 
 
 def _evaluate(c: Candidate, settle_limit: float, limits: Limits) -> None:
+    """Judge the candidate's metrics against the limits: meets and the number of violations (their texts,
+    _violation_texts, are written when asked for)."""
     m = c.metrics
+    n = 0
+    if m["overshoot_pct"] > limits.max_overshoot_pct:
+        n += 1
+    if m["ringback_pct"] > limits.max_ringback_pct:
+        n += 1
+    if not m["settled_in_window"] or m["settle_ns"] > settle_limit:
+        n += 1
+    c._judged = (settle_limit, limits)
+    c._violations = None
+    c.n_violations = n
+    c.meets = not n
+
+
+def _violation_texts(m: dict, settle_limit: float, limits: Limits) -> list[str]:
     v = []
     if m["overshoot_pct"] > limits.max_overshoot_pct:
         v.append(f"overshoot {m['overshoot_pct']:.0f} % > {limits.max_overshoot_pct:g} %")
@@ -108,8 +189,7 @@ def _evaluate(c: Candidate, settle_limit: float, limits: Limits) -> None:
         v.append(f"not settled within the {m['window_ns']:.2f} ns simulated (limit {settle_limit:.2f} ns)")
     elif m["settle_ns"] > settle_limit:
         v.append(f"settles at {m['settle_ns']:.2f} ns > {settle_limit:.2f} ns")
-    c.violations = v
-    c.meets = not v
+    return v
 
 
 def _decimate(wf):
@@ -125,6 +205,11 @@ def tree_network(z: Sequence[float], td: Sequence[float], losses: Sequence[LineL
     driver). ``parts[i]``: a part in series at the far end of line i (what hangs there comes after it).
     Returns the network and each line's far-end node."""
     parts = parts or {}
+    if (not parts and len(parents) == len(z) == len(td) == len(losses)
+            and all(p == i - 1 for i, p in enumerate(parents))):
+        # a plain chain (most nets): line i from node i to node i + 1
+        net, _ = Network.chain([Line(float(a), float(d), lo) for a, d, lo in zip(z, td, losses)])
+        return net, list(range(1, len(z) + 1))
     below: dict[int, list[int]] = {}
     for i, p in enumerate(parents):
         below.setdefault(int(p), []).append(i)
@@ -146,7 +231,7 @@ def tree_network(z: Sequence[float], td: Sequence[float], losses: Sequence[LineL
 
 
 def _badness(c: Candidate):
-    return (not c.meets, len(c.violations), max(c.metrics["overshoot_pct"], 0.0) + c.metrics["ringback_pct"]
+    return (not c.meets, c.n_violations, max(c.metrics["overshoot_pct"], 0.0) + c.metrics["ringback_pct"]
             + c.metrics["settle_ns"])
 
 
@@ -259,7 +344,8 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
         return math.nan if any(x != x for x in times) else max(times)      # (a NaN wins, as in numpy's max)
 
     def stage(specs, t_end=None, given=None):
-        """specs: (scheme, text, r_source, Load, power, extra fields); simulated together. given: inputs(specs)."""
+        """specs: (scheme, text, r_source, Load, power, extra fields); simulated together. given: inputs(specs).
+        A text is written when read (Candidate.text): a spec gives it as (str.format template, values)."""
         if not specs:
             return []
         rs, loads = inputs(specs) if given is None else given
@@ -273,16 +359,14 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
                 per.append(c)
             if len(per) == 1:
                 c = per[0]
-                c.receivers = [{"receiver": names[0], "metrics": c.metrics, "meets": c.meets,
-                                "violations": list(c.violations)}]
             else:
                 w = max(range(len(per)), key=lambda j: _badness(per[j]))
                 c = per[w]
                 c.worst = w
                 c.meets = all(p.meets for p in per)
-                c.violations = [f"at {names[j]}: {v}" for j, p in enumerate(per) for v in p.violations]
-                c.receivers = [{"receiver": names[j], "metrics": p.metrics, "meets": p.meets,
-                                "violations": list(p.violations)} for j, p in enumerate(per)]
+                c.n_violations = sum(p.n_violations for p in per)
+                c._per = per
+            c._names = names
             if keep_waves:
                 c.wave = _decimate(res[rx_nodes[c.worst]][k])
             out.append(c)
@@ -297,8 +381,8 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
         p_od = _power_parallel(swing, driver_ohm, r_od, v_od)
         ideal = float(z[driver_end]) - driver_ohm
         specs = [("on-die", od_text, driver_ohm, od, p_od, {})] + [
-            ("series", f"{r:g} ohm in series at the driver{' (each leg)' if zdiff is not None else ''}, with the "
-             "on-die termination", driver_ohm + r, od, _power_parallel(swing, driver_ohm + r, r_od, v_od),
+            ("series", ("{:g} ohm in series at the driver{}, with the on-die termination",
+                        (r, " (each leg)" if zdiff is not None else "")), driver_ohm + r, od, _power_parallel(swing, driver_ohm + r, r_od, v_od),
              {"series_ohm": r}) for r in (_neighbours(ideal) if ideal >= 1.0 else [])]
         cands = yield from stage(specs)
         if cands[0].meets:
@@ -306,7 +390,7 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
         return cands[0], _pick(cands, cands[0]), cands
     if zdiff is not None:
         # odd mode: each leg sees Zodd; the differential resistor is R/2 from each leg to the centre
-        specs = [base] + [("differential", f"{r:g} ohm across {rx_at}", driver_ohm,
+        specs = [base] + [("differential", ("{:g} ohm across {}", (r, rx_at)), driver_ohm,
                            Load(cap=load_cap, end_ohm=r / 2), (swing * 2) ** 2 / (r + 2 * driver_ohm), {"end_ohm": r})
                           for r in _neighbours(zdiff)]
         cands = yield from stage(specs)
@@ -314,15 +398,15 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
 
     z_drv, z_end = float(z[driver_end]), float(z[main_line])
     ideal = z_drv - driver_ohm
-    series = [("series", f"{r:g} ohm in series at the driver", driver_ohm + r, pin, 0.0,
+    series = [("series", ("{:g} ohm in series at the driver", (r,)), driver_ohm + r, pin, 0.0,
                {"series_ohm": r}) for r in (_neighbours(ideal) if ideal >= 1.0 else [])]
     vt = swing / 2.0
     r2 = eseries.nearest(2.0 * z_end)
     req, veq = thevenin(r2, r2, swing)
-    ends = ([("parallel", f"{r:g} ohm to {vt:g} V at {at}", driver_ohm,
+    ends = ([("parallel", ("{:g} ohm to {:g} V at {}", (r, vt, at)), driver_ohm,
               Load(cap=load_cap, end_ohm=r, end_volts=vt), _power_parallel(swing, driver_ohm, r, vt),
               {"end_ohm": r}) for r in _neighbours(z_end, spread=1)]
-            + [("thevenin", f"{r2:g} ohm to the supply and {r2:g} ohm to ground at {at}", driver_ohm,
+            + [("thevenin", ("{0:g} ohm to the supply and {0:g} ohm to ground at {1}", (r2, at)), driver_ohm,
                 Load(cap=load_cap, end_ohm=req, end_volts=veq), _power_thevenin(swing, driver_ohm, r2, r2),
                 {"end_ohm": r2})])
     # the first and last stages share one window, so the last reuses the first's line two-ports; their inputs
@@ -343,7 +427,7 @@ def choose_steps(z: Sequence[float], td: Sequence[float], rise: float, driver_oh
         return none, _pick(cands, none), cands
     r_end = eseries.nearest(z_end)
     c_min = 3.0 * 2.0 * td_total / r_end
-    rc_specs = [("rc", f"{r_end:g} ohm + {cval * 1e12:g} pF to ground at {at}", driver_ohm,
+    rc_specs = [("rc", ("{:g} ohm + {:g} pF to ground at {}", (r_end, cval * 1e12, at)), driver_ohm,
                  Load(cap=load_cap, end_ohm=r_end, end_cap=cval), 0.0, {"end_ohm": r_end, "end_cap": cval})
                 for cval in _neighbours(c_min, "E12", 1)[1:]]
     # An RC's capacitor charges for several of its time constants; pass or fail is decided by the
@@ -365,5 +449,5 @@ def _pick(cands: list[Candidate], none: Candidate) -> Candidate:
     # nothing meets the limits: the terminated candidate with the fewest and mildest violations
     terminated = [c for c in cands if c.scheme != "none"] or [none]
     # (an undershoot, v_max below v_final, counts as no overshoot: it is not a merit)
-    return min(terminated, key=lambda c: (len(c.violations), max(c.metrics["overshoot_pct"], 0.0)
+    return min(terminated, key=lambda c: (c.n_violations, max(c.metrics["overshoot_pct"], 0.0)
                                           + c.metrics["ringback_pct"] + c.metrics["settle_ns"]))
