@@ -56,7 +56,7 @@ class Review:
     @cached_property
     def net_counts(self) -> dict[str, int]:
         """Headline counts by termination and electrical class, a pair counted once (by its longer leg)."""
-        n = self.nets
+        n = self.nets[["net", "pair", "delay", "termination", "electrical"]]      # not the whole table twice
         order = n.sort_values("delay", ascending=False, kind="stable")
         seen: set = set()
         once = []
