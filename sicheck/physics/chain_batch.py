@@ -20,7 +20,6 @@ from __future__ import annotations
 
 import math
 from collections import defaultdict
-from dataclasses import dataclass
 from typing import NamedTuple, Sequence
 
 import numpy as np
@@ -227,9 +226,10 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
         t0 = np.minimum(np.array([plan[nets[j]]["chain"].front for j in by_rank]), n_rec * dt / RECORD_FACTOR)
         h0 = (v_high - v_low) / swing[net_of]
         # V_rx / V_source = g / (p + R_s q); the spectra scaled by the ramp and the swing once per net
-        g *= ramp_s * swing[:, None]
+        scale = ramp_s * swing[:, None]
+        g *= scale
         ref = _delays(sigma, 2.0 * math.pi / t_rec, t0, k_bins)
-        ref *= ramp_s * swing[:, None]
+        ref *= scale
         den = q[u]
         den *= rs[:, None]
         den += p[u]
@@ -344,18 +344,22 @@ def _loaded_chains(chains: list[list[_Run]], owner: np.ndarray, y: np.ndarray, s
     return p, q, at, g, rank
 
 
-@dataclass(frozen=True)
-class _Run:
+class _Run(NamedTuple):
     """Sections of one cross-section end to end: one uniform line of their summed delay (the same line exactly)."""
     key: tuple | None
     z0: float
     delay: float
 
 
+# shape_key keeps its answers for the sections asked about again and again; here each section is asked about
+# once (chain_batch keeps a network's runs), so its cache would only hash each section and store the answer
+_shape_key_once = getattr(shape_key, "__wrapped__", shape_key)
+
+
 def _uniform_runs(lines: list[Line]) -> list[_Run]:
     runs: list[_Run] = []
     for x in lines:
-        key = shape_key(x)
+        key = _shape_key_once(x)
         if runs and runs[-1].key == key and runs[-1].z0 == x.z0:
             runs[-1] = _Run(key, x.z0, runs[-1].delay + x.delay)
         else:
