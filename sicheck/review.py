@@ -56,7 +56,7 @@ class Review:
     @cached_property
     def net_counts(self) -> dict[str, int]:
         """Headline counts by termination and electrical class, a pair counted once (by its longer leg)."""
-        n = self.nets
+        n = self.nets[["net", "pair", "delay", "termination", "electrical"]]      # not the whole table twice
         order = n.sort_values("delay", ascending=False, kind="stable")
         seen: set = set()
         once = []
@@ -325,8 +325,9 @@ def _topology(df: pd.DataFrame, seg: pd.DataFrame, rules: Rules, src: str) -> di
         on[ix[list(t.path)]] = True
         step[ix[list(t.path)]] = ix[0] + np.arange(len(t.path))
     classes = {c.name: c for c in rules.classes}
-    frac_of = {c: rules.value("ignore_shorter_than_tr", classes.get(c)) for c in pd.unique(seg["net_class"])}
-    frac = seg["net_class"].map(frac_of).to_numpy(float)
+    cls_at, cls_names = pd.factorize(seg["net_class"].to_numpy(object))        # a lookup per class
+    frac = np.array([rules.value("ignore_shorter_than_tr", classes.get(c)) for c in cls_names.tolist()],
+                    dtype=float)[cls_at]
     tr = seg.groupby("net", sort=False)["rise_time"].transform("min").to_numpy(float)
     long_enough = on & (seg["delay"].to_numpy(float) >= frac * tr)
     order = pd.DataFrame({"net": net, "step": np.where(on, step, len(seg)), "rank": ~long_enough})
@@ -352,12 +353,15 @@ def _add_loss(seg: pd.DataFrame, stackup: Stackup, xs, results, codes, solver: S
     tand = np.array([r.signal_tand for r in results], dtype=float)[codes]
     a_c = np.zeros(len(seg))
     a_d = np.zeros(len(seg))
-    for layer in pd.unique(seg["layer"]):
-        m = (seg["layer"] == layer).to_numpy()
+    # the columns and each row's layer (as a code) read once, not once per layer
+    at, layers = pd.factorize(seg["layer"].to_numpy(object))
+    z = np.where(seg["pair"].to_numpy(object) != "", seg["zodd"].to_numpy(float), seg["z0"].to_numpy(float))
+    freq, eps = seg["freq"].to_numpy(float), seg["eps_eff"].to_numpy(float)
+    for k, layer in enumerate(layers.tolist()):
+        m = at == k
         lay = stackup.layer(layer)
         rough = Roughness(rms=lay.roughness, huray_radius=lay.huray_radius, huray_ratio=lay.huray_ratio)
-        zs = np.where(seg["pair"].to_numpy()[m] != "", seg["zodd"].to_numpy()[m], seg["z0"].to_numpy()[m])
-        c, d = alphas(seg["freq"].to_numpy()[m], zs, seg["eps_eff"].to_numpy()[m], tand[m], dzdn[m], rough)
+        c, d = alphas(freq[m], z[m], eps[m], tand[m], dzdn[m], rough)
         a_c[m], a_d[m] = c, d
     seg["conductor_loss_db_per_m"] = a_c
     seg["dielectric_loss_db_per_m"] = a_d
@@ -429,9 +433,12 @@ def _segment_table(df: pd.DataFrame, codes: np.ndarray, xs, results) -> pd.DataF
 
 def _layer_paths(seg: pd.DataFrame, nets: pd.Index) -> np.ndarray:
     """Each net's layers in the order its segments visit them ("TOP > IN3")."""
-    dd = seg[["net", "layer"]].drop_duplicates()
+    # each (net, layer) once, first rows first: the pair as one integer of the two codes, not two texts
+    net_at, _ = pd.factorize(seg["net"].to_numpy(object))
+    layer_at, layers = pd.factorize(seg["layer"].to_numpy(object))
+    first = np.sort(np.unique(net_at.astype(np.int64) * len(layers) + layer_at, return_index=True)[1])
     paths: dict[str, str] = {}
-    for net, layer in zip(dd["net"].to_numpy(), dd["layer"].to_numpy()):
+    for net, layer in zip(seg["net"].to_numpy(object)[first].tolist(), seg["layer"].to_numpy(object)[first].tolist()):
         p = paths.get(net)
         paths[net] = layer if p is None else f"{p} > {layer}"
     return np.array([paths[n] for n in nets.to_numpy(object).tolist()], dtype=object)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pandas as pd
 
-from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label, plain_columns, plain_rows, prepared
+from sicheck.checks.engine import Param, check, make_key, pair_id, pair_label, plain_columns, prepared
 from sicheck.checks.length import line_positions
 from sicheck.checks.loss import first_rows
 
@@ -63,12 +63,12 @@ def waveform(ctx, chk):
     # simulated (a part) and failed: the text of those few only, not of every net
     failed = [i for i, part, meets in zip(pos.tolist(), c["termination_part"], c["waveform_meets_limits"])
               if isinstance(part, str) and part and meets is False]
-    for r in plain_rows(nets.iloc[failed][["net", "pair", "layers", "termination_part", "waveform_violations"]]):
-        ident = pair_id(r.net, r.pair) if r.pair else r.net
-        yield chk.finding(pair_label(r.net, r.pair) if r.pair else r.net, r.layers,
-                          f"no standard termination meets the limits; best found: {r.termination_part} "
-                          f"({r.waveform_violations})", row=rows.get(r.net, rows.get(r.pair)),
-                          key=make_key(chk.id, ident))
+    c = plain_columns(nets, ("net", "pair", "layers", "termination_part", "waveform_violations"), failed)
+    for net, pair, layers, part, violations in zip(*c.values()):
+        ident = pair_id(net, pair) if pair else net
+        yield chk.finding(pair_label(net, pair) if pair else net, layers,
+                          f"no standard termination meets the limits; best found: {part} ({violations})",
+                          row=rows.get(net, rows.get(pair)), key=make_key(chk.id, ident))
     flagged = nets[nets["termination"] != "not-needed"]
     unsimulated = int((flagged["termination_part"] == "").sum())
     if unsimulated:

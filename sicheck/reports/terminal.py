@@ -58,10 +58,12 @@ def print_summary(rv: Review, console: Console, worst: int = 10) -> None:
         console.print(f"crosstalk: {len(x)} nets; worst NEXT {ne['next_pct']:.2f} % {escape(ne['net'])}, "
                       f"FEXT {fe['fext_pct']:+.2f} % {escape(fe['net'])}")
 
-    need = nets[nets["termination"] != "not-needed"].sort_values("td_over_tr", ascending=False)
+    shown = [k for k in ("net", "pair", "length", "td_over_tr", "termination", "proposal", "termination_part",
+                         "recommended_termination", "before_overshoot_pct", "after_overshoot_pct") if k in nets.columns]
+    need = nets.loc[nets["termination"] != "not-needed", shown].sort_values("td_over_tr", ascending=False)
     # a pair is shown once, by its longer leg
     seen, keep = set(), []
-    for i, (net, pair) in enumerate(zip(need["net"], need["pair"])):
+    for net, pair in zip(need["net"].tolist(), need["pair"].tolist()):     # lists: a column iterates slowly
         key = frozenset((net, pair)) if pair else net
         keep.append(key not in seen)
         seen.add(key)
