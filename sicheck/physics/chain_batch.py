@@ -71,7 +71,9 @@ def _chain(net) -> _Chain | None:
 def simulate_many(sims: Sequence[Simulation]) -> list:
     """Each simulation's answer (as Simulation.run returns it), or the ValueError it raised."""
     out: list = [None] * len(sims)
-    groups: dict[tuple, list] = defaultdict(list)       # (ramp, record) -> [(sim, candidate)]
+    # (ramp, record) -> [(sim, candidate, R_s, v_low, v_high, load key)]: what the solve takes of each candidate,
+    # gathered once here, so that a batch's columns are one transposition (zip) rather than a lookup each
+    groups: dict[tuple, list] = defaultdict(list)
     plan = {}
     for k, sim in enumerate(sims):
         chain = _chain(sim.net) if plain_chain(sim) is not None else None
@@ -84,8 +86,10 @@ def simulate_many(sims: Sequence[Simulation]) -> list:
             out[k] = e
             continue
         plan[k] = p
-        for i, n_rec in enumerate(plan[k]["records"]):
-            groups[(plan[k]["ramp"], n_rec)].append((k, i))
+        ramp = p["ramp"]
+        for i, (n_rec, r, lo, hi, key) in enumerate(zip(p["records"], p["rs"], p["v_low"], p["v_high"],
+                                                          p["load_keys"])):
+            groups[(ramp, n_rec)].append((k, i, r, lo, hi, key))
     waves: dict[int, list] = {k: [None] * len(p["r_source"]) for k, p in plan.items()}
     for (ramp, n_rec), members in groups.items():
         _solve_group(sims, plan, ramp, n_rec, members, waves)
@@ -137,7 +141,7 @@ def _prepare(sim: Simulation, chain: _Chain) -> dict:
         ls = ls.take(np.zeros(m, dtype=int))
     ramp = sim.rise * RAMP_PER_RISE
     dt = ramp / SAMPLES_PER_RAMP
-    if sim.t_end is not None and np.ndim(sim.t_end) == 0:     # one window for all: one record size
+    if isinstance(sim.t_end, float) or sim.t_end is not None and np.ndim(sim.t_end) == 0:   # one window for all
         ends = np.full(m, float(sim.t_end))
     else:
         ends = sim.ends
@@ -166,13 +170,14 @@ SHAPE_CACHE_BINS = 1 << 21   # K and M kept per cross-section for a record group
 def _batches(members, plan, k_bins):
     """Members in batches that hold at most GROUP_BINS complex bins (candidates and the lines they need)."""
     batch, size, seen = [], 0, set()
-    for k, i in members:
+    for member in members:
+        k = member[0]
         cost = k_bins * (1 + (0 if k in seen else len(plan[k]["chain"].lines)))
         if batch and size + cost > GROUP_BINS:
             yield batch
             batch, size, seen = [], 0, set()
             cost = k_bins * (1 + len(plan[k]["chain"].lines))
-        batch.append((k, i))
+        batch.append(member)
         seen.add(k)
         size += cost
     if batch:
@@ -193,23 +198,22 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
     t_shown = t[idx]
     shapes: dict = {}                  # shape_key -> (K, M) on this grid, for all the group's batches
     for batch in _batches(members, plan, k_bins):
-        nets = list(dict.fromkeys(k for k, _ in batch))
+        ks, cand, rs, v_low, v_high, load_keys = zip(*batch)
+        nets = list(dict.fromkeys(ks))
         where = {k: j for j, k in enumerate(nets)}
         # the candidates of a net that share a load (a stage's series values) share its solve
         distinct: dict = {}
-        of_load = np.empty(len(batch), dtype=int)
-        for j, (k, i) in enumerate(batch):
-            of_load[j] = distinct.setdefault((k, *plan[k]["load_keys"][i]), len(distinct))
+        of_load = np.array([distinct.setdefault((k, *key), len(distinct)) for k, key in zip(ks, load_keys)],
+                           dtype=int)
         owner = np.array([where[key[0]] for key in distinct])
         loads = LoadSet(np.array([key[1] for key in distinct]), np.array([_nan(key[2]) for key in distinct]),
                         np.zeros(len(distinct)), np.array([_nan(key[3]) for key in distinct]))
         p, q, at, g, rank = _loaded_chains([plan[k]["chain"].runs for k in nets], owner, _admittance(loads, s), s,
                                            shapes)
-        net_of = rank[[where[k] for k, _ in batch]]           # each candidate's row in g
+        net_of = rank[[where[k] for k in ks]]                 # each candidate's row in g
         u = at[of_load]                                        # and in p, q
-        rs = np.array([plan[k]["rs"][i] for k, i in batch])
-        v_low = np.array([plan[k]["v_low"][i] for k, i in batch])
-        v_high = np.array([plan[k]["v_high"][i] for k, i in batch])
+        finals = v_high                                        # (as plain floats, for the waveforms)
+        rs, v_low, v_high = np.array(rs), np.array(v_low), np.array(v_high)
         # per net (rows in g's order): the swing, and where the reference taken out starts: when the edge's
         # front can first arrive
         by_rank = np.empty(len(nets), dtype=int)
@@ -237,8 +241,8 @@ def _solve_group(sims, plan, ramp, n_rec, members, waves) -> None:
         v += step
         rows = metrics_batch(t, v, v_high, ramp)
         shown = v[:, idx]                  # what a chart keeps, for the whole batch at once
-        for j, (k, i) in enumerate(batch):
-            waves[k][i] = Waveform(t=t, v_rx=v[j], v_src=None, v_final=float(v_high[j]), ramp=ramp, metrics=rows[j],
+        for j, (k, i, f) in enumerate(zip(ks, cand, finals)):
+            waves[k][i] = Waveform(t=t, v_rx=v[j], v_src=None, v_final=f, ramp=ramp, metrics=rows[j],
                                    preview=(t_shown, shown[j]))
 
 

@@ -597,7 +597,7 @@ class Simulation:
         (or ZeroDivisionError at a zero rise time) when a candidate cannot be sized."""
         dt = self.rise * RAMP_PER_RISE / SAMPLES_PER_RAMP
         m = len(np.atleast_1d(np.asarray(self.r_source, dtype=float)))
-        if self.t_end is not None and np.ndim(self.t_end) == 0:     # one window for all: one record size
+        if isinstance(self.t_end, float) or self.t_end is not None and np.ndim(self.t_end) == 0:   # one for all
             return [record_ladder(record_size(float(self.t_end), dt))] * m
         return [record_ladder(record_size(te, dt)) for te in self.ends]
 

@@ -84,7 +84,7 @@ def ramp_voltage(t: np.ndarray, swing: float, ramp: float) -> np.ndarray:
     return swing * np.clip(t / ramp, 0.0, 1.0)
 
 
-@dataclass
+@dataclass(slots=True)      # one per candidate and receiver of every net: made without a __dict__
 class Waveform:
     t: np.ndarray
     v_rx: np.ndarray
