@@ -116,10 +116,11 @@ def _write_both(rv, out: Path | None, json_out: Path | None, console, quiet: boo
             else:
                 write_review_json(tmp, rv)
         if out is not None:
-            extra = None
+            from sicheck.reports.crosstalk_report import crosstalk_sheets
+            extra = crosstalk_sheets(rv)
             if rv.signoff is not None and rv.signoff.previous:
                 from sicheck.reports.changes_sheet import changes_sheet
-                extra = [changes_sheet]
+                extra.append(changes_sheet)
             write_workbook(rv, out, extra_sheets=extra)
             if not quiet:
                 console.print(f"workbook: {out}")

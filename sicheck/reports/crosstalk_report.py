@@ -48,6 +48,14 @@ def crosstalk_json(tables) -> dict:
     return {"sections": sections, "couplings": couplings, "waves": waves}
 
 
+def crosstalk_sheets(rv) -> list:
+    """The review workbook's crosstalk sheets for this review (none without crosstalk inputs), as
+    workbook.write_workbook's extra_sheets."""
+    if getattr(rv, "crosstalk", None) is None:
+        return []
+    return [crosstalk_sheet] + ([crosstalk_waves_sheet] if rv.crosstalk.waves else [])
+
+
 def crosstalk_sheet(book, rv) -> None:
     """Sheet 'Crosstalk': each layer's coupling at the spacings used, then the listed couplings."""
     from sicheck.reports.workbook import _Sheet

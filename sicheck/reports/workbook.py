@@ -647,7 +647,8 @@ def _waveforms(book: Book, rv: Review):
 
 
 def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
-    """Write the review workbook atomically to ``target``; extra_sheets are callables (book, review)."""
+    """Write the review workbook atomically to ``target``; extra_sheets are callables (book, review) that add
+    sheets after the review's own (crosstalk_report.crosstalk_sheets, changes_sheet)."""
     with atomic_path(target) as tmp:
         book = Book(tmp)
         _summary(book, rv)
@@ -659,11 +660,6 @@ def write_workbook(rv: Review, target: str | Path, extra_sheets=None) -> None:
         _rules(book, rv)
         if rv.waves:
             _waveforms(book, rv)
-        if getattr(rv, "crosstalk", None) is not None:
-            from sicheck.reports.crosstalk_report import crosstalk_sheet, crosstalk_waves_sheet
-            crosstalk_sheet(book, rv)
-            if rv.crosstalk.waves:
-                crosstalk_waves_sheet(book, rv)
         for fn in extra_sheets or ():
             fn(book, rv)
         book.close()
