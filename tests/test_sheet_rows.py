@@ -173,7 +173,8 @@ def test_bodies_written_in_a_second_process_give_the_same_workbook(tmp_path, mon
     _three_tables(tmp_path / "split.xlsx", 300)
     with zipfile.ZipFile(tmp_path / "here.xlsx") as a, zipfile.ZipFile(tmp_path / "split.xlsx") as b:
         assert a.namelist() == b.namelist()
-        assert all(a.read(n) == b.read(n) for n in a.namelist())          # every part the same bytes
+        # every part the same bytes, but the document properties' time stamps (to the second)
+        assert all(a.read(n) == b.read(n) for n in a.namelist() if n != "docProps/core.xml")
     assert len(calls) == 1
     for name in ("T0", "T1", "T2"):
         assert (CalamineWorkbook.from_path(str(tmp_path / "split.xlsx")).get_sheet_by_name(name).to_python()
