@@ -226,7 +226,7 @@ def outcome(before, after) -> Outcome:
               if after.scheme == "on-die" else after.text),
         power_w=after.power_w, meets=after.meets, violations="; ".join(after.violations), meets_before=before.meets,
         worst=after.worst,
-        receivers=[(b["metrics"], a["metrics"], a["meets"]) for b, a in zip(before.receivers, after.receivers)],
+        receivers=[(b[0], a[0], a[1]) for b, a in zip(before.receiver_results(), after.receiver_results())],
         wave=None if before.wave is None else (before.wave, after.wave, before.metrics["v_final"]))
 
 

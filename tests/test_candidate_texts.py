@@ -174,3 +174,31 @@ def test_chain_checks_its_lines_and_parts():
         tree_network([50.0, 50.0], [1e-9, 1e-9], [None, None], [-1, 5])
     net, far = tree_network([], [], [], [])
     assert net.edges == [] and far == []
+
+
+def test_receiver_results_as_the_receivers_say():
+    z, td = [50.0, 50.0, 50.0], [0.3e-9, 0.4e-9, 0.2e-9]
+    rx = [(1, 2e-12, "U2"), (2, 3e-12, "U3")]
+    multi = choose(z, td, 0.1e-9, 10.0, 3.3, 0.0, Limits(max_overshoot_pct=1.0), parents=[-1, 0, 0], receivers=rx)[2]
+    single = choose([50.0], [1e-9], 0.1e-9, 10.0, 3.3, 2e-12, Limits(max_overshoot_pct=1.0))[2]
+    for c in multi + single:
+        got = c.receiver_results()
+        assert c._violations is None          # no words needed for them
+        assert len(got) == (2 if c in multi else 1)
+        assert all(m is r["metrics"] and ok == r["meets"] for (m, ok), r in zip(got, c.receivers))
+    assert any(not ok for c in multi for _, ok in c.receiver_results())
+    given = Candidate("x", "x", {}, 0.0, receivers=[{"receiver": "a", "metrics": {"v": 1}, "meets": True}])
+    assert given.receiver_results() == [({"v": 1}, True)]
+    assert Candidate("x", "x", {}, 0.0).receiver_results() == []
+
+
+def test_load_set_columns_with_absent_parts_as_nan():
+    ls = LoadSet.of([Load(cap=2e-12), Load(cap=1e-12, end_ohm=50.0, end_volts=1.65),
+                     Load(cap=3e-12, end_ohm=47.0, end_cap=1e-10)])
+    np.testing.assert_array_equal(ls.cap, [2e-12, 1e-12, 3e-12])
+    np.testing.assert_array_equal(ls.end_ohm, [np.nan, 50.0, 47.0])
+    np.testing.assert_array_equal(ls.end_volts, [0.0, 1.65, 0.0])
+    np.testing.assert_array_equal(ls.end_cap, [np.nan, np.nan, 1e-10])
+    assert all(a.dtype == np.float64 and a.shape == (3,) for a in (ls.cap, ls.end_ohm, ls.end_volts, ls.end_cap))
+    empty = LoadSet.of([])
+    assert len(empty) == 0 and empty.end_cap.shape == (0,)

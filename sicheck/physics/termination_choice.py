@@ -124,6 +124,14 @@ class Candidate:
     def receivers(self, value: list[dict]) -> None:
         self._receivers = value
 
+    def receiver_results(self) -> list[tuple[dict, bool]]:
+        """Per receiver (as ``receivers``): (metrics, meets), without putting the violations into words."""
+        if self._receivers is not None:
+            return [(r["metrics"], r["meets"]) for r in self._receivers]
+        if self._per is not None:
+            return [(p.metrics, p.meets) for p in self._per]
+        return [] if self._names is None else [(self.metrics, self.meets)]
+
     def __repr__(self) -> str:
         return (f"Candidate(scheme={self.scheme!r}, text={self.text!r}, meets={self.meets!r}, "
                 f"power_w={self.power_w!r}, violations={self.violations!r})")

@@ -46,9 +46,12 @@ class LoadSet:
     @classmethod
     def of(cls, loads: Sequence[Load]) -> "LoadSet":
         nan = math.nan
-        rows = np.array([(x.cap, nan if x.end_ohm is None else x.end_ohm, x.end_volts,
-                          nan if x.end_cap is None else x.end_cap) for x in loads], dtype=float).reshape(-1, 4)
-        return cls(*rows.T.copy())       # each column contiguous (one copy for the four)
+        # a column at a time from plain lists (a net's handful of loads: a 2-d array and its transposed copy
+        # cost more than the four small arrays)
+        return cls(np.array([x.cap for x in loads], dtype=float),
+                   np.array([nan if x.end_ohm is None else x.end_ohm for x in loads], dtype=float),
+                   np.array([x.end_volts for x in loads], dtype=float),
+                   np.array([nan if x.end_cap is None else x.end_cap for x in loads], dtype=float))
 
     def __len__(self) -> int:
         return len(self.cap)
