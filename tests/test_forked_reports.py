@@ -147,3 +147,28 @@ def test_json_pieces_join_to_the_one_piece_text(monkeypatch):
     assert b"".join(pieces) == want
     assert json.loads(want) == doc
     assert max(map(len, pieces)) < len(want) / 3            # no piece holds the whole document
+
+
+def test_the_childs_return_value_comes_back():
+    with forked(lambda: {"crc": 7, "name": "sheet1.xml"}) as handoff:
+        pass
+    assert handoff.value == {"crc": 7, "name": "sheet1.xml"}
+
+
+def test_a_write_error_in_the_sheet_bodies_process_is_a_message_and_exit_2(run, board, tmp_path, monkeypatch):
+    from sicheck.reports import sheet_rows
+    parent, real = os.getpid(), sheet_rows.deflate
+
+    def full_there(chunks, level, out=None):         # the disk fills up while the forked process writes
+        if os.getpid() != parent:
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+        return real(chunks, level, out)
+
+    monkeypatch.setattr(sheet_rows, "FORK_MIN_CELLS", 0)      # a small workbook's largest body goes there too
+    monkeypatch.setattr(sheet_rows, "deflate", full_there)
+    code, err, xlsx, js = _review(run, board, tmp_path, "bodies")
+    assert code == 2
+    assert "Traceback" not in err
+    assert str(xlsx) in err and os.strerror(errno.ENOSPC) in err
+    assert not xlsx.exists()
+    assert not [p for p in tmp_path.iterdir() if p.name.startswith(".")]      # no part files left behind
