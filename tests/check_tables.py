@@ -58,3 +58,19 @@ def findings(seg, rs, rule: str | None = None, cross_sections=()):
     from sicheck.checks import by_id
     ctx = context(seg, rs, cross_sections)
     return run_checks(ctx, None if rule is None else [by_id(rule)])
+
+
+def needing_termination_longest_first(nets):
+    """The checks' former loop, as a reference: the whole nets table sorted by delay, lumped nets skipped,
+    a pair once (its first leg in that order)."""
+    from sicheck.checks.engine import pair_id
+    done = set()
+    for r in nets.sort_values("delay", ascending=False).itertuples(index=False):
+        if r.termination == "not-needed":
+            continue
+        if r.pair:
+            ident = pair_id(r.net, r.pair)
+            if ident in done:
+                continue
+            done.add(ident)
+        yield r

@@ -15,7 +15,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from check_tables import context, rules, segments
+from check_tables import context, needing_termination_longest_first, rules, segments
 from sicheck.checks import ReviewContext, by_id, run_checks, run_early
 from sicheck.checks import engine
 from sicheck.checks.engine import _findings, make_key, pair_id, pair_label, prepared
@@ -28,20 +28,6 @@ WAVE_COLUMNS = ["termination_part", "waveform_meets_limits", "waveform_violation
                 "before_settle_ns", "after_settle_ns"]
 
 
-def _needing_termination_longest_first(nets):
-    """The former checks' loop: the whole table sorted by delay, lumped nets skipped, a pair once."""
-    done = set()
-    for r in nets.sort_values("delay", ascending=False).itertuples(index=False):
-        if r.termination == "not-needed":
-            continue
-        if r.pair:
-            ident = pair_id(r.net, r.pair)
-            if ident in done:
-                continue
-            done.add(ident)
-        yield r
-
-
 def _electrical_length_row_by_row(ctx, chk):
     """The former check: every line's text made after the waveform stage, one namedtuple per net."""
     seg = ctx.segments
@@ -51,7 +37,7 @@ def _electrical_length_row_by_row(ctx, chk):
     limits = {t: float(ctx.param("required_min_td_over_tr" if t == REQUIRED else "lumped_max_td_over_tr"))
               for t in set(nets["termination"].tolist())}
     out = []
-    for r in _needing_termination_longest_first(nets):
+    for r in needing_termination_longest_first(nets):
         msg = (f"one-way delay {r.delay * 1e12:.0f} ps is {r.td_over_tr:.2f} x the {r.rise_time * 1e12:.0f} ps rise "
                f"time (critical length {r.critical_length * 1e3:.1f} mm on its layers, net is {r.length * 1e3:.1f} "
                f"mm): transmission line, termination {r.termination}")
@@ -80,7 +66,7 @@ def _waveform_failures_row_by_row(ctx, chk):
     first = seg.groupby("net", sort=False)["row"].first()
     rows = dict(zip(first.index.tolist(), first.tolist()))
     out = []
-    for r in _needing_termination_longest_first(nets):
+    for r in needing_termination_longest_first(nets):
         part = r.termination_part
         if isinstance(part, str) and part and r.waveform_meets_limits is False:
             ident = pair_id(r.net, r.pair) if r.pair else r.net

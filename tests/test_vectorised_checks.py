@@ -12,7 +12,7 @@ import pandas as pd
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from check_tables import cls, context, findings, rules, segments
+from check_tables import cls, context, findings, needing_termination_longest_first, rules, segments
 from sicheck.checks.engine import pair_id, plain_rows
 from sicheck.checks.length import lines_longest_first
 
@@ -43,17 +43,7 @@ def test_plain_rows_of_a_table_without_columns():
 
 def _longest_first_row_by_row(nets):
     """The former loop: sort the whole table, skip lumped nets, a pair once."""
-    done, out = set(), []
-    for r in nets.sort_values("delay", ascending=False).itertuples(index=False):
-        if r.termination == "not-needed":
-            continue
-        if r.pair:
-            ident = pair_id(r.net, r.pair)
-            if ident in done:
-                continue
-            done.add(ident)
-        out.append(r.net)
-    return out
+    return [r.net for r in needing_termination_longest_first(nets)]
 
 
 @settings(max_examples=60, deadline=None)
